@@ -1,0 +1,1 @@
+"""Resilience metrics: pure functions from one participant's data to frozen results."""

@@ -1,0 +1,96 @@
+"""Frozen result records shared by every metric family, the safety rules and the renderer.
+
+An `Estimate` is either a number (with optional interval and n) or "not enough data" with the
+reason in `note`: never a placeholder number.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """A value with optional interval, sample size and note; `value is None` means not available."""
+
+    value: float | None
+    lower: float | None = None
+    upper: float | None = None
+    n: int | None = None
+    note: str = ""
+    """Why the value is missing, or how it was computed (method, rule used)."""
+
+    @property
+    def ok(self) -> bool:
+        return self.value is not None and math.isfinite(self.value)
+
+    @classmethod
+    def missing(cls, reason: str, n: int | None = None) -> Estimate:
+        """Not enough data (or undefined), with the reason a reader sees."""
+        return cls(None, n=n, note=reason)
+
+
+@dataclass(frozen=True)
+class Family:
+    """Base for a metric family's result: named estimates plus frames for charts and tables."""
+
+    estimates: dict[str, Estimate] = field(default_factory=dict)
+    """Measure name (as in out/metrics.csv) -> estimate."""
+    tables: dict[str, pd.DataFrame] = field(default_factory=dict)
+    """Named frames the charts and data tables use (documented per family)."""
+    params: dict[str, Any] = field(default_factory=dict)
+    """Parameters actually used (window, bandwidth, seed, rule names...), for the methods text."""
+
+
+@dataclass(frozen=True)
+class ParticipantResults:
+    """Everything computed for one participant, family by family."""
+
+    participant: str
+    variable: str
+    """The composite or item the results are about."""
+    families: dict[str, Family]
+    """Family name ('descriptives', 'dynamics', 'recovery', 'warnings', 'questionnaires',
+    'shifts', 'landscape', ...) -> its result."""
+    enough_data: bool
+    """False when the participant has too few answers for a booklet at all."""
+    reason: str = ""
+
+    def estimate(self, measure: str) -> Estimate:
+        """Look a measure up across families (KeyError if no family reports it)."""
+        for fam in self.families.values():
+            if measure in fam.estimates:
+                return fam.estimates[measure]
+        raise KeyError(measure)
+
+    def measures(self) -> dict[str, Estimate]:
+        """All measures of all families, in family order."""
+        out: dict[str, Estimate] = {}
+        for fam in self.families.values():
+            out.update(fam.estimates)
+        return out
+
+
+METRICS_CSV_COLUMNS = ("participant", "measure", "value", "lower", "upper", "n", "note")
+
+
+def to_rows(results: ParticipantResults) -> list[dict[str, Any]]:
+    """Rows of out/metrics.csv for one participant (missing values empty, reason in note)."""
+    rows = []
+    for name, est in results.measures().items():
+        rows.append(
+            {
+                "participant": results.participant,
+                "measure": name,
+                "value": est.value if est.ok else None,
+                "lower": est.lower,
+                "upper": est.upper,
+                "n": est.n,
+                "note": est.note,
+            }
+        )
+    return rows

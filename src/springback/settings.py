@@ -1,0 +1,603 @@
+"""The settings schema, declared once: every key of `study.toml`, its default and its meaning.
+
+The field descriptions are the documentation: `springback init` writes them as comments into
+a new `study.toml`, and errors quote the key. Paths are relative to the project folder.
+"""
+
+from __future__ import annotations
+
+import difflib
+import tomllib
+from pathlib import Path
+from typing import Any, Literal
+from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
+
+from springback.errors import Problem, SettingsError, Severity, error, warning
+
+SETTINGS_FILE = "study.toml"
+
+Text = dict[str, str]
+"""A text per language code: ``{ en = "...", nl = "..." }``."""
+
+
+class Section(BaseModel):
+    """Base for every settings section: unknown keys are found by `unknown_keys`, not here."""
+
+    model_config = ConfigDict(extra="ignore", frozen=True, populate_by_name=True)
+
+
+class Contact(Section):
+    name: str = Field("", description="Who participants can ask about the study or the booklet.")
+    email: str = Field("", description="The study's e-mail address.")
+    phone: str = Field("", description="The study's phone number.")
+
+
+class StudyInfo(Section):
+    title: str = Field("Untitled study", description="The study's name, shown on every booklet.")
+    team: str = Field("", description="The research team or clinic running the study.")
+    contact: Contact = Field(default_factory=Contact, description="Study contact.")
+    timezone: str = Field(
+        "UTC",
+        description="IANA time zone of the study (e.g. Europe/Amsterdam). Naive timestamps are "
+        "read in it, and all times in booklets are shown in it.",
+    )
+    languages: list[str] = Field(
+        default_factory=lambda: ["en"], description="Languages booklets are made in (en, nl, de)."
+    )
+    day_start: str = Field(
+        "04:00",
+        description="Local clock time at which a study day begins; answers before it count "
+        "for the previous day (night owls).",
+    )
+    prompts_per_day: int | None = Field(
+        None,
+        ge=1,
+        description="Prompts sent per day by design; used for compliance when the data have no "
+        "'scheduled' column.",
+    )
+    answers_checked: Text = Field(
+        default_factory=dict,
+        description="Per language: who looks at the answers and how often (shown in every "
+        "booklet's cautions), e.g. 'A member of the team reads the answers once a week.'",
+    )
+
+    @field_validator("timezone")
+    @classmethod
+    def _known_zone(cls, v: str) -> str:
+        try:
+            ZoneInfo(v)
+        except (ZoneInfoNotFoundError, ValueError):
+            close = difflib.get_close_matches(v, _zone_names(), n=1)
+            hint = f" (did you mean '{close[0]}'?)" if close else ""
+            raise ValueError(f"unknown time zone '{v}'{hint}") from None
+        return v
+
+    @field_validator("day_start")
+    @classmethod
+    def _clock(cls, v: str) -> str:
+        hh, _, mm = v.partition(":")
+        if not (hh.isdigit() and mm.isdigit() and 0 <= int(hh) < 24 and 0 <= int(mm) < 60):
+            raise ValueError(f"'{v}' is not a clock time like 04:00")
+        return v
+
+
+class Columns(Section):
+    participant: str = Field("participant", description="Column with the participant id.")
+    timestamp: str = Field("timestamp", description="Column with the time of the answer.")
+    scheduled: str = Field("scheduled", description="Optional column: when the prompt was sent.")
+    answered: str = Field("answered", description="Optional column: when it was answered.")
+    item: str = Field("item", description="Long layout only: column naming the item.")
+    value: str = Field("value", description="Long layout only: column holding the rating.")
+    language: str = Field("language", description="Roster column with the booklet language.")
+    consent: str = Field("consent", description="Roster column: 'yes' or 'withdrawn'.")
+    feedback: str = Field("feedback", description="Roster column: wants a booklet, yes/no.")
+    therapist: str = Field("therapist", description="Roster column: therapist edition, yes/no.")
+    region: str = Field("region", description="Roster column selecting the referral texts.")
+    kind: str = Field("kind", description="Events column: what kind of event.")
+    intensity: str = Field("intensity", description="Events column: how upsetting (number).")
+    questionnaire: str = Field("questionnaire", description="Questionnaires column: which one.")
+    score: str = Field("score", description="Questionnaires column: the total score.")
+
+
+class DataFiles(Section):
+    momentary: Path = Field(
+        Path("data/momentary.csv"),
+        description="Momentary ratings, one row per answered prompt (CSV, XLSX, Parquet or SAV).",
+    )
+    participants: Path = Field(Path("data/participants.csv"), description="The roster.")
+    events: Path | None = Field(
+        Path("data/events.csv"), description="Optional: event markers (skipped if absent)."
+    )
+    questionnaires: Path | None = Field(
+        Path("data/questionnaires.csv"),
+        description="Optional: periodic questionnaires (skipped if absent).",
+    )
+    layout: Literal["wide", "long"] = Field(
+        "wide",
+        description="'wide': one column per item; 'long': one row per item with item/value columns.",
+    )
+    sheet: str | None = Field(None, description="Excel only: the sheet to read (default: first).")
+    on_bad_rows: Literal["error", "set aside"] = Field(
+        "error",
+        description="What to do with rows that cannot be used: 'error' stops the build; "
+        "'set aside' goes on and lists each row in the quality report.",
+    )
+    late_after_minutes: float = Field(
+        60.0, gt=0, description="An answer this long after its prompt is reported as late."
+    )
+    columns: Columns = Field(default_factory=Columns, description="Column names in the files.")
+
+
+class Item(Section):
+    scale: tuple[float, float] = Field(description="Lowest and highest possible rating.")
+    reverse: bool = Field(False, description="Reverse-score this item in composites.")
+    label: Text = Field(default_factory=dict, description="Item wording per language.")
+    column: str | None = Field(None, description="Column name in the data (default: the key).")
+
+    @field_validator("scale")
+    @classmethod
+    def _ordered(cls, v: tuple[float, float]) -> tuple[float, float]:
+        if not v[0] < v[1]:
+            raise ValueError(f"the low end must be below the high end, found [{v[0]}, {v[1]}]")
+        return v
+
+
+class Composite(Section):
+    items: list[str] = Field(description="Items averaged into this composite (after reversing).")
+    higher_is: Literal["worse", "better"] = Field(
+        description="Whether a higher composite means feeling worse or better."
+    )
+    label: Text = Field(default_factory=dict, description="Name per language (e.g. 'low mood').")
+    min_items: int | None = Field(
+        None, ge=1, description="Answered items needed for a score (default: all)."
+    )
+
+
+class Booklet(Section):
+    about: str | None = Field(
+        None, description="The composite or item the booklet is about (default: first composite)."
+    )
+    editions: list[Literal["participant", "therapist"]] = Field(
+        default_factory=lambda: ["participant", "therapist"], description="Editions to make."
+    )
+    formats: list[Literal["html", "pdf"]] = Field(
+        default_factory=lambda: ["html", "pdf"], description="Output formats."
+    )
+    paper: Literal["A4", "Letter"] = Field("A4", description="PDF paper size.")
+    large_print: bool = Field(False, description="Body text 16 pt or larger.")
+    show_change_to_participant: bool = Field(
+        False,
+        description="Show the section on how indicators changed over the study in the "
+        "participant edition too (default: therapist edition only; early-warning indicators "
+        "miss most shifts and raise false alarms in individuals).",
+    )
+    show_landscape: bool = Field(True, description="Include the mood-landscape picture.")
+    min_prompts: int = Field(
+        30, ge=1, description="Answered prompts below which no booklet is made (too little data)."
+    )
+
+
+class Events(Section):
+    upsetting: list[str] | None = Field(
+        None, description="Event kinds that count as upsetting (default: all kinds)."
+    )
+    min_intensity: float | None = Field(
+        None, description="Only events at least this intense count (default: all)."
+    )
+    daily_load: str | None = Field(
+        None,
+        description="What measures daily load for the mood-against-load picture: an item name "
+        "(its daily mean) or 'events' (upsetting events per day). Default: none.",
+    )
+
+
+class Questionnaire(Section):
+    range: tuple[float, float] = Field(description="Lowest and highest possible total.")
+    bands: list[tuple[float, str]] = Field(
+        default_factory=list,
+        description="Published severity bands as [lower bound, label], increasing.",
+    )
+    higher_is: Literal["worse", "better"] = Field("worse", description="Polarity of the score.")
+    reliability: float | None = Field(
+        None, gt=0, lt=1, description="Test-retest reliability, for the reliable change index."
+    )
+    sd: float | None = Field(
+        None, gt=0, description="SD of a reference sample, for the reliable change index."
+    )
+    items: list[str] = Field(
+        default_factory=list, description="Item columns to sum when there is no score column."
+    )
+    max_missing_items: int = Field(
+        0, ge=0, description="Items that may be missing; the total is prorated (mean x k)."
+    )
+    label: Text = Field(default_factory=dict, description="Name per language.")
+    sudden_min_change: float | None = Field(
+        None,
+        description="Sudden gains/losses: smallest change between two scores (default: the "
+        "reliable-change threshold; Tang & DeRubeis 1999 criterion 1).",
+    )
+    sudden_min_relative: float = Field(
+        0.25, gt=0, lt=1, description="Sudden gains: smallest change relative to the prior score."
+    )
+
+
+class Metrics(Section):
+    max_gap_hours: float = Field(
+        6.0, gt=0, description="Longest gap between prompts that still counts as consecutive."
+    )
+    min_pairs: int = Field(30, ge=3, description="Consecutive pairs needed for carry-over.")
+    window: float = Field(
+        0.5, gt=0, lt=1, description="Rolling window for early-warning indicators, share of prompts."
+    )
+    windows: list[float] = Field(
+        default_factory=lambda: [0.3, 0.4, 0.5, 0.6, 0.7],
+        description="Window shares tried in the sensitivity grid.",
+    )
+    detrend: Literal["gaussian", "linear", "none"] = Field(
+        "gaussian", description="How slow trends are removed before rolling indicators."
+    )
+    bandwidth_days: float = Field(
+        7.0, gt=0, description="Gaussian detrending: kernel SD in days."
+    )
+    bandwidths_days: list[float] = Field(
+        default_factory=lambda: [3.0, 5.0, 7.0, 10.0, 14.0],
+        description="Kernel SDs tried in the sensitivity grid.",
+    )
+    min_window_prompts: int = Field(
+        20, ge=5, description="A rolling window with fewer answered prompts is skipped."
+    )
+    surrogates: int = Field(1000, ge=19, description="Surrogate series per significance test.")
+    seed: int = Field(20240917, description="Seed for every random step (reproducible builds).")
+    alpha: float = Field(0.05, gt=0, lt=1, description="Significance level.")
+    dip_k: float = Field(
+        2.0, gt=0, description="A dip is a rating this many SD worse than the rolling baseline."
+    )
+    baseline_days: float = Field(7.0, gt=0, description="Days in the rolling baseline.")
+    recovery_band_sd: float = Field(
+        0.5, gt=0, description="Back to baseline means within this many SD of it."
+    )
+    ta_mssd_lambda: float = Field(
+        0.0, ge=0, description="Time adjustment exponent of the MSSD (0 = plain MSSD)."
+    )
+    pelt_penalty: float | None = Field(
+        None, gt=0, description="PELT penalty on daily means (default: BIC-type 2 s^2 ln n)."
+    )
+    min_segment_days: int = Field(3, ge=2, description="Shortest segment between change points.")
+    entropy_order: int = Field(3, ge=2, le=7, description="Permutation entropy order.")
+    entropy_delay: int = Field(1, ge=1, description="Permutation entropy delay.")
+
+
+class SafetyRule(Section):
+    name: str = Field(description="A short name for the rule, shown in flags.")
+    questionnaire: str | None = Field(None, description="Source: a questionnaire's total.")
+    item: str | None = Field(None, description="Source: a momentary item's rating.")
+    shift: bool = Field(False, description="Source: a detected abrupt worsening.")
+    silence_days: int | None = Field(
+        None, ge=1, description="Source: no answers for this many days near the end."
+    )
+    at_least: float | None = Field(None, description="Hit when the value is at least this.")
+    at_most: float | None = Field(None, description="Hit when the value is at most this.")
+    within_days: float | None = Field(None, gt=0, description="Only the last N days count.")
+    action: Literal["refer", "hold"] = Field(
+        description="'refer': referral advice first; 'hold': held until a clinician reviews it."
+    )
+
+
+class Safety(Section):
+    rules: list[SafetyRule] = Field(default_factory=list, description="Safety rules.")
+
+
+class Referral(Section):
+    region: str = Field("default", description="Roster region this text is for.")
+    language: str = Field("en", description="Language of this text.")
+    questions: str = Field(description="Who to ask about the booklet or the study (and how).")
+    feeling_worse: str = Field(description="Where to go when feeling worse for a while.")
+    self_harm: str = Field(description="Same-day help when thinking of harming yourself.")
+    emergency: str = Field(description="The local emergency number.")
+
+
+class Archive(Section):
+    keep_inputs: Literal["copy", "hash"] = Field(
+        "copy", description="'copy' keeps each input file in the archive; 'hash' only its hash."
+    )
+    retention_years: float = Field(10.0, gt=0, description="How long archived builds are kept.")
+
+
+class Delivery(Section):
+    smtp_host: str = Field("", description="The study's own SMTP server.")
+    smtp_port: int = Field(587, description="SMTP port.")
+    security: Literal["starttls", "tls", "none"] = Field("starttls", description="Encryption.")
+    user: str = Field("", description="SMTP user name.")
+    password_env: str = Field(
+        "SPRINGBACK_SMTP_PASSWORD", description="Environment variable holding the password."
+    )
+    sender: str = Field("", description="From address.")
+    contacts_file: Path | None = Field(
+        None, description="CSV with participant,email[,therapist_email]; keep outside data/."
+    )
+    passphrases_file: Path | None = Field(
+        None, description="CSV with participant,passphrase for protected PDFs."
+    )
+    subject: Text = Field(default_factory=dict, description="Message subject per language.")
+    body: Text = Field(default_factory=dict, description="Message text per language.")
+
+
+class Output(Section):
+    out_dir: Path = Field(Path("out"), description="Where booklets are written.")
+    archive_dir: Path = Field(Path("archive"), description="Where the audit archive lives.")
+
+
+class StudySettings(Section):
+    """Everything in `study.toml`."""
+
+    study: StudyInfo = Field(default_factory=StudyInfo, description="Study facts.")
+    data: DataFiles = Field(default_factory=DataFiles, description="Data files and columns.")
+    items: dict[str, Item] = Field(default_factory=dict, description="Momentary items.")
+    composites: dict[str, Composite] = Field(default_factory=dict, description="Composites.")
+    booklet: Booklet = Field(default_factory=Booklet, description="What booklets contain.")
+    events: Events = Field(default_factory=Events, description="Event markers.")
+    questionnaires: dict[str, Questionnaire] = Field(
+        default_factory=dict, description="Periodic questionnaires."
+    )
+    metrics: Metrics = Field(default_factory=Metrics, description="Metric parameters.")
+    safety: Safety = Field(default_factory=Safety, description="Safety rules.")
+    referral: list[Referral] = Field(
+        default_factory=list, description="Referral texts per region and language."
+    )
+    archive: Archive = Field(default_factory=Archive, description="Audit archive.")
+    delivery: Delivery = Field(default_factory=Delivery, description="Sending booklets.")
+    output: Output = Field(default_factory=Output, description="Output folders.")
+
+    # -- derived facts used everywhere -------------------------------------------------
+    @property
+    def about(self) -> str:
+        """The composite or item the booklets are about."""
+        if self.booklet.about:
+            return self.booklet.about
+        if self.composites:
+            return next(iter(self.composites))
+        return next(iter(self.items))
+
+    def higher_is_worse(self, variable: str) -> bool:
+        """Polarity of a composite or item (items: higher is worse unless reverse-scored)."""
+        if variable in self.composites:
+            return self.composites[variable].higher_is == "worse"
+        if variable in self.items:
+            return not self.items[variable].reverse
+        raise KeyError(variable)
+
+    def scale_of(self, variable: str) -> tuple[float, float]:
+        """Scale range of an item, or of a composite (its items' common range)."""
+        if variable in self.items:
+            return self.items[variable].scale
+        lows, highs = zip(*(self.items[i].scale for i in self.composites[variable].items))
+        return (min(lows), max(highs))
+
+    def label_of(self, variable: str, language: str) -> str:
+        """Human label of an item or composite in a language (falls back to English, then key)."""
+        spec = self.items.get(variable) or self.composites.get(variable)
+        labels = spec.label if spec else {}
+        return labels.get(language) or labels.get("en") or variable.replace("_", " ")
+
+    def referral_for(self, region: str, language: str) -> Referral | None:
+        """The referral text for a region and language, falling back to region 'default'."""
+        for wanted in (region, "default"):
+            for r in self.referral:
+                if r.region == wanted and r.language == language:
+                    return r
+        return None
+
+
+# ---------------------------------------------------------------------------------------
+# Loading
+
+
+def _zone_names() -> list[str]:
+    from zoneinfo import available_timezones
+
+    return sorted(available_timezones())
+
+
+def unknown_keys(model: type[BaseModel], raw: Any, prefix: str = "") -> list[Problem]:
+    """Warn about keys the schema does not know, with a 'did you mean' suggestion."""
+    problems: list[Problem] = []
+    if not isinstance(raw, dict):
+        return problems
+    fields = model.model_fields
+    for key, value in raw.items():
+        path = f"{prefix}{key}"
+        if key not in fields:
+            close = difflib.get_close_matches(key, list(fields), n=1)
+            problems.append(
+                warning(
+                    f"{SETTINGS_FILE}: {path}",
+                    f"unknown setting '{key}' is ignored",
+                    fix=f"did you mean '{close[0]}'?" if close else "remove it or check spelling",
+                    code="unknown-key",
+                )
+            )
+            continue
+        sub = _section_type(fields[key].annotation)
+        if sub is None:
+            continue
+        kind, section = sub
+        if kind == "one":
+            problems += unknown_keys(section, value, f"{path}.")
+        elif kind == "dict" and isinstance(value, dict):
+            for name, entry in value.items():
+                problems += unknown_keys(section, entry, f"{path}.{name}.")
+        elif kind == "list" and isinstance(value, list):
+            for i, entry in enumerate(value):
+                problems += unknown_keys(section, entry, f"{path}[{i}].")
+    return problems
+
+
+def _section_type(annotation: Any) -> tuple[str, type[BaseModel]] | None:
+    origin = getattr(annotation, "__origin__", None)
+    args = getattr(annotation, "__args__", ())
+    if isinstance(annotation, type) and issubclass(annotation, BaseModel):
+        return ("one", annotation)
+    if origin is dict and len(args) == 2 and isinstance(args[1], type) and issubclass(
+        args[1], BaseModel
+    ):
+        return ("dict", args[1])
+    if origin is list and args and isinstance(args[0], type) and issubclass(args[0], BaseModel):
+        return ("list", args[0])
+    return None
+
+
+def _plain(msg: str) -> str:
+    """Turn pydantic's message into plain words (no Python type names)."""
+    msg = msg.removeprefix("Value error, ")
+    return msg.replace("Input should be", "it should be").replace("Field required", "missing")
+
+
+def from_mapping(raw: dict[str, Any]) -> tuple[StudySettings, list[Problem]]:
+    """Validate a settings mapping; return the settings and every problem found."""
+    problems = unknown_keys(StudySettings, raw)
+    try:
+        settings = StudySettings.model_validate(raw)
+    except ValidationError as exc:
+        for e in exc.errors():
+            key = ".".join(str(p) for p in e["loc"])
+            found = e.get("input")
+            problems.append(
+                error(
+                    f"{SETTINGS_FILE}: {key}",
+                    _plain(e["msg"]),
+                    found=repr(found) if not isinstance(found, dict) else "",
+                    fix="correct this key in study.toml (see `springback init` for an example)",
+                    code="invalid-setting",
+                )
+            )
+        raise SettingsError(problems) from None
+    problems += cross_checks(settings)
+    return settings, problems
+
+
+def cross_checks(s: StudySettings) -> list[Problem]:
+    """Rules that involve several keys; each says why a value is refused."""
+    out: list[Problem] = []
+    where = SETTINGS_FILE + ": "
+    if not s.items:
+        out.append(
+            error(where + "items", "no momentary items are defined",
+                  fix="add at least one [items.<name>] table with scale = [low, high]",
+                  code="no-items")
+        )
+    for name, comp in s.composites.items():
+        for item in comp.items:
+            if item not in s.items:
+                close = difflib.get_close_matches(item, list(s.items), n=1)
+                out.append(
+                    error(where + f"composites.{name}.items",
+                          f"composite '{name}' names unknown item '{item}'",
+                          expected="one of: " + ", ".join(s.items),
+                          fix=f"did you mean '{close[0]}'?" if close else
+                          f"add [items.{item}] or remove it from the composite",
+                          code="unknown-item")
+                )
+    if s.items:
+        about = s.booklet.about
+        if about is not None and about not in s.items and about not in s.composites:
+            known = list(s.composites) + list(s.items)
+            close = difflib.get_close_matches(about, known, n=1)
+            out.append(
+                error(where + "booklet.about", f"'{about}' is neither a composite nor an item",
+                      expected="one of: " + ", ".join(known),
+                      fix=f"did you mean '{close[0]}'?" if close else "name a composite or item",
+                      code="unknown-about")
+            )
+    for name, q in s.questionnaires.items():
+        bounds = [b[0] for b in q.bands]
+        if any(b2 <= b1 for b1, b2 in zip(bounds, bounds[1:])):
+            out.append(
+                error(where + f"questionnaires.{name}.bands",
+                      "band lower bounds must increase",
+                      found=", ".join(f"{b:g}" for b in bounds),
+                      fix="list bands from the lowest score upwards, each [lower bound, label]",
+                      code="bands-not-increasing")
+            )
+        if q.bands and not (q.range[0] <= bounds[0] <= q.range[1]):
+            out.append(
+                error(where + f"questionnaires.{name}.bands",
+                      "the first band must start inside the questionnaire's range",
+                      expected=f"a lower bound between {q.range[0]:g} and {q.range[1]:g}",
+                      found=f"{bounds[0]:g}", code="bands-outside-range")
+            )
+    for i, rule in enumerate(s.safety.rules):
+        key = where + f"safety.rules[{i}]"
+        sources = [rule.questionnaire is not None, rule.item is not None, rule.shift,
+                   rule.silence_days is not None]
+        if sum(sources) != 1:
+            out.append(
+                error(key, f"rule '{rule.name}' must have exactly one source",
+                      expected="one of questionnaire, item, shift = true, silence_days",
+                      found=f"{sum(sources)} sources", code="rule-sources")
+            )
+        if rule.questionnaire is not None and rule.questionnaire not in s.questionnaires:
+            out.append(
+                error(key + ".questionnaire",
+                      f"rule '{rule.name}' names unknown questionnaire '{rule.questionnaire}'",
+                      expected="one of: " + (", ".join(s.questionnaires) or "(none defined)"),
+                      fix="define it under [questionnaires.<name>] or correct the name",
+                      code="unknown-questionnaire")
+            )
+        if rule.item is not None and rule.item not in s.items:
+            out.append(
+                error(key + ".item", f"rule '{rule.name}' names unknown item '{rule.item}'",
+                      expected="one of: " + ", ".join(s.items),
+                      fix="correct the item name", code="unknown-item")
+            )
+        if (rule.questionnaire or rule.item) and rule.at_least is None and rule.at_most is None:
+            out.append(
+                error(key, f"rule '{rule.name}' needs at_least or at_most",
+                      code="rule-threshold")
+            )
+    if s.events.daily_load not in (None, "events") and s.events.daily_load not in s.items:
+        out.append(
+            error(where + "events.daily_load",
+                  f"'{s.events.daily_load}' is neither an item nor 'events'",
+                  code="unknown-load")
+        )
+    return out
+
+
+def load_settings(project: Path) -> tuple[StudySettings, list[Problem]]:
+    """Read and validate `study.toml` in a project folder.
+
+    Raises SettingsError with every problem found; returns warnings otherwise.
+    """
+    path = Path(project) / SETTINGS_FILE
+    if not path.is_file():
+        raise SettingsError(
+            [error(SETTINGS_FILE, "the settings file is missing",
+                   expected=f"a file {path}",
+                   fix="run `springback init FOLDER` to create a project with a commented "
+                   "study.toml", code="missing-settings")]
+        )
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8-sig"))
+    except tomllib.TOMLDecodeError as exc:
+        raise SettingsError(
+            [error(SETTINGS_FILE, f"this is not valid TOML: {exc}",
+                   fix="correct the line named (a missing quote or bracket is usual)",
+                   code="invalid-toml")]
+        ) from None
+    except UnicodeDecodeError:
+        raise SettingsError(
+            [error(SETTINGS_FILE, "the file is not UTF-8 text", fix="save it as UTF-8",
+                   code="invalid-toml")]
+        ) from None
+    settings, problems = from_mapping(raw)
+    errors = [p for p in problems if p.severity is Severity.ERROR]
+    if errors:
+        raise SettingsError(problems)
+    return settings, problems
+
+
+def normalised(settings: StudySettings) -> dict[str, Any]:
+    """The settings as a plain, key-sorted mapping (for hashing and the manifest)."""
+    return settings.model_dump(mode="json")
