@@ -1,0 +1,347 @@
+"""Orchestration: load the study, compute, check safety, render, write atomically, archive.
+
+`build()` reads as the recipe. Per-participant work is one picklable function so it can run in
+this process, in a `spawn` process pool, or on a Dask cluster (see `springback.runner`).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import json
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, field
+from datetime import datetime
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from springback import __version__
+from springback.model import ParticipantData, Study
+from springback.settings import StudySettings, normalised
+
+BOOKLETS = "booklets"
+EDITIONS = ("participant", "therapist")
+
+
+@dataclass(frozen=True)
+class ParticipantOutcome:
+    """What building one participant produced (files as bytes, rows for the study tables)."""
+
+    participant: str
+    status: str
+    """'built', 'withdrawn', 'no feedback', 'not enough data', 'unchanged' or 'failed'."""
+    reason: str = ""
+    files: dict[str, bytes] = field(default_factory=dict)
+    """Path relative to out/ -> content."""
+    metrics_rows: list[dict[str, Any]] = field(default_factory=list)
+    flag_rows: list[dict[str, Any]] = field(default_factory=list)
+    shift_rows: list[dict[str, Any]] = field(default_factory=list)
+    review_state: str = "not needed"
+    fingerprint: str = ""
+    version: int = 0
+    period: tuple[str, str] = ("", "")
+    compliance: float | None = None
+    editions: tuple[str, ...] = ()
+    flags: list[dict[str, Any]] = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class BuildReport:
+    """The result of one build: where it went and what happened to each participant."""
+
+    out_dir: Path
+    build_id: str
+    outcomes: tuple[ParticipantOutcome, ...]
+    warnings: tuple[Any, ...] = ()
+
+    @property
+    def failed(self) -> list[ParticipantOutcome]:
+        return [o for o in self.outcomes if o.status == "failed"]
+
+    def counts(self) -> dict[str, int]:
+        out: dict[str, int] = {}
+        for o in self.outcomes:
+            key = "held" if o.status == "built" and o.review_state == "held" else o.status
+            out[key] = out.get(key, 0) + 1
+        return out
+
+
+# ---------------------------------------------------------------------------------------
+# Fingerprints: what a booklet depends on
+
+
+def frame_bytes(df: pd.DataFrame) -> bytes:
+    """Canonical CSV bytes of a frame (for hashing a participant's data slice)."""
+    buf = io.StringIO()
+    df.to_csv(buf, index=False, lineterminator="\n", date_format="%Y-%m-%dT%H:%M:%S%z")
+    return buf.getvalue().encode("utf-8")
+
+
+def settings_hash(settings: StudySettings) -> str:
+    text = json.dumps(normalised(settings), sort_keys=True, ensure_ascii=False)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def templates_hash(files: Iterable[Path]) -> str:
+    h = hashlib.sha256()
+    for f in sorted(files, key=lambda p: (p.name, str(p))):
+        h.update(f.name.encode() + b"\0" + f.read_bytes() + b"\0")
+    return h.hexdigest()
+
+
+def fingerprint(data: ParticipantData, settings_digest: str, templates_digest: str) -> str:
+    """SHA-256 over one participant's data slice, the settings, the templates and the tool."""
+    h = hashlib.sha256()
+    for part in (data.momentary, data.events, data.questionnaires):
+        h.update(frame_bytes(part))
+    roster = f"{data.participant}|{data.language}|{data.region}|{data.consent}|"
+    roster += f"{data.feedback}|{data.therapist}"
+    for text in (roster, settings_digest, templates_digest, __version__):
+        h.update(text.encode("utf-8") + b"\0")
+    return h.hexdigest()
+
+
+def template_files(project: Path) -> list[Path]:
+    """Every template file that can be used: packaged ones and the project's overrides."""
+    from springback.render.env import template_search_path
+
+    files: list[Path] = []
+    for folder in template_search_path(project / "templates"):
+        files += [p for p in sorted(folder.rglob("*")) if p.is_file()]
+    return files
+
+
+# ---------------------------------------------------------------------------------------
+# Per participant
+
+
+@dataclass(frozen=True)
+class Job:
+    """Everything one participant's work needs, picklable for a worker process."""
+
+    project: Path
+    data: ParticipantData
+    settings: StudySettings
+    fingerprint: str
+    version: int
+    built_at: datetime
+
+
+def run_job(job: Job) -> ParticipantOutcome:
+    """Build one participant; never raises (a failure is an outcome with the reason)."""
+    try:
+        return _run_job(job)
+    except Exception as exc:  # one participant's failure never stops the others
+        return ParticipantOutcome(
+            participant=job.data.participant,
+            status="failed",
+            reason=f"{type(exc).__name__}: {exc}",
+            fingerprint=job.fingerprint,
+            version=job.version,
+        )
+
+
+def _run_job(job: Job) -> ParticipantOutcome:
+    from springback import metrics, safety
+    from springback.metrics.shifts import shift_rows
+    from springback.review import review_state
+
+    data, settings = job.data, job.settings
+    pid = data.participant
+    base = {"participant": pid, "fingerprint": job.fingerprint, "version": job.version,
+            "period": _period(data)}
+    if data.consent != "yes":
+        return ParticipantOutcome(status="withdrawn", reason="consent withdrawn", **base)
+    results = metrics.compute(data, settings)
+    flags = safety.evaluate(data, results, settings)
+    state = review_state(job.project, pid, job.fingerprint, flags)
+    common = dict(
+        metrics_rows=metrics.results_rows(results),
+        flag_rows=safety.flags_rows(flags),
+        shift_rows=shift_rows(results),
+        review_state=state,
+        compliance=_compliance(results),
+        flags=[_flag_dict(f) for f in flags],
+        **base,
+    )
+    if not data.feedback:
+        return ParticipantOutcome(status="no feedback", reason="no feedback wanted", **common)
+    if not results.enough_data:
+        return ParticipantOutcome(status="not enough data", reason=results.reason, **common)
+    editions = tuple(
+        e for e in settings.booklet.editions if e == "participant" or data.therapist
+    )
+    files = render_booklets(job, results, flags, state, editions)
+    return ParticipantOutcome(status="built", files=files, editions=editions, **common)
+
+
+def render_booklets(
+    job: Job, results: Any, flags: list[Any], state: str, editions: Iterable[str]
+) -> dict[str, bytes]:
+    """Render the chosen editions of one participant to HTML and PDF bytes."""
+    from springback import charts, render
+    from springback.i18n import translations
+
+    data, settings = job.data, job.settings
+    language = data.language
+    env = render.make_environment(job.project / "templates", language)
+    gettext = translations(language).gettext
+    chart_set = charts.make_charts(data, results, settings, language, gettext)
+    files: dict[str, bytes] = {}
+    folder = f"{BOOKLETS}/{data.participant}"
+    for edition in editions:
+        context = render.build_context(
+            settings=settings, data=data, results=results, flags=flags, review_state=state,
+            charts=chart_set, edition=edition, language=language, version=job.version,
+            built_at=job.built_at, tool_version=__version__,
+        )
+        html = render.render_edition(env, context, edition)
+        if "html" in settings.booklet.formats:
+            files[f"{folder}/{edition}.html"] = html.encode("utf-8")
+        if "pdf" in settings.booklet.formats:
+            files[f"{folder}/{edition}.pdf"] = render.html_to_pdf(html, base_url=job.project)
+    return files
+
+
+def _period(data: ParticipantData) -> tuple[str, str]:
+    days = data.momentary["study_day"] if len(data.momentary) else pd.Series([], dtype=object)
+    if len(days) == 0:
+        return ("", "")
+    return (pd.Timestamp(days.min()).date().isoformat(), pd.Timestamp(days.max()).date().isoformat())
+
+
+def _compliance(results: Any) -> float | None:
+    try:
+        est = results.estimate("compliance")
+    except KeyError:
+        return None
+    return est.value if est.ok else None
+
+
+def _flag_dict(flag: Any) -> dict[str, Any]:
+    return {k: getattr(flag, k) for k in ("rule", "action", "value", "when", "detail")}
+
+
+# ---------------------------------------------------------------------------------------
+# The recipe
+
+
+Progress = Callable[[str, str], None]
+"""Called as progress(participant, stage) by the orchestrator (stage 'done' at the end)."""
+
+
+def build(
+    project: Path,
+    *,
+    out: Path | None = None,
+    participants: list[str] | None = None,
+    jobs: int | None = None,
+    force: bool = False,
+    backend: str = "local",
+    scheduler: str | None = None,
+    progress: Progress | None = None,
+) -> BuildReport:
+    """Build every selected participant's booklets, the study tables and the overview."""
+    from springback import archive, intake
+    from springback.fsutil import BuildLock
+    from springback.runner import run_jobs
+
+    project = Path(project).resolve()
+    study = intake.load_study(project)
+    settings = study.settings
+    out_dir = (project / (out or settings.output.out_dir)).resolve()
+    archive_dir = project / settings.output.archive_dir
+    with BuildLock(archive_dir):
+        started = archive.build_time()
+        selected = _select(study, participants)
+        tmpl = template_files(project)
+        s_hash, t_hash = settings_hash(settings), templates_hash(tmpl)
+        jobs_list = []
+        for pid in selected:
+            data = study.slice(pid)
+            fp = fingerprint(data, s_hash, t_hash)
+            version = archive.booklet_version(project, pid, fp)
+            jobs_list.append(Job(project, data, settings, fp, version, started))
+        report = progress or (lambda _p, _s: None)
+        report("", f"start:{len(jobs_list)}")
+        outcomes = run_jobs(
+            jobs_list, run_job, jobs_n=jobs, backend=backend, scheduler=scheduler,
+            progress=progress,
+        )
+        report("", "writing the overview, tables and archive")
+        tables = study_tables(study, outcomes)
+        overview = render_overview(project, study, outcomes, started)
+        files = {**tables, "index.html": overview.encode("utf-8")}
+        for o in outcomes:
+            files.update(o.files)
+        ended = archive.build_time(now=True)
+        build_id = archive.write_build(
+            project, out_dir, files, study=study, outcomes=outcomes, started=started,
+            ended=ended, templates=tmpl,
+        )
+    return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
+
+
+def _select(study: Study, participants: list[str] | None) -> list[str]:
+    everyone = study.participants()
+    if not participants:
+        return everyone
+    unknown = [p for p in participants if p not in everyone]
+    if unknown:
+        from springback.errors import DataError, error
+
+        raise DataError(
+            [error("--participant", f"participant '{p}' is not in the roster",
+                   expected="one of: " + ", ".join(everyone), code="unknown-participant")
+             for p in unknown]
+        )
+    return sorted(set(participants))
+
+
+def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[str, bytes]:
+    """The study-wide CSV tables: metrics, flags, shifts, quality, set-aside rows."""
+    from springback.metrics.results import METRICS_CSV_COLUMNS
+
+    outcomes = list(outcomes)
+    metrics_rows = [r for o in outcomes for r in o.metrics_rows]
+    flag_rows = [r for o in outcomes for r in o.flag_rows]
+    shift_rows = [r for o in outcomes for r in o.shift_rows]
+    tables = {
+        "metrics.csv": pd.DataFrame(metrics_rows, columns=list(METRICS_CSV_COLUMNS)),
+        "flags.csv": pd.DataFrame(
+            flag_rows, columns=["participant", "rule", "action", "value", "when"]
+        ),
+        "shifts.csv": pd.DataFrame(
+            shift_rows, columns=["participant", "date", "direction", "size", "method"]
+        ),
+        "quality.csv": study.quality,
+        "set_aside.csv": study.set_aside,
+    }
+    return {name: frame_bytes(df) for name, df in tables.items()}
+
+
+def render_overview(
+    project: Path, study: Study, outcomes: Iterable[ParticipantOutcome], built_at: datetime
+) -> str:
+    """The research team's overview page (English; the team's working language)."""
+    from springback import render
+
+    env = render.make_environment(project / "templates", "en")
+    rows = [
+        {
+            "participant": o.participant,
+            "status": o.status,
+            "reason": o.reason,
+            "compliance": o.compliance,
+            "flags": o.flags,
+            "review_state": o.review_state,
+            "editions": [f"{BOOKLETS}/{o.participant}/{e}" for e in o.editions],
+            "formats": list(study.settings.booklet.formats),
+            "version": o.version,
+            "period": o.period,
+        }
+        for o in outcomes
+    ]
+    return render.render_overview(env, rows, study.settings, built_at)
