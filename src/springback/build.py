@@ -209,7 +209,8 @@ def _period(data: ParticipantData) -> tuple[str, str]:
     days = data.momentary["study_day"] if len(data.momentary) else pd.Series([], dtype=object)
     if len(days) == 0:
         return ("", "")
-    return (pd.Timestamp(days.min()).date().isoformat(), pd.Timestamp(days.max()).date().isoformat())
+    first, last = pd.Timestamp(days.min()), pd.Timestamp(days.max())
+    return (first.date().isoformat(), last.date().isoformat())
 
 
 def _compliance(results: Any) -> float | None:

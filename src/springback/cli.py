@@ -114,11 +114,13 @@ def _progress_printer(quiet: bool) -> Any:
               help="Output folder (default: out/ inside the project).")
 @click.option("--participant", "participants", multiple=True, metavar="ID",
               help="Build only this participant (repeatable).")
-@click.option("--jobs", "-j", type=click.IntRange(min=1), help="Parallel processes (default: all cores).")
+@click.option("--jobs", "-j", type=click.IntRange(min=1),
+              help="Parallel processes (default: all cores).")
 @click.option("--force", is_flag=True, help="Rebuild everyone, also unchanged participants.")
 @click.option("--backend", type=click.Choice(["local", "dask"]), default="local",
               show_default=True, help="Where per-participant work runs.")
-@click.option("--scheduler", metavar="ADDRESS", help="Dask scheduler address (with --backend dask).")
+@click.option("--scheduler", metavar="ADDRESS",
+              help="Dask scheduler address (with --backend dask).")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar.")
 @reports_errors
 def build(project: Path, out_dir: Path | None, participants: tuple[str, ...], jobs: int | None,

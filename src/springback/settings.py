@@ -7,6 +7,7 @@ a new `study.toml`, and errors quote the key. Paths are relative to the project 
 from __future__ import annotations
 
 import difflib
+import itertools
 import tomllib
 from pathlib import Path
 from typing import Any, Literal
@@ -116,7 +117,8 @@ class DataFiles(Section):
     )
     layout: Literal["wide", "long"] = Field(
         "wide",
-        description="'wide': one column per item; 'long': one row per item with item/value columns.",
+        description="'wide': one column per item; 'long': one row per item with item/value "
+        "columns.",
     )
     sheet: str | None = Field(None, description="Excel only: the sheet to read (default: first).")
     on_bad_rows: Literal["error", "set aside"] = Field(
@@ -229,7 +231,8 @@ class Metrics(Section):
     )
     min_pairs: int = Field(30, ge=3, description="Consecutive pairs needed for carry-over.")
     window: float = Field(
-        0.5, gt=0, lt=1, description="Rolling window for early-warning indicators, share of prompts."
+        0.5, gt=0, lt=1,
+        description="Rolling window for early-warning indicators, share of prompts."
     )
     windows: list[float] = Field(
         default_factory=lambda: [0.3, 0.4, 0.5, 0.6, 0.7],
@@ -372,7 +375,8 @@ class StudySettings(Section):
         """Scale range of an item, or of a composite (its items' common range)."""
         if variable in self.items:
             return self.items[variable].scale
-        lows, highs = zip(*(self.items[i].scale for i in self.composites[variable].items))
+        scales = [self.items[i].scale for i in self.composites[variable].items]
+        lows, highs = [s[0] for s in scales], [s[1] for s in scales]
         return (min(lows), max(highs))
 
     def label_of(self, variable: str, language: str) -> str:
@@ -512,7 +516,7 @@ def cross_checks(s: StudySettings) -> list[Problem]:
             )
     for name, q in s.questionnaires.items():
         bounds = [b[0] for b in q.bands]
-        if any(b2 <= b1 for b1, b2 in zip(bounds, bounds[1:])):
+        if any(b2 <= b1 for b1, b2 in itertools.pairwise(bounds)):
             out.append(
                 error(where + f"questionnaires.{name}.bands",
                       "band lower bounds must increase",

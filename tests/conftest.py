@@ -1,0 +1,58 @@
+"""Shared fixtures: the example study, copied and built once per test session.
+
+With pytest-xdist the build is shared between workers through a lock file, so the whole suite
+builds the example only once.
+"""
+
+from __future__ import annotations
+
+import fcntl
+import shutil
+from pathlib import Path
+
+import pytest
+
+REPO = Path(__file__).resolve().parents[1]
+EXAMPLE = REPO / "example_project"
+SHARED_DATA = REPO.parent / "shared" / "data"
+
+
+def copy_example(target: Path) -> Path:
+    """Copy the example study's inputs (not its outputs) into `target`."""
+    target.mkdir(parents=True, exist_ok=True)
+    shutil.copy2(EXAMPLE / "study.toml", target / "study.toml")
+    shutil.copytree(EXAMPLE / "data", target / "data", dirs_exist_ok=True)
+    if (EXAMPLE / "templates").is_dir():
+        shutil.copytree(EXAMPLE / "templates", target / "templates", dirs_exist_ok=True)
+    return target
+
+
+@pytest.fixture
+def example_copy(tmp_path: Path) -> Path:
+    """A fresh, unbuilt copy of the example study in a temporary folder."""
+    return copy_example(tmp_path / "study")
+
+
+@pytest.fixture(scope="session")
+def built_example(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A copy of the example study, built once for the whole session (read-only for tests)."""
+    from springback.build import build
+
+    shared = tmp_path_factory.getbasetemp().parent / "springback-built-example"
+    shared.mkdir(parents=True, exist_ok=True)
+    lock = shared / ".lock"
+    project = shared / "study"
+    done = shared / ".done"
+    with lock.open("w") as handle:
+        fcntl.flock(handle, fcntl.LOCK_EX)
+        try:
+            if not done.exists():
+                if project.exists():
+                    shutil.rmtree(project)
+                copy_example(project)
+                report = build(project, jobs=2)
+                assert not report.failed, [(o.participant, o.reason) for o in report.failed]
+                done.write_text(report.build_id)
+        finally:
+            fcntl.flock(handle, fcntl.LOCK_UN)
+    return project
