@@ -1,0 +1,25 @@
+"""Commands beyond the build: translation upkeep (and, where present, sending)."""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from springback.cli import reports_errors
+
+
+def register(main: click.Group) -> None:
+    """Attach these commands to the main group."""
+    main.add_command(translations)
+
+
+@click.command()
+@click.option("--update", is_flag=True,
+              help="Re-extract messages from the templates and code and update the catalogues.")
+@reports_errors
+def translations(update: bool) -> None:
+    """Report untranslated or fuzzy messages per language (exit 1 if any)."""
+    from springback.i18n import run_translations
+
+    sys.exit(run_translations(update))
