@@ -100,6 +100,12 @@ class Columns(Section):
     intensity: str = Field("intensity", description="Events column: how upsetting (number).")
     questionnaire: str = Field("questionnaire", description="Questionnaires column: which one.")
     score: str = Field("score", description="Questionnaires column: the total score.")
+    timezone: str = Field(
+        "timezone",
+        description="Optional column giving each row's time zone for times written without "
+        "one: an IANA name (Europe/Paris), an offset (+03, +02:00), a fixed-offset abbreviation "
+        "(CET, CEST, EET, MSK) or a time ending in one (a device's own clock).",
+    )
 
 
 class DataFiles(Section):
@@ -125,6 +131,17 @@ class DataFiles(Section):
         "error",
         description="What to do with rows that cannot be used: 'error' stops the build; "
         "'set aside' goes on and lists each row in the quality report.",
+    )
+    missing_values: list[str] = Field(
+        default_factory=lambda: ["", "NA", "N/A", "NaN", "nan", "NULL", "null", "."],
+        description="Cell texts that mean 'no answer' (compared after trimming spaces), e.g. "
+        "add 'Expired' or '-99' if the export writes those.",
+    )
+    timestamp_format: str | None = Field(
+        None,
+        description="Pattern for times that are not ISO 8601, e.g. '%d/%m/%Y %H:%M' "
+        "(Python strftime codes). Default: ISO 8601 (2024-03-04 09:15, with an optional "
+        "offset or zone after it).",
     )
     late_after_minutes: float = Field(
         60.0, gt=0, description="An answer this long after its prompt is reported as late."
