@@ -1,1 +1,33 @@
-"""Resilience metrics: pure functions from one participant's data to frozen results."""
+"""Resilience metrics: pure functions from one participant's data to frozen results.
+
+`compute` is the recipe: each family is one line, in the order booklets present them.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from springback.metrics import descriptives
+from springback.metrics._series import prepare
+from springback.metrics.results import Family, ParticipantResults, to_rows
+from springback.model import ParticipantData
+from springback.settings import StudySettings
+
+__all__ = ["compute", "results_rows"]
+
+
+def compute(data: ParticipantData, settings: StudySettings) -> ParticipantResults:
+    """Compute every metric family for one participant."""
+    series = prepare(data, settings)
+    enough = series.n >= settings.booklet.min_prompts
+    reason = "" if enough else (
+        f"{series.n} answered prompts; a booklet needs at least {settings.booklet.min_prompts}")
+    families: dict[str, Family] = {}
+    families["descriptives"] = descriptives.describe(series, data, settings)
+    return ParticipantResults(participant=data.participant, variable=series.variable,
+                              families=families, enough_data=enough, reason=reason)
+
+
+def results_rows(results: ParticipantResults) -> list[dict[str, Any]]:
+    """Rows of out/metrics.csv for one participant (missing values empty, reason in note)."""
+    return to_rows(results)

@@ -1,0 +1,170 @@
+"""Level and variability: mean, SD, relative variability, RMSSD, day-level variance parts.
+
+Sources: Mestdagh et al. 2018, "Sidelining the mean: the relative variability index as a
+generic mean-corrected variability measure for bounded variables", Psychological Methods
+23(4):690-707 (relative variability); Jahng, Wood & Trull 2008, "Analysis of affective
+instability in ecological momentary assessment", Psychological Methods 13(4):354-375 (MSSD
+on successive pairs and its time-adjusted form); von Neumann et al. 1941 (MSSD).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+
+from springback.metrics._series import Series
+from springback.metrics.results import Estimate, Family
+from springback.model import ParticipantData
+from springback.settings import StudySettings
+
+
+def max_sd(mean: float, n: int, low: float, high: float) -> float:
+    """Largest sample SD (n - 1 denominator) n ratings on [low, high] with this mean can have.
+
+    The sum of squared deviations is convex, so its maximum over the box with a fixed sum lies
+    at a vertex of that polytope: k ratings at the top, n - k - 1 at the bottom and at most one
+    rating r in between (Mestdagh et al. 2018, the maximum behind the relative variability index).
+    """
+    if n < 2 or not low <= mean <= high:
+        return float("nan")
+    width = high - low
+    k = min(math.floor(n * (mean - low) / width + 1e-9), n - 1)
+    r = n * mean - k * high - (n - k - 1) * low
+    r = min(max(r, low), high)
+    ss = k * (high - mean) ** 2 + (n - k - 1) * (low - mean) ** 2 + (r - mean) ** 2
+    return math.sqrt(ss / (n - 1))
+
+
+def relative_variability(x: np.ndarray, low: float, high: float) -> float:
+    """SD divided by the largest SD possible for this mean and n on the scale (0..1)."""
+    x = np.asarray(x, dtype=float)
+    if len(x) < 2:
+        return float("nan")
+    top = max_sd(float(x.mean()), len(x), low, high)
+    if not top > 0:
+        return float("nan")
+    return float(x.std(ddof=1) / top)
+
+
+def successive_differences(series: Series) -> tuple[np.ndarray, np.ndarray]:
+    """Differences x[i+1] - x[i] and their gaps in hours, over admissible pairs only."""
+    ok = series.admissible
+    return np.diff(series.value)[ok], series.gaps[ok]
+
+
+def mssd(diffs: np.ndarray, gaps: np.ndarray, lam: float = 0.0) -> float:
+    """Mean squared successive difference; with lam > 0 each difference is time-adjusted.
+
+    Jahng, Wood & Trull 2008: d_i / (dt_i / median dt)^lam; lam = 0 gives the plain MSSD.
+    The mean runs over the valid pairs (not n_obs - 1).
+    """
+    if len(diffs) == 0:
+        return float("nan")
+    if lam:
+        diffs = diffs / (gaps / np.median(gaps)) ** lam
+    return float(np.mean(diffs * diffs))
+
+
+def variance_parts(values: np.ndarray, days: np.ndarray) -> tuple[float, float, int]:
+    """Pooled within-day variance, variance of day means, and the number of days."""
+    frame = pd.DataFrame({"d": days, "x": values})
+    by_day = frame.groupby("d")["x"]
+    means, counts = by_day.transform("mean").to_numpy(), by_day.size()
+    n_days = len(counts)
+    dof = len(values) - n_days
+    within = float(((values - means) ** 2).sum() / dof) if dof > 0 else float("nan")
+    day_means = by_day.mean().to_numpy()
+    between = float(np.var(day_means, ddof=1)) if n_days > 1 else float("nan")
+    return within, between, n_days
+
+
+def scheduled_prompts(data: ParticipantData, settings: StudySettings, days: int) -> float | None:
+    """Prompts sent to the participant: from the quality report, else prompts_per_day x days."""
+    quality = data.quality
+    if "scheduled" in quality.columns and len(quality):
+        value = pd.to_numeric(quality["scheduled"], errors="coerce").iloc[0]
+        if pd.notna(value) and value > 0:
+            return float(value)
+    if settings.study.prompts_per_day:
+        return float(settings.study.prompts_per_day * days)
+    return None
+
+
+def describe(series: Series, data: ParticipantData, settings: StudySettings) -> Family:
+    """Compute the descriptives family for the booklet's variable."""
+    m = settings.metrics
+    x, n = series.value, series.n
+    low, high = series.scale
+    days = int(series.day_index[-1] + 1) if n else 0
+    scheduled = scheduled_prompts(data, settings, days)
+    est: dict[str, Estimate] = {"n_answered": Estimate(float(n), n=n, note="answered prompts")}
+    if scheduled:
+        est["compliance"] = Estimate(min(n / scheduled, 1.0), n=int(scheduled),
+                                     note=f"{n} of {scheduled:g} prompts answered")
+    else:
+        est["compliance"] = Estimate.missing(
+            "the number of prompts sent is not known (set study.prompts_per_day or give a "
+            "'scheduled' column)", n=n)
+    if n >= 2:
+        est["mean"] = Estimate(float(x.mean()), n=n)
+        est["sd"] = Estimate(float(x.std(ddof=1)), n=n, note="n - 1 denominator")
+        rvi = relative_variability(x, low, high)
+        est["relative_variability"] = (
+            Estimate(rvi, n=n, note=f"SD / largest SD possible for this mean on {low:g}-{high:g}")
+            if math.isfinite(rvi) else
+            Estimate.missing("every answer was at one end of the scale, so variability "
+                             "relative to the scale is undefined", n=n))
+    else:
+        why = f"needs at least 2 answered prompts; there were {n}"
+        for name in ("mean", "sd", "relative_variability"):
+            est[name] = Estimate.missing(why, n=n)
+    if n == 1:
+        est["mean"] = Estimate(float(x[0]), n=1)
+    diffs, gaps = successive_differences(series)
+    pairs = len(diffs)
+    rule = f"pairs on the same study day at most {m.max_gap_hours:g} h apart"
+    if pairs >= m.min_pairs:
+        est["rmssd"] = Estimate(math.sqrt(mssd(diffs, gaps)), n=pairs, note=rule)
+        est["ta_mssd"] = Estimate(mssd(diffs, gaps, m.ta_mssd_lambda), n=pairs,
+                                  note=f"time-adjusted MSSD, lambda {m.ta_mssd_lambda:g}; {rule}")
+    else:
+        why = f"needs at least {m.min_pairs} consecutive pairs ({rule}); there were {pairs}"
+        est["rmssd"] = Estimate.missing(why, n=pairs)
+        est["ta_mssd"] = Estimate.missing(why, n=pairs)
+    within, between, n_days = variance_parts(x, series.day_index)
+    est["within_day_variance"] = (
+        Estimate(within, n=n, note="pooled over days") if math.isfinite(within) else
+        Estimate.missing("needs a day with at least two answers", n=n))
+    est["between_day_variance"] = (
+        Estimate(between, n=n_days, note="variance of the daily means") if math.isfinite(between)
+        else Estimate.missing("needs answers on at least two days", n=n_days))
+    typical = np.percentile(x, [25, 75]) if n else np.array([np.nan, np.nan])
+    return Family(
+        estimates=est,
+        tables={"series": pd.DataFrame({"local_time": series.local_time, "value": x}),
+                "daily": _daily(series, settings), "diurnal": _diurnal(series)},
+        params={"typical_low": float(typical[0]), "typical_high": float(typical[1]),
+                "scale_low": low, "scale_high": high,
+                "higher_is_worse": series.higher_is_worse, "variable": series.variable,
+                "pair_rule": rule, "ta_mssd_lambda": m.ta_mssd_lambda},
+    )
+
+
+def _daily(series: Series, settings: StudySettings) -> pd.DataFrame:
+    """Per study day: mean, SD, answered prompts and prompts scheduled (NaN if unknown)."""
+    frame = pd.DataFrame({"study_day": series.study_day, "x": series.value})
+    g = frame.groupby("study_day", sort=True)["x"]
+    out = pd.DataFrame({"mean": g.mean(), "sd": g.std(ddof=1), "n": g.size()}).reset_index()
+    per_day = settings.study.prompts_per_day
+    out["scheduled"] = float(per_day) if per_day else float("nan")
+    return out
+
+
+def _diurnal(series: Series) -> pd.DataFrame:
+    """Mean rating per local clock hour (0..23) with the number of answers."""
+    hours = pd.DatetimeIndex(series.local_time).hour.to_numpy(dtype=int) if series.n else []
+    frame = pd.DataFrame({"hour": hours, "x": series.value})
+    g = frame.groupby("hour", sort=True)["x"]
+    return pd.DataFrame({"mean": g.mean(), "n": g.size()}).reset_index()
