@@ -1,0 +1,225 @@
+"""Data intake: read a project folder's files, check them in one pass, return a `Study`.
+
+`load_study` raises with every problem found; `check_study` never raises for a user's mistake
+and returns the problems instead. Input files are only ever opened for reading.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from springback.errors import DataError, Problem, SettingsError, error, warning
+from springback.intake.events import event_frame, read_events
+from springback.intake.momentary import Prompts, read_momentary
+from springback.intake.problems import Sink
+from springback.intake.quality import momentary_frame, quality_frame, quality_table
+from springback.intake.questionnaires import questionnaire_frame, read_questionnaires
+from springback.intake.readers import Table, read_table
+from springback.intake.roster import read_roster
+from springback.model import EVENT_COLUMNS, QUESTIONNAIRE_COLUMNS, Study
+from springback.settings import SETTINGS_FILE, StudySettings, load_settings
+
+__all__ = ["CheckReport", "check_study", "load_study", "quality_table", "read_prompts"]
+
+
+@dataclass(frozen=True)
+class CheckReport:
+    """What `check` found: every problem, and the loaded study when there was no error."""
+
+    problems: tuple[Problem, ...]
+    study: Study | None
+    strict: bool = False
+
+    @property
+    def errors(self) -> tuple[Problem, ...]:
+        return tuple(p for p in self.problems if p.is_error)
+
+    @property
+    def warnings(self) -> tuple[Problem, ...]:
+        return tuple(p for p in self.problems if not p.is_error)
+
+    @property
+    def ok(self) -> bool:
+        """No errors (and, in strict mode, no warnings either)."""
+        return not self.errors and not (self.strict and self.warnings)
+
+
+def load_study(project: Path, *, strict: bool = False) -> Study:
+    """Read and check a project folder; raise with every problem if any is an error."""
+    study, problems, settings_only = _load(Path(project))
+    fatal = any(p.is_error for p in problems) or (strict and problems)
+    if fatal or study is None:
+        raise (SettingsError if settings_only else DataError)(problems)
+    return study
+
+
+def check_study(project: Path, *, strict: bool = False) -> CheckReport:
+    """Check a project folder and return every problem found; never raises for user mistakes."""
+    try:
+        study, problems, _ = _load(Path(project))
+    except SettingsError as exc:
+        return CheckReport(tuple(exc.problems), None, strict)
+    if any(p.is_error for p in problems):
+        study = None
+    return CheckReport(tuple(problems), study, strict)
+
+
+def read_prompts(project: Path) -> pd.DataFrame:
+    """Every row of the momentary file with items as numbers, before any row is resolved.
+
+    For audits and published counts (missing cells, repeated prompts); `load_study` is the
+    checked path. Columns: source_row, participant, then one float column per item key.
+    """
+    project = Path(project)
+    settings, _ = load_settings(project)
+    table = read_table(_path(project, settings.data.momentary),
+                       settings.data.momentary.as_posix(), sheet=settings.data.sheet)
+    sink = Sink("set aside")
+    got = read_momentary(table, settings, sink)
+    if got is None:
+        raise DataError(sink.problems)
+    from springback.intake.readers import as_number, as_text
+
+    missing = settings.data.missing_values
+    cols = settings.data.columns
+    out = pd.DataFrame({"source_row": table.rows,
+                        "participant": as_text(table.frame[cols.participant], missing)})
+    if settings.data.layout == "wide":
+        for key, item in settings.items.items():
+            out[key] = as_number(table.frame[item.column or key], missing)[0].to_numpy()
+    return out
+
+
+def _path(project: Path, path: Path) -> Path:
+    return path if path.is_absolute() else project / path
+
+
+def _load(project: Path) -> tuple[Study | None, list[Problem], bool]:
+    """Load everything; the problems found; whether only settings problems stopped it."""
+    settings, settings_problems = load_settings(project)
+    sink = Sink(settings.data.on_bad_rows)
+    sink.add(settings_problems)
+    data = settings.data
+    read: list[Path] = [(project / SETTINGS_FILE).resolve()]
+
+    def table(path: Path | None, key: str) -> Table | None:
+        if path is None:
+            return None
+        full = _path(project, path)
+        optional = key in ("events", "questionnaires") and key not in data.model_fields_set
+        if optional and not full.exists():
+            return None
+        try:
+            got = read_table(full, path.as_posix(), sheet=data.sheet)
+        except DataError as exc:
+            sink.add(exc.problems)
+            return None
+        read.append(full.resolve())
+        sink.add(list(got.notes))
+        if got.frame.empty and key in ("momentary", "participants"):
+            sink.add(error(got.where, "the file has a header but no rows",
+                           fix="export the data again", code="no-rows"))
+            return None
+        return got
+
+    roster_table = table(data.participants, "participants")
+    momentary_table = table(data.momentary, "momentary")
+    events_table = table(data.events, "events")
+    questionnaire_table = table(data.questionnaires, "questionnaires")
+    roster_problems: list[Problem] = []
+    roster = read_roster(roster_table, settings, roster_problems) if roster_table else None
+    sink.add(roster_problems)
+    prompts = read_momentary(momentary_table, settings, sink) if momentary_table else None
+    events = read_events(events_table, settings, sink) if events_table else None
+    scores = read_questionnaires(questionnaire_table, settings, sink) \
+        if questionnaire_table else None
+    if roster is None or prompts is None or momentary_table is None:
+        return None, sink.problems, False
+    consenting = set(roster.loc[roster["consent"] == "yes", "participant"])
+    withdrawn = set(roster.loc[roster["consent"] == "withdrawn", "participant"])
+    roster_where = data.participants.as_posix()
+    kept = _consent_rules(momentary_table.where, prompts.frame, consenting, withdrawn,
+                          roster_where, settings, sink)
+    if events_table is not None and events is not None:
+        events = _consent_rules(events_table.where, events, consenting, withdrawn,
+                                roster_where, settings, sink)
+    if questionnaire_table is not None and scores is not None:
+        scores = _consent_rules(questionnaire_table.where, scores, consenting, withdrawn,
+                                roster_where, settings, sink)
+    momentary = momentary_frame(kept, settings)
+    _late_and_absent(momentary_table.where, kept, momentary, roster, roster_where, settings, sink)
+    zone = settings.study.timezone
+    events_out = event_frame(events, zone) if events is not None else _empty(EVENT_COLUMNS)
+    scores_out = questionnaire_frame(scores, zone) if scores is not None else \
+        _empty(QUESTIONNAIRE_COLUMNS)
+    set_aside = sink.set_aside_frame()
+    late = kept[kept["answered"]].groupby("participant")["late"].sum()
+    quality = quality_frame(roster, momentary, late, _schedule(prompts, settings), set_aside,
+                            settings)
+    study = Study(
+        root=project.resolve(), settings=settings,
+        roster=roster.drop(columns="_row").sort_values("participant").reset_index(drop=True),
+        momentary=momentary, events=events_out, questionnaires=scores_out,
+        set_aside=set_aside, quality=quality,
+        warnings=tuple(p for p in sink.problems if not p.is_error),
+        input_files=tuple(read),
+    )
+    return study, sink.problems, False
+
+
+def _schedule(prompts: Prompts, settings: StudySettings) -> pd.Series | None:
+    return prompts.scheduled if prompts.from_rows else None
+
+
+def _empty(columns: tuple[str, ...]) -> pd.DataFrame:
+    return pd.DataFrame({c: pd.Series(dtype=object) for c in columns})
+
+
+def _consent_rules(where: str, frame: pd.DataFrame, consenting: set[str], withdrawn: set[str],
+                   roster_where: str, settings: StudySettings, sink: Sink) -> pd.DataFrame:
+    """Rows of people not on the roster are errors; withdrawn people's rows are set aside."""
+    column = settings.data.columns.participant
+    who = frame["participant"]
+    stranger = ~who.isin(consenting | withdrawn)
+    for person, rows in frame.loc[stranger, "source_row"].groupby(who[stranger]):
+        sink.add(error(where, f"participant '{person}' is not in the roster (no consent record)",
+                       found=f"{len(rows)} row{'s' if len(rows) > 1 else ''}",
+                       row=int(rows.min()), column=column,
+                       fix=f"add '{person}' to {roster_where} with their consent, or remove "
+                       "their rows", code="not-in-roster"))
+    gone = who.isin(withdrawn)
+    for person, rows in frame.loc[gone, "source_row"].groupby(who[gone]):
+        sink.add(warning(where, f"participant '{person}' withdrew consent; their {len(rows)} "
+                         f"row{'s are' if len(rows) > 1 else ' is'} set aside",
+                         row=int(rows.min()), column=column,
+                         fix="delete their rows from the file to silence this",
+                         code="withdrawn"))
+        sink.aside(where, rows.tolist(), [person] * len(rows), "participant withdrew consent")
+    return frame[who.isin(consenting)].reset_index(drop=True)
+
+
+def _late_and_absent(where: str, prompts: pd.DataFrame, momentary: pd.DataFrame,
+                     roster: pd.DataFrame, roster_where: str, settings: StudySettings,
+                     sink: Sink) -> None:
+    """Warn about late answers and about consenting people with no answers at all."""
+    minutes = settings.data.late_after_minutes
+    late = prompts[prompts["late"]].groupby("participant")["source_row"]
+    for person, rows in late:
+        n = len(rows)
+        sink.add(warning(where, f"{n} answer{'s' if n > 1 else ''} of participant '{person}' "
+                         f"came more than {minutes:g} minutes after the prompt",
+                         row=int(rows.min()),
+                         fix="check the device clocks; late answers are counted in the quality "
+                         "report (late_after_minutes under [data] sets the limit)",
+                         code="late-answers"))
+    has_data = set(momentary["participant"])
+    for person, row in roster.loc[roster["consent"] == "yes", ["participant", "_row"]].itertuples(
+            index=False):
+        if person not in has_data:
+            sink.add(warning(roster_where, f"participant '{person}' has no momentary answers",
+                             row=int(row), column=settings.data.columns.participant,
+                             fix="check that the id is written the same in both files; "
+                             "no booklet is made without data", code="no-data"))

@@ -1,0 +1,304 @@
+"""Validate the momentary file: columns, ratings, times and repeated prompts, in one pass."""
+
+from __future__ import annotations
+
+import difflib
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from springback.errors import error, warning
+from springback.intake.problems import Sink, rows_list
+from springback.intake.readers import Table, as_number, as_text, missing_mask
+from springback.intake.times import ISO_EXAMPLE, parse_times, zone_texts
+from springback.settings import StudySettings
+
+TIME_PROBLEMS = {
+    "bad-time": "the time cannot be read",
+    "unknown-zone": "the time zone is unknown",
+    "nonexistent-time": "this local time does not exist (the clocks were put forward)",
+    "ambiguous-time": "this local time happens twice (the clocks were put back)",
+}
+ZONE_EXPECTED = ("an IANA zone such as Europe/Amsterdam, an offset such as +02:00, or a "
+                 "fixed-offset abbreviation such as CET")
+
+
+@dataclass(frozen=True)
+class Prompts:
+    """Every usable prompt row (answered or not), repeated prompts resolved, before the roster.
+
+    Columns: participant, time (UTC, answer time), scheduled (UTC or NaT), source_row,
+    answered (bool), late (bool), then one float column per item key.
+    """
+
+    frame: pd.DataFrame
+    from_rows: bool
+    """True when the file lists unanswered prompts too, so it is the schedule itself."""
+    scheduled: pd.Series
+    """Distinct prompts per participant in the file (index: participant)."""
+
+
+def read_momentary(table: Table, settings: StudySettings, sink: Sink) -> Prompts | None:
+    """Check and convert the momentary rows; None when required columns are missing."""
+    cols = settings.data.columns
+    item_cols = {k: (v.column or k) for k, v in settings.items.items()}
+    needed = {cols.participant: "participant", cols.timestamp: "timestamp"}
+    if settings.data.layout == "long":
+        needed |= {cols.item: "item", cols.value: "value"}
+        wanted = needed
+    else:
+        wanted = needed | {c: f"items.{k}" for k, c in item_cols.items()}
+    if not _has_columns(table, wanted, sink):
+        return None
+    frame = table.frame
+    raw = pd.DataFrame({"participant": frame[cols.participant],
+                        "timestamp": frame[cols.timestamp]})
+    for name, key in ((cols.scheduled, "scheduled"), (cols.answered, "answered"),
+                      (cols.timezone, "zone")):
+        if name in frame.columns and name not in needed:
+            raw[key] = frame[name]
+    raw["source_row"] = table.rows
+    if settings.data.layout == "long":
+        raw = _widen(table, raw, item_cols, settings, sink)
+    else:
+        for key, c in item_cols.items():
+            raw[key] = frame[c]
+    return _check_rows(table.where, raw, settings, sink)
+
+
+def _has_columns(table: Table, wanted: dict[str, str], sink: Sink) -> bool:
+    present = list(table.frame.columns)
+    ok = True
+    for name, role in wanted.items():
+        if name in present:
+            continue
+        ok = False
+        close = difflib.get_close_matches(name, present, n=1)
+        if role.startswith("items."):
+            how = f'set column = "..." under [{role}] in study.toml'
+        else:
+            how = f'set {role} = "..." under [data.columns] in study.toml'
+        hint = f"did you mean '{close[0]}'? Rename the column, or {how}" if close else \
+            f"add the column, or {how}"
+        sink.add(error(table.where, f"column '{name}' is missing",
+                       expected=f"a column named '{name}' ({role.removeprefix('items.')})",
+                       found="columns " + _names(present), fix=hint, column=name,
+                       code="missing-column"))
+    return ok
+
+
+def _names(names: list[str], limit: int = 8) -> str:
+    shown = ", ".join(f"'{n}'" for n in names[:limit])
+    return shown + (f" and {len(names) - limit} more" if len(names) > limit else "")
+
+
+def _widen(table: Table, raw: pd.DataFrame, item_cols: dict[str, str],
+           settings: StudySettings, sink: Sink) -> pd.DataFrame:
+    """Turn long rows (one per item) into one row per prompt."""
+    cols = settings.data.columns
+    missing = settings.data.missing_values
+    by_column = {c: k for k, c in item_cols.items()}
+    item = as_text(table.frame[cols.item], missing)
+    known = item.isin(list(by_column)).to_numpy()
+    for name, n in item[~known].value_counts(dropna=False).items():
+        label = "(empty)" if pd.isna(name) else f"'{name}'"
+        sink.add(warning(table.where, f"item {label} is not defined in study.toml; its {n} "
+                         "rows are not used", fix="add it under [items] if it should be used",
+                         column=cols.item, code="unknown-item-rows"))
+        rows = table.rows[~known & (item.isna() if pd.isna(name) else item == name).to_numpy()]
+        sink.aside(table.where, rows, as_text(raw["participant"], missing)[~known].fillna(""),
+                   f"item {label} is not defined in study.toml", cols.item)
+    long = raw[known].copy()
+    long["item"] = item[known].map(by_column)
+    long["value"] = table.frame[cols.value][known]
+    keys = [c for c in ("participant", "timestamp", "scheduled") if c in long.columns]
+    text = {c: as_text(long[c], missing).fillna("") for c in keys}
+    joined = list(zip(*text.values(), strict=True))
+    long["_prompt"] = pd.Series(joined, index=long.index).map("\x1f".join)
+    value_text = as_text(long["value"], missing).fillna("")
+    cell = long["_prompt"] + "\x1e" + long["item"]
+    twice = cell.duplicated(keep=False)
+    if twice.any():
+        clash = value_text[twice].groupby(cell[twice]).transform("nunique") > 1
+        for _, group in long[twice][clash.to_numpy()].groupby(cell[twice][clash.to_numpy()]):
+            rows = group["source_row"].tolist()
+            sink.bad_rows(table.where, rows[:1], as_text(group["participant"], missing)[:1]
+                          .fillna("").tolist(), [", ".join(map(str, group["value"].tolist()))],
+                          what=f"{rows_list(rows)} give different values for the same item "
+                          "and prompt", column=cols.value,
+                          expected="one value per participant, time and item",
+                          code="conflicting-rows")
+            sink.aside(table.where, rows[1:], [""] * (len(rows) - 1),
+                       "different values for the same item and prompt", cols.value)
+        long = long[~cell.isin(cell[twice][clash.to_numpy()])]
+    long = long.loc[~cell.loc[long.index].duplicated()]
+    first = long.groupby("_prompt", sort=False).first()
+    wide = long.pivot(index="_prompt", columns="item", values="value")
+    out = first.drop(columns=["item", "value"]).join(wide)
+    out["source_row"] = long.groupby("_prompt", sort=False)["source_row"].min()
+    for key in item_cols:
+        if key not in out.columns:
+            out[key] = np.nan
+    return out.sort_values("source_row").reset_index(drop=True)
+
+
+def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
+                sink: Sink) -> Prompts:
+    missing = settings.data.missing_values
+    cols = settings.data.columns
+    rows = raw["source_row"].to_numpy()
+    participant = as_text(raw["participant"], missing)
+    pid = participant.fillna("").to_numpy()
+    bad = np.zeros(len(raw), bool)
+    out = pd.DataFrame({"participant": participant.fillna("")})
+    given = np.zeros(len(raw), bool)
+    for key, item in settings.items.items():
+        column = item.column or key
+        number, wrong = as_number(raw[key], missing)
+        given |= ~missing_mask(raw[key], missing).to_numpy()
+        low, high = item.scale
+        scale = f"a number from {low:g} to {high:g}"
+        w = wrong.to_numpy()
+        sink.bad_rows(where, rows[w], pid[w], [f"'{v}'" for v in raw[key][w]],
+                      what="not a number", column=column, expected=scale + " or an empty cell",
+                      fix="enter the rating as a number; texts that mean 'no answer' go in "
+                      "missing_values under [data]",
+                      code="not-a-number")
+        outside = ((number < low) | (number > high)).to_numpy()
+        sink.bad_rows(where, rows[outside], pid[outside],
+                      [f"{v:g}" for v in number[outside]], what="value outside the item's scale",
+                      column=column, expected=scale,
+                      fix="correct the value, or the item's scale in study.toml",
+                      code="value-out-of-scale")
+        bad |= w | outside
+        out[key] = number.to_numpy()
+    nobody = participant.isna().to_numpy() & given
+    sink.bad_rows(where, rows[nobody], pid[nobody], [""] * int(nobody.sum()),
+                  what="the participant id is missing", column=cols.participant,
+                  expected="an id from the roster", code="missing-participant")
+    bad |= participant.isna().to_numpy()
+    zones = zone_texts(raw["zone"]) if "zone" in raw.columns else None
+    times = {}
+    for key in ("timestamp", "scheduled", "answered"):
+        if key in raw.columns:
+            gone = missing_mask(raw[key], missing)
+            times[key] = (parse_times(raw[key], study_zone=settings.study.timezone,
+                                      row_zones=zones, fmt=settings.data.timestamp_format,
+                                      missing=gone), gone.to_numpy())
+    for key, (parsed, _gone) in times.items():
+        name = getattr(cols, key)
+        for code, what in TIME_PROBLEMS.items():
+            hit = given & ~bad & (parsed.problem == code).to_numpy()
+            found = [f"'{v}'" + (f" in {z}" if code != "bad-time" else "")
+                     for v, z in zip(raw[key][hit], parsed.zone[hit], strict=True)]
+            sink.bad_rows(where, rows[hit], pid[hit], found, what=what, column=name,
+                          expected=_expected(code, settings.data.timestamp_format),
+                          fix=_time_fix(code), code=code)
+            bad |= hit
+    stamp, stamp_gone = times["timestamp"]
+    answer = stamp.utc
+    if "answered" in times:
+        answer = times["answered"][0].utc.fillna(stamp.utc)
+        stamp_gone = stamp_gone & times["answered"][1]
+    no_time = given & ~bad & stamp_gone
+    sink.bad_rows(where, rows[no_time], pid[no_time], [""] * int(no_time.sum()),
+                  what="the time is missing", column=cols.timestamp,
+                  expected="when the prompt was answered", code="missing-time")
+    bad |= no_time
+    out["time"] = answer.to_numpy()
+    if "scheduled" in times:
+        out["scheduled"] = times["scheduled"][0].utc.to_numpy()
+    elif "answered" in times:
+        out["scheduled"] = stamp.utc.to_numpy()
+    else:
+        out["scheduled"] = pd.Series(pd.NaT, index=out.index, dtype="datetime64[ns, UTC]")
+    out["source_row"] = rows
+    out["answered"] = given
+    key_col = "scheduled" if "scheduled" in raw.columns else "timestamp"
+    key_text = as_text(raw[key_col], missing)
+    out["_key"] = key_text.fillna("row " + pd.Series(rows.astype(str), index=raw.index))
+    keep = ~bad & (participant.notna().to_numpy())
+    named = out[participant.notna().to_numpy()]
+    scheduled = named.drop_duplicates(["participant", "_key"]).groupby("participant").size()
+    empty = participant.isna().to_numpy() & ~given
+    sink.aside(where, rows[empty], [""] * int(empty.sum()), "an empty row")
+    frame = _resolve_repeats(where, out[keep].reset_index(drop=True), settings, sink)
+    late_after = pd.Timedelta(minutes=settings.data.late_after_minutes)
+    frame["late"] = (frame["answered"] & ((frame["time"] - frame["scheduled"]) > late_after))
+    frame = frame.drop(columns="_key")
+    from_rows = bool((~out["answered"]).any()) or (
+        "scheduled" in raw.columns and settings.study.prompts_per_day is None)
+    return Prompts(frame, from_rows, scheduled)
+
+
+def _expected(code: str, fmt: str | None) -> str:
+    if code in ("unknown-zone",):
+        return ZONE_EXPECTED
+    if code == "bad-time":
+        return f"a time written as '{fmt}'" if fmt else ISO_EXAMPLE
+    return "a local time that exists once, or a time with its UTC offset"
+
+
+def _time_fix(code: str) -> str:
+    if code == "bad-time":
+        return "correct the value, or set timestamp_format under [data]"
+    if code == "unknown-zone":
+        return "write the zone as an IANA name or an offset such as +02:00"
+    return "add the UTC offset to the time (e.g. +01:00); the tool does not guess"
+
+
+def _resolve_repeats(where: str, frame: pd.DataFrame, settings: StudySettings,
+                     sink: Sink) -> pd.DataFrame:
+    """Keep one row per prompt: answered over unanswered; identical copies once; clashes fail."""
+    items = list(settings.items)
+    both = frame["participant"] + "\x1f" + frame["_key"]
+    repeated = both.duplicated(keep=False).to_numpy()
+    if not repeated.any():
+        return frame
+    drop: list[int] = []
+    for _, group in frame[repeated].groupby(both[repeated], sort=False):
+        drop += _one_repeat(where, group, items, settings, sink)
+    return frame.drop(index=drop).reset_index(drop=True)
+
+
+def _one_repeat(where: str, group: pd.DataFrame, items: list[str], settings: StudySettings,
+                sink: Sink) -> list[int]:
+    """Decide which rows of one repeated prompt to drop, and report it."""
+    who = group["participant"].iloc[0]
+    when = group["_key"].iloc[0]
+    rows = group["source_row"].tolist()
+    answered = group[group["answered"]]
+    column = settings.data.columns.participant
+    if len(answered) > 1:
+        values = answered[items]
+        same = bool((values.nunique(dropna=False) <= 1).all())
+        if not same:
+            differ = [settings.items[c].column or c for c in items
+                      if values[c].nunique(dropna=False) > 1]
+            sink.bad_rows(where, rows[:1], [who], ["different values in " + _names(differ)],
+                          what=f"{rows_list(rows)} are the same prompt of participant "
+                          f"'{who}' ({when}) with different answers", column=None,
+                          expected="one row per participant and prompt",
+                          fix="remove the wrong row, or set on_bad_rows = \"set aside\" "
+                          "under [data]",
+                          code="conflicting-rows")
+            sink.aside(where, rows[1:], [who] * (len(rows) - 1),
+                       "the same prompt with different answers")
+            return group.index.tolist()
+    kept = (answered if len(answered) else group).index[0]
+    dropped = [i for i in group.index if i != kept]
+    kept_row = int(group.loc[kept, "source_row"])
+    if len(answered) > 1:
+        what = (f"participant '{who}' has {len(group)} rows for the prompt at {when} "
+                f"({rows_list(rows)}) with the same answers; row {kept_row} is kept")
+        code, reason = "duplicate-row", f"a copy of row {kept_row}"
+    else:
+        state = "answered" if len(answered) else "first"
+        what = (f"participant '{who}' has {len(group)} rows for the prompt at {when} "
+                f"({rows_list(rows)}); the {state} one, row {kept_row}, is kept")
+        code, reason = "duplicate-prompt", f"the same prompt as row {kept_row}"
+    sink.add(warning(where, what, fix="remove the extra rows to silence this", row=kept_row,
+                     column=column, code=code))
+    sink.aside(where, group.loc[dropped, "source_row"].tolist(), [who] * len(dropped), reason)
+    return dropped

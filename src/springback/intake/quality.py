@@ -1,0 +1,123 @@
+"""Tidy momentary frame (local times, study days, composites) and the data-quality report."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from rich.table import Table as RichTable
+
+from springback.model import MOMENTARY_COLUMNS, QUALITY_COLUMNS, Study
+from springback.settings import StudySettings
+
+
+def study_days(local_time: pd.Series, day_start: str) -> pd.Series:
+    """Local calendar date of each time after moving midnight to `day_start` (naive midnight)."""
+    hh, mm = (int(x) for x in day_start.split(":"))
+    wall = local_time.dt.tz_localize(None)
+    return (wall - pd.Timedelta(hours=hh, minutes=mm)).dt.normalize().astype("datetime64[ns]")
+
+
+def composite_scores(items: pd.DataFrame, settings: StudySettings) -> pd.DataFrame:
+    """Each composite: mean of its items after reverse scoring (low + high - x)."""
+    out = pd.DataFrame(index=items.index)
+    for name, comp in settings.composites.items():
+        parts = pd.DataFrame(index=items.index)
+        for key in comp.items:
+            spec = settings.items[key]
+            low, high = spec.scale
+            parts[key] = (low + high - items[key]) if spec.reverse else items[key]
+        need = comp.min_items or len(comp.items)
+        enough = parts.notna().sum(axis=1) >= need
+        out[name] = parts.mean(axis=1).where(enough).astype(float)
+    return out
+
+
+def momentary_frame(prompts: pd.DataFrame, settings: StudySettings) -> pd.DataFrame:
+    """Answered prompts by the column contract, sorted by participant and time."""
+    answered = prompts[prompts["answered"]].sort_values(["participant", "time"], kind="stable")
+    answered = answered.reset_index(drop=True)
+    zone = settings.study.timezone
+    out = pd.DataFrame({
+        "participant": answered["participant"].astype(str),
+        "time": answered["time"].astype("datetime64[ns, UTC]"),
+    })
+    out["local_time"] = out["time"].dt.tz_convert(zone)
+    out["study_day"] = study_days(out["local_time"], settings.study.day_start)
+    out["scheduled"] = answered["scheduled"].astype("datetime64[ns, UTC]")
+    out["source_row"] = answered["source_row"].astype("int64")
+    items = answered[list(settings.items)].astype(float)
+    out = pd.concat([out, items, composite_scores(items, settings)], axis=1)
+    return out[[*MOMENTARY_COLUMNS, *settings.items, *settings.composites]]
+
+
+def quality_frame(roster: pd.DataFrame, momentary: pd.DataFrame, late: pd.Series,
+                  scheduled: pd.Series | None, set_aside: pd.DataFrame,
+                  settings: StudySettings) -> pd.DataFrame:
+    """One row per roster participant: answered, scheduled, compliance, days, gaps, late, aside.
+
+    `scheduled` counts distinct prompts per participant when the file lists every prompt;
+    otherwise prompts_per_day x the days from first to last answer (NaN when neither is known).
+    """
+    ids = pd.Index(sorted(roster["participant"].astype(str)), name="participant")
+    by = momentary.groupby("participant")
+    answered = by.size().reindex(ids, fill_value=0).astype("int64")
+    first = by["study_day"].min().reindex(ids)
+    last = by["study_day"].max().reindex(ids)
+    days = by["study_day"].nunique().reindex(ids, fill_value=0).astype("int64")
+    gaps = momentary["time"].groupby(momentary["participant"]).diff().dt.total_seconds() / 3600
+    longest = gaps.groupby(momentary["participant"]).max().reindex(ids).astype(float)
+    if scheduled is not None:
+        planned = scheduled.reindex(ids, fill_value=0).astype(float)
+    elif settings.study.prompts_per_day is not None:
+        span = ((last - first).dt.days + 1).astype(float)
+        planned = (span * settings.study.prompts_per_day).fillna(0.0)
+    else:
+        planned = pd.Series(np.nan, index=ids)
+    compliance = (answered / planned.where(planned > 0)).astype(float)
+    aside = set_aside.groupby("participant").size().reindex(ids, fill_value=0).astype("int64")
+    out = pd.DataFrame({
+        "participant": ids.astype(str),
+        "answered": answered.to_numpy(),
+        "scheduled": planned.to_numpy(),
+        "compliance": compliance.to_numpy(),
+        "first_day": first.to_numpy(),
+        "last_day": last.to_numpy(),
+        "days_covered": days.to_numpy(),
+        "longest_gap_hours": longest.to_numpy(),
+        "late_answers": late.reindex(ids, fill_value=0).astype("int64").to_numpy(),
+        "rows_set_aside": aside.to_numpy(),
+    })
+    out["first_day"] = out["first_day"].astype("datetime64[ns]")
+    out["last_day"] = out["last_day"].astype("datetime64[ns]")
+    return out[list(QUALITY_COLUMNS)]
+
+
+def quality_table(study: Study) -> RichTable:
+    """The data-quality report as a terminal table, one line per participant."""
+    q = study.quality
+    table = RichTable(title=f"Data quality: {study.settings.study.title}", title_justify="left")
+    for name, justify in (("participant", "left"), ("answered", "right"),
+                          ("scheduled", "right"), ("compliance", "right"),
+                          ("days", "right"), ("first day", "left"), ("last day", "left"),
+                          ("longest gap (h)", "right"), ("late", "right"),
+                          ("set aside", "right")):
+        table.add_column(name, justify=justify)  # type: ignore[arg-type]
+    for row in q.itertuples(index=False):
+        table.add_row(
+            row.participant, str(row.answered), _num(row.scheduled, 0),
+            "–" if pd.isna(row.compliance) else f"{row.compliance:.0%}",
+            str(row.days_covered), _day(row.first_day), _day(row.last_day),
+            _num(row.longest_gap_hours, 1), str(row.late_answers), str(row.rows_set_aside),
+        )
+    total_answered = int(q["answered"].sum())
+    table.caption = (f"{len(q)} participants, {total_answered} answered prompts, "
+                     f"{len(study.set_aside)} rows set aside")
+    return table
+
+
+def _num(x: float, digits: int) -> str:
+    return "–" if pd.isna(x) else f"{x:.{digits}f}"
+
+
+def _day(x: object) -> str:
+    return "–" if pd.isna(x) else pd.Timestamp(x).strftime("%Y-%m-%d")

@@ -1,0 +1,265 @@
+"""Read a data file of any supported format into a frame of raw values, never writing to it."""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from springback.errors import DataError, Problem, error, warning
+
+FORMATS = {
+    ".csv": "CSV", ".tsv": "CSV", ".txt": "CSV",
+    ".xlsx": "Excel", ".xlsm": "Excel",
+    ".parquet": "Parquet", ".pq": "Parquet",
+    ".sav": "SPSS", ".zsav": "SPSS",
+}
+DELIMITERS = (",", ";", "\t", "|")
+_DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+$")
+
+
+@dataclass(frozen=True)
+class Table:
+    """A file's rows as read: raw cell values, column names trimmed, nothing converted yet.
+
+    Row i of `frame` is row i + 2 of the file as a spreadsheet shows it (the header is row 1).
+    """
+
+    where: str
+    path: Path
+    frame: pd.DataFrame
+    value_labels: dict[str, dict[Any, str]] = field(default_factory=dict)
+    notes: tuple[Problem, ...] = ()
+
+    @property
+    def rows(self) -> np.ndarray:
+        """The spreadsheet row number of every frame row."""
+        return np.arange(len(self.frame)) + 2
+
+
+def read_table(path: Path, where: str, *, sheet: str | None = None) -> Table:
+    """Read one data file chosen by its extension; raise DataError saying why it cannot be read."""
+    kind = FORMATS.get(path.suffix.lower())
+    if kind is None:
+        raise DataError([error(
+            where, f"files ending in '{path.suffix}' cannot be read",
+            expected="a .csv, .tsv, .txt, .xlsx, .parquet or .sav file",
+            fix="export the data in one of these formats", code="unsupported-format")])
+    if not path.is_file():
+        raise DataError([error(
+            where, "the file is missing", expected=f"a file at {path}",
+            fix="check the file name, or the path under [data] in study.toml",
+            code="missing-file")])
+    if path.stat().st_size == 0:
+        raise DataError([error(where, "the file is empty", fix="export the data again",
+                               code="empty-file")])
+    notes: list[Problem] = []
+    labels: dict[str, dict[Any, str]] = {}
+    if kind == "CSV":
+        frame = _read_csv(path, where, notes)
+    else:
+        frame, labels = _read_binary(path, where, kind, sheet)
+    frame.columns = [str(c).strip() for c in frame.columns]
+    _check_header(frame, where)
+    return Table(where, path, frame.reset_index(drop=True), labels, tuple(notes))
+
+
+def _read_csv(path: Path, where: str, notes: list[Problem]) -> pd.DataFrame:
+    data = path.read_bytes()
+    text = _decode(data, where, notes)
+    if "\x00" in text:
+        raise DataError([error(where, "the file is not text (it holds NUL bytes)",
+                               expected="a CSV file", fix="export the data as CSV again",
+                               code="unreadable")])
+    if not text.strip():
+        raise DataError([error(where, "the file is empty", fix="export the data again",
+                               code="empty-file")])
+    delimiter = sniff_delimiter(text)
+    try:
+        frame = pd.read_csv(io.StringIO(text), sep=delimiter, dtype=str, keep_default_na=False,
+                            na_filter=False, engine="c", skip_blank_lines=True)
+    except pd.errors.EmptyDataError:
+        raise DataError([error(where, "the file is empty", fix="export the data again",
+                               code="empty-file")]) from None
+    except (pd.errors.ParserError, ValueError, csv.Error) as exc:
+        raise DataError([error(
+            where, f"the file cannot be read as CSV: {_parser_detail(exc)}",
+            expected=f"the same number of '{_name(delimiter)}'-separated fields on every line",
+            fix="look at the line named (an unclosed quote or an extra separator is usual)",
+            code="unreadable")]) from None
+    header = next(csv.reader(io.StringIO(text.lstrip("\r\n")), delimiter=delimiter), [])
+    names = [h.strip() for h in header]
+    if len(names) == frame.shape[1]:
+        _check_duplicate_names(names, where)
+    return frame
+
+
+def _decode(data: bytes, where: str, notes: list[Problem]) -> str:
+    if data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]
+    elif data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        try:
+            return data.decode("utf-16")
+        except UnicodeDecodeError:
+            raise DataError([error(where, "the file starts like UTF-16 text but is not",
+                                   fix="save it as UTF-8 CSV", code="unreadable")]) from None
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError:
+        # Older Excel and SPSS exports on Windows write Latin-1; reading it that way never
+        # fails, so the user is told in case names with accents come out wrong.
+        notes.append(warning(
+            where, "the file is not UTF-8; it was read as Latin-1",
+            fix="check that names with accents look right, or save the file as UTF-8",
+            code="latin-1"))
+        return data.decode("latin-1")
+
+
+def sniff_delimiter(text: str) -> str:
+    """Pick the delimiter that splits the header line into the most fields (comma on ties)."""
+    first = text.lstrip("\r\n").split("\n", 1)[0]
+    best, most = ",", 1
+    for d in DELIMITERS:
+        try:
+            n = len(next(csv.reader([first], delimiter=d), []))
+        except csv.Error:
+            continue
+        if n > most:
+            best, most = d, n
+    return best
+
+
+def _name(delimiter: str) -> str:
+    return {"\t": "tab"}.get(delimiter, delimiter)
+
+
+def _parser_detail(exc: Exception) -> str:
+    text = str(exc).strip().splitlines()[-1] if str(exc).strip() else type(exc).__name__
+    m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", text)
+    if m:
+        return f"line {m.group(2)} has {m.group(3)} fields but the header has {m.group(1)}"
+    return text.removeprefix("Error tokenizing data. C error: ")
+
+
+def _read_binary(path: Path, where: str, kind: str,
+                 sheet: str | None) -> tuple[pd.DataFrame, dict[str, dict[Any, str]]]:
+    labels: dict[str, dict[Any, str]] = {}
+    try:
+        if kind == "Excel":
+            frame = _read_excel(path, where, sheet)
+        elif kind == "Parquet":
+            frame = pd.read_parquet(path, engine="pyarrow")
+        else:
+            import pyreadstat
+
+            # Codes stay numbers (ratings are the codes); labels are kept for text columns.
+            frame, meta = pyreadstat.read_sav(str(path), apply_value_formats=False)
+            labels = {k: dict(v) for k, v in meta.variable_value_labels.items()}
+    except DataError:
+        raise
+    except Exception as exc:  # any reader failure on a user's file is reported, not raised
+        raise DataError([error(
+            where, f"the file cannot be read as {kind}: {_short(exc)}",
+            fix=f"open it in the program that made it and save it again as {kind}",
+            code="unreadable")]) from None
+    return frame, labels
+
+
+def _read_excel(path: Path, where: str, sheet: str | None) -> pd.DataFrame:
+    import openpyxl
+
+    book = openpyxl.load_workbook(path, read_only=True, data_only=True)
+    try:
+        names = book.sheetnames
+    finally:
+        book.close()
+    if sheet is not None and sheet not in names:
+        raise DataError([error(
+            where, f"the workbook has no sheet '{sheet}'",
+            expected="one of: " + ", ".join(names), fix="correct [data] sheet in study.toml",
+            code="missing-sheet")])
+    return pd.read_excel(path, sheet_name=sheet or names[0], engine="openpyxl")
+
+
+def _short(exc: Exception) -> str:
+    text = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    return text[:200]
+
+
+def _check_header(frame: pd.DataFrame, where: str) -> None:
+    names = list(frame.columns)
+    _check_duplicate_names(names, where)
+    if frame.shape[1] == 0:
+        raise DataError([error(where, "the file has no columns", fix="export the data again",
+                               code="empty-file")])
+
+
+def _check_duplicate_names(names: Iterable[str], where: str) -> None:
+    seen: set[str] = set()
+    twice = []
+    for n in names:
+        if n in seen and n not in twice:
+            twice.append(n)
+        seen.add(n)
+    if twice:
+        raise DataError([error(
+            where, "column names appear more than once: " + ", ".join(f"'{n}'" for n in twice),
+            expected="each column name once", fix="rename or remove the extra columns",
+            code="duplicate-column")])
+
+
+# ---------------------------------------------------------------------------------------
+# Cell conversion (shared by every file kind, so all formats give identical frames)
+
+
+def missing_mask(values: pd.Series, missing: Iterable[str]) -> pd.Series:
+    """True where a cell holds no value (empty, NaN or one of the missing-value texts)."""
+    if values.dtype.kind in "biufcmM":
+        return values.isna()
+    text = values.astype("string").str.strip()
+    return text.isna() | text.isin(list(missing))
+
+
+def as_text(values: pd.Series, missing: Iterable[str]) -> pd.Series:
+    """Cells as trimmed text (numbers without a spurious '.0'); missing cells become NA."""
+    if values.dtype.kind in "fc":
+        whole = values.notna() & (values == np.round(values))
+        out = values.astype(object).where(~whole, values.where(whole).astype("Int64"))
+        text = out.astype("string")
+    elif values.dtype.kind == "b":
+        text = values.map({True: "yes", False: "no"}).astype("string")
+    else:
+        text = values.astype("string").str.strip()
+    return text.mask(missing_mask(values, missing) | text.isin(list(missing)))
+
+
+def as_number(values: pd.Series, missing: Iterable[str]) -> tuple[pd.Series, pd.Series]:
+    """Cells as floats, and a mask of cells that hold something that is not a number."""
+    if values.dtype.kind in "biuf":
+        return values.astype("float64"), pd.Series(False, index=values.index)
+    gone = missing_mask(values, missing)
+    text = values.astype("string").str.strip()
+    # A decimal comma (2,5) is what European exports write; a thousands comma never occurs
+    # on a rating scale, so reading it as a decimal point is safe here.
+    comma = text.str.fullmatch(_DECIMAL_COMMA.pattern).fillna(False).astype(bool)
+    text = text.where(~comma, text.str.replace(",", ".", regex=False))
+    number = pd.to_numeric(text.mask(gone), errors="coerce").astype("float64")
+    bad = number.isna() & ~gone
+    return number, bad.astype(bool)
+
+
+def labelled(table: Table, column: str) -> pd.Series:
+    """A column with its SPSS value labels applied (codes without a label stay as they are)."""
+    values = table.frame[column]
+    labels = table.value_labels.get(column)
+    if not labels:
+        return values
+    mapped = values.map(lambda v: labels.get(v, v))
+    return mapped.astype(object)

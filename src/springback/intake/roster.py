@@ -1,0 +1,95 @@
+"""Read the roster: who consented, in which language they get a booklet, and for whom."""
+
+from __future__ import annotations
+
+import difflib
+
+import numpy as np
+import pandas as pd
+
+from springback.errors import error
+from springback.intake.problems import rows_list
+from springback.intake.readers import Table, as_text, labelled
+from springback.model import ROSTER_COLUMNS
+from springback.settings import StudySettings
+
+YES = {"yes", "y", "true", "1", "ja", "j"}
+NO = {"no", "n", "false", "0", "nee", "nein"}
+CONSENT = {"yes": "yes", "withdrawn": "withdrawn"}
+
+
+def read_roster(table: Table, settings: StudySettings, problems: list) -> pd.DataFrame | None:
+    """Check the roster and return it by the column contract; None if it cannot be used."""
+    cols = settings.data.columns
+    missing = settings.data.missing_values
+    present = list(table.frame.columns)
+    ok = True
+    for name, role in ((cols.participant, "participant"), (cols.consent, "consent")):
+        if name not in present:
+            ok = False
+            close = difflib.get_close_matches(name, present, n=1)
+            problems.append(error(
+                table.where, f"column '{name}' is missing",
+                expected=f"a column named '{name}' ({role})",
+                found="columns " + ", ".join(f"'{c}'" for c in present[:8]),
+                fix=(f"did you mean '{close[0]}'? " if close else "")
+                + f'rename the column, or set {role} = "..." under [data.columns]',
+                column=name, code="missing-column"))
+    if not ok:
+        return None
+    if table.frame.empty:
+        problems.append(error(table.where, "the file has a header but no rows",
+                              fix="list every participant with their consent",
+                              code="no-rows"))
+        return None
+    rows = table.rows
+
+    def text(name: str) -> pd.Series:
+        return as_text(labelled(table, name), missing) if name in present else \
+            pd.Series(pd.NA, index=table.frame.index, dtype="string")
+
+    pid = text(cols.participant)
+    out = pd.DataFrame({"participant": pid.fillna("")})
+    for r in rows[pid.isna().to_numpy()]:
+        problems.append(error(table.where, "the participant id is missing", row=int(r),
+                              column=cols.participant, fix="fill in the id or delete the row",
+                              code="missing-participant"))
+    twice = pid.notna() & pid.duplicated(keep=False)
+    for who, group in pd.Series(rows[twice.to_numpy()]).groupby(pid[twice].to_numpy()):
+        problems.append(error(table.where, f"participant '{who}' is listed more than once",
+                              found=rows_list(group.tolist()), row=int(group.iloc[0]),
+                              column=cols.participant, fix="keep one row per participant",
+                              code="duplicate-participant"))
+    consent = text(cols.consent).str.lower()
+    out["consent"] = consent.map(CONSENT)
+    wrong = out["consent"].isna().to_numpy()
+    for r, v in zip(rows[wrong], text(cols.consent)[wrong], strict=True):
+        problems.append(error(table.where, "consent must be 'yes' or 'withdrawn'",
+                              found="an empty cell" if pd.isna(v) else f"'{v}'", row=int(r),
+                              column=cols.consent, fix="write yes or withdrawn",
+                              code="bad-consent"))
+    default_language = settings.study.languages[0] if settings.study.languages else "en"
+    language = text(cols.language).str.lower().fillna(default_language)
+    unknown = ~language.isin(settings.study.languages).to_numpy()
+    for r, v in zip(rows[unknown], language[unknown], strict=True):
+        problems.append(error(table.where, f"language '{v}' is not one of the study's languages",
+                              expected="one of: " + ", ".join(settings.study.languages),
+                              row=int(r), column=cols.language,
+                              fix="correct the code, or add it to languages under [study]",
+                              code="bad-language"))
+    out["language"] = language
+    for name, key in ((cols.feedback, "feedback"), (cols.therapist, "therapist")):
+        flag = text(name).str.lower()
+        out[key] = np.where(flag.isin(NO).to_numpy(), False, True)
+        odd = (flag.notna() & ~flag.isin(YES | NO)).to_numpy()
+        for r, v in zip(rows[odd], flag[odd], strict=True):
+            problems.append(error(table.where, f"{key} must be yes or no", found=f"'{v}'",
+                                  row=int(r), column=name, fix="write yes or no",
+                                  code="bad-flag"))
+    out["region"] = text(cols.region).fillna("default")
+    out["_row"] = rows
+    out = out[pid.notna().to_numpy()]
+    out = out.astype({"participant": str, "language": str, "region": str, "consent": object})
+    out["feedback"] = out["feedback"].astype(bool)
+    out["therapist"] = out["therapist"].astype(bool)
+    return out[[*ROSTER_COLUMNS, "_row"]].reset_index(drop=True)

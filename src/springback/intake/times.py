@@ -1,0 +1,139 @@
+"""Turn time cells of any format into UTC instants, naming every time that cannot be placed."""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+import numpy as np
+import pandas as pd
+
+_ISO = re.compile(
+    r"^\s*(\d{4}-\d{1,2}-\d{1,2}(?:[T ]\d{1,2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?)?)\s*(.*?)\s*$"
+)
+_OFFSET = re.compile(r"^(?:UTC|GMT)?\s*([+-])(\d{1,2})(?::?(\d{2}))?$")
+
+# Abbreviations that name one fixed offset (CEST is always UTC+2), so they are read as that
+# offset. Ambiguous ones (CST: US Central or China; IST: India, Ireland or Israel) are left
+# out on purpose: such times are reported, not guessed.
+ABBREVIATIONS = {
+    "UTC": 0, "GMT": 0, "Z": 0, "WET": 0, "WEST": 60, "BST": 60,
+    "CET": 60, "CEST": 120, "MET": 60, "MEST": 120, "EET": 120, "EEST": 180,
+    "MSK": 180, "EST": -300, "EDT": -240, "MST": -420, "MDT": -360,
+    "PST": -480, "PDT": -420, "AKST": -540, "AKDT": -480, "HST": -600,
+    "AEST": 600, "AEDT": 660, "ACST": 570, "AWST": 480, "NZST": 720, "NZDT": 780,
+    "JST": 540, "KST": 540, "SGT": 480, "HKT": 480, "SAST": 120,
+}
+ISO_EXAMPLE = "an ISO 8601 time such as 2024-03-04 09:15 or 2024-03-04T09:15:00+01:00"
+
+
+@dataclass(frozen=True)
+class Times:
+    """Parsed times: UTC instants (NaT where missing or bad) and why each bad one failed."""
+
+    utc: pd.Series
+    problem: pd.Series
+    """'' when fine or missing; else 'bad-time', 'unknown-zone', 'nonexistent-time' or
+    'ambiguous-time'."""
+    zone: pd.Series
+    """The zone each time was read in (its own, the row's, or the study's)."""
+
+
+@lru_cache(maxsize=512)
+def zone_of(token: str) -> int | str | None:
+    """A zone text as offset minutes, an IANA name, or None when it names no zone."""
+    if token in ABBREVIATIONS:
+        return ABBREVIATIONS[token]
+    m = _OFFSET.match(token)
+    if m:
+        sign = 1 if m.group(1) == "+" else -1
+        hours, minutes = int(m.group(2)), int(m.group(3) or 0)
+        if hours <= 14 and minutes < 60:
+            return sign * (hours * 60 + minutes)
+        return None
+    if "/" in token or token == "UTC":
+        try:
+            ZoneInfo(token)
+        except (ZoneInfoNotFoundError, ValueError):
+            return None
+        return token
+    return None
+
+
+def _split(text: pd.Series) -> tuple[pd.Series, pd.Series]:
+    """Split ISO times into the clock part and the zone text after it ('' when none)."""
+    parts = text.str.extract(_ISO)
+    return parts[0], parts[1].fillna("")
+
+
+def zone_texts(values: pd.Series) -> pd.Series:
+    """Zone texts from a time-zone column: a bare zone, or the zone ending a time."""
+    text = values.astype("string").str.strip().fillna("")
+    clock, zone = _split(text)
+    return text.where(clock.isna(), zone).astype(object)
+
+
+def parse_times(values: pd.Series, *, study_zone: str, row_zones: pd.Series | None = None,
+                fmt: str | None = None, missing: pd.Series | None = None) -> Times:
+    """Read times (text or datetime values) as UTC; naive ones in the row's or study's zone."""
+    index = values.index
+    gone = missing if missing is not None else values.isna()
+    problem = pd.Series("", index=index, dtype=object)
+    own_zone = pd.Series("", index=index, dtype=object)
+    if values.dtype.kind == "M":
+        if isinstance(values.dtype, pd.DatetimeTZDtype):
+            utc = values.dt.tz_convert("UTC").astype("datetime64[ns, UTC]")
+            return Times(utc, problem, pd.Series(str(values.dt.tz), index=index, dtype=object))
+        naive = values.astype("datetime64[ns]")
+    else:
+        text = values.map(_cell_text, na_action="ignore").astype("string").str.strip()
+        text = text.mask(gone)
+        if fmt:
+            aware = "%z" in fmt or "%Z" in fmt
+            parsed = pd.to_datetime(text, format=fmt, errors="coerce", utc=aware)
+            if aware:
+                utc = parsed.astype("datetime64[ns, UTC]")
+                problem[parsed.isna() & ~gone] = "bad-time"
+                return Times(utc, problem, own_zone)
+            naive = parsed.astype("datetime64[ns]")
+        else:
+            clock, own_zone = _split(text.fillna(""))
+            naive = pd.to_datetime(clock, format="ISO8601", errors="coerce").astype(
+                "datetime64[ns]")
+        problem[naive.isna() & ~gone] = "bad-time"
+    zone = own_zone.astype(object).copy()
+    if row_zones is not None:
+        zone = zone.where(zone != "", row_zones.reindex(index).fillna("").astype(object))
+    zone = zone.where(zone != "", study_zone)
+    utc = pd.Series(pd.NaT, index=index, dtype="datetime64[ns, UTC]")
+    ok = naive.notna().to_numpy()
+    for token in pd.unique(zone[ok]):
+        rows = ok & (zone == token).to_numpy()
+        spec = zone_of(str(token))
+        if spec is None:
+            problem[rows] = "unknown-zone"
+            continue
+        local = naive[rows]
+        if isinstance(spec, int):
+            utc[rows] = (local - pd.Timedelta(minutes=spec)).dt.tz_localize("UTC")
+            continue
+        k = int(rows.sum())
+        early = local.dt.tz_localize(spec, ambiguous=np.ones(k, bool), nonexistent="NaT")
+        late = local.dt.tz_localize(spec, ambiguous=np.zeros(k, bool), nonexistent="NaT")
+        sub = pd.Series("", index=local.index, dtype=object)
+        sub[early.isna()] = "nonexistent-time"
+        sub[early.notna() & (early != late)] = "ambiguous-time"
+        problem[rows] = problem[rows].where(sub == "", sub)
+        utc[rows] = early.where(sub == "").dt.tz_convert("UTC")
+    bad = problem != ""
+    utc[bad] = pd.NaT
+    return Times(utc, problem, zone)
+
+
+def _cell_text(value: object) -> str:
+    """A cell as text; datetime objects from spreadsheets print as ISO 8601."""
+    if isinstance(value, pd.Timestamp):
+        return value.isoformat(sep=" ")
+    return str(value)
