@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from springback.metrics import descriptives
+from springback.metrics import descriptives, dynamics, recovery
 from springback.metrics._series import prepare
 from springback.metrics.results import Family, ParticipantResults, to_rows
 from springback.model import ParticipantData
@@ -24,6 +24,8 @@ def compute(data: ParticipantData, settings: StudySettings) -> ParticipantResult
         f"{series.n} answered prompts; a booklet needs at least {settings.booklet.min_prompts}")
     families: dict[str, Family] = {}
     families["descriptives"] = descriptives.describe(series, data, settings)
+    families["dynamics"] = dynamics.carry_over(series, settings)
+    families["recovery"] = recovery.bounce_back(series, data, settings)
     return ParticipantResults(participant=data.participant, variable=series.variable,
                               families=families, enough_data=enough, reason=reason)
 

@@ -40,6 +40,8 @@ class Series:
     admissible: np.ndarray
     """(n - 1) bool: answer i and i + 1 fall on the same study day within max_gap_hours."""
     max_gap_hours: float
+    origin_ns: int = 0
+    """UTC nanoseconds of the first answer (hours are measured from it)."""
 
     @property
     def n(self) -> int:
@@ -120,7 +122,14 @@ def prepare(data: ParticipantData, settings: StudySettings, variable: str | None
         item_names=names,
         admissible=admissible,
         max_gap_hours=max_gap,
+        origin_ns=int(ns[0]) if len(ns) else 0,
     )
+
+
+def hours_since(series: Series, times: pd.Series) -> np.ndarray:
+    """Hours from the series' first answer to each of the given tz-aware times."""
+    ns = pd.DatetimeIndex(times).as_unit("ns").asi8
+    return (ns - series.origin_ns) / NS_PER_HOUR
 
 
 def _reversed(values: np.ndarray, settings: StudySettings, item: str) -> np.ndarray:
