@@ -1,0 +1,293 @@
+"""The typed template context of a booklet, built in exactly one function."""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from dataclasses import dataclass
+from typing import Any, Literal, Protocol, TypedDict
+
+import pandas as pd
+
+from springback.metrics.results import Estimate, ParticipantResults
+from springback.model import ParticipantData
+from springback.settings import Referral, StudySettings
+
+Edition = Literal["participant", "therapist"]
+EDITIONS: tuple[Edition, ...] = ("participant", "therapist")
+
+PARTICIPANT_SECTIONS = (
+    "about_booklet", "participation", "mood", "ups_downs", "bouncing_back", "carry_over",
+    "change", "landscape", "questionnaires", "reflect", "help", "how_made", "glossary",
+)
+"""Section partials (templates/sections/<name>.html) of the participant edition, in order."""
+
+THERAPIST_SECTIONS = (
+    "review", "about_booklet", "participation", "data_quality", "mood", "ups_downs",
+    "bouncing_back", "carry_over", "change", "sensitivity", "landscape", "pattern",
+    "questionnaires", "reflect", "help", "how_made", "methods", "glossary",
+)
+"""Section partials of the therapist edition, in order."""
+
+
+class FlagLike(Protocol):
+    """What a safety flag offers (springback.safety.Flag has exactly these attributes)."""
+
+    participant: str
+    rule: str
+    action: str
+    value: float | None
+    when: str
+    detail: str
+
+
+class ChartLike(Protocol):
+    """What a chart record offers (springback.charts.Chart)."""
+
+    key: str
+    title: str
+    description: str
+    svg: str
+    table: pd.DataFrame
+    table_caption: str
+
+
+@dataclass(frozen=True)
+class QuestionnaireView:
+    """One questionnaire as the booklet shows it."""
+
+    key: str
+    label: str
+    last: Estimate
+    last_band: str
+    change: Estimate
+    bands: tuple[tuple[str, float, float], ...]
+    """(label, lowest score, highest score) per band, increasing."""
+    higher_is_worse: bool
+    n_scores: int
+
+
+class BookletContext(TypedDict):
+    """Everything a booklet template may use; nothing else reaches the templates."""
+
+    edition: Edition
+    language: str
+    sections: list[str]
+    study_title: str
+    study_team: str
+    contact_name: str
+    contact_email: str
+    contact_phone: str
+    answers_checked: str
+    participant: str
+    period_first: dt.date | None
+    period_last: dt.date | None
+    version: int
+    built_at: dt.datetime
+    tool_version: str
+    variable_label: str
+    scale_low: float
+    scale_high: float
+    higher_is_worse: bool
+    typical_low: float | None
+    typical_high: float | None
+    enough_data: bool
+    reason: str
+    estimates: dict[str, Estimate]
+    params: dict[str, dict[str, Any]]
+    change_points: list[dict[str, Any]]
+    event_kinds: list[tuple[str, int]]
+    questionnaires: list[QuestionnaireView]
+    quality: dict[str, Any]
+    set_aside: list[dict[str, Any]]
+    flags: list[FlagLike]
+    refer: bool
+    review_state: str
+    referral: Referral | None
+    charts: dict[str, ChartLike]
+    pattern: dict[str, Any]
+    alpha: float
+    large_print: bool
+    paper: str
+    palette_css: str
+
+
+def build_context(
+    *,
+    settings: StudySettings,
+    data: ParticipantData,
+    results: ParticipantResults,
+    flags: list[FlagLike],
+    review_state: str,
+    charts: dict[str, ChartLike],
+    edition: Edition,
+    language: str,
+    version: int,
+    built_at: dt.datetime,
+    tool_version: str,
+) -> BookletContext:
+    """Gather what one edition of one participant's booklet shows."""
+    if edition not in EDITIONS:
+        raise ValueError(f"edition must be one of {', '.join(EDITIONS)}, got {edition!r}")
+    own_flags = [f for f in flags if f.participant == data.participant]
+    refer = any(f.action == "refer" for f in own_flags)
+    variable = results.variable or settings.about
+    desc = _params(results, "descriptives")
+    low, high = _scale(settings, variable)
+    first, last = _period(data)
+    return BookletContext(
+        edition=edition,
+        language=language,
+        sections=_sections(settings, edition, refer),
+        study_title=settings.study.title,
+        study_team=settings.study.team,
+        contact_name=settings.study.contact.name,
+        contact_email=settings.study.contact.email,
+        contact_phone=settings.study.contact.phone,
+        answers_checked=_text(settings.study.answers_checked, language),
+        participant=data.participant,
+        period_first=first,
+        period_last=last,
+        version=version,
+        built_at=built_at,
+        tool_version=tool_version,
+        variable_label=settings.label_of(variable, language),
+        scale_low=float(desc.get("scale_low", low)),
+        scale_high=float(desc.get("scale_high", high)),
+        higher_is_worse=bool(desc.get("higher_is_worse", _polarity(settings, variable))),
+        typical_low=_finite(desc.get("typical_low")),
+        typical_high=_finite(desc.get("typical_high")),
+        enough_data=results.enough_data,
+        reason=results.reason,
+        estimates=results.measures(),
+        params={name: dict(fam.params) for name, fam in results.families.items()},
+        change_points=_records(results, "shifts", "change_points"),
+        event_kinds=_event_kinds(data),
+        questionnaires=_questionnaires(settings, results, language),
+        quality=_quality(data),
+        set_aside=data.set_aside.head(50).to_dict("records") if len(data.set_aside) else [],
+        flags=own_flags,
+        refer=refer,
+        review_state=review_state,
+        referral=settings.referral_for(data.region, language),
+        charts=dict(charts),
+        pattern=_params(results, "pattern"),
+        alpha=float(_params(results, "warnings").get("alpha", settings.metrics.alpha)),
+        large_print=settings.booklet.large_print,
+        paper=settings.booklet.paper,
+        palette_css=_palette_css(),
+    )
+
+
+def _sections(settings: StudySettings, edition: Edition, refer: bool) -> list[str]:
+    """Sections in reading order; where a 'refer' flag exists, help comes first."""
+    names = list(PARTICIPANT_SECTIONS if edition == "participant" else THERAPIST_SECTIONS)
+    if edition == "participant" and not settings.booklet.show_change_to_participant:
+        names.remove("change")
+    if not settings.booklet.show_landscape:
+        names.remove("landscape")
+    if refer:
+        names.remove("help")
+        names.insert(1 if edition == "therapist" else 0, "help")
+    return names
+
+
+def _text(texts: dict[str, str], language: str) -> str:
+    return texts.get(language) or texts.get("en") or ""
+
+
+def _params(results: ParticipantResults, family: str) -> dict[str, Any]:
+    fam = results.families.get(family)
+    return dict(fam.params) if fam is not None else {}
+
+
+def _finite(x: Any) -> float | None:
+    try:
+        v = float(x)
+    except (TypeError, ValueError):
+        return None
+    return v if math.isfinite(v) else None
+
+
+def _scale(settings: StudySettings, variable: str) -> tuple[float, float]:
+    try:
+        return settings.scale_of(variable)
+    except (KeyError, StopIteration, ValueError):
+        return (math.nan, math.nan)
+
+
+def _polarity(settings: StudySettings, variable: str) -> bool:
+    try:
+        return settings.higher_is_worse(variable)
+    except KeyError:
+        return True
+
+
+def _period(data: ParticipantData) -> tuple[dt.date | None, dt.date | None]:
+    """First and last study day with an answer."""
+    if data.momentary.empty or "study_day" not in data.momentary:
+        return None, None
+    days = pd.to_datetime(data.momentary["study_day"])
+    return days.min().date(), days.max().date()
+
+
+def _records(results: ParticipantResults, family: str, table: str) -> list[dict[str, Any]]:
+    fam = results.families.get(family)
+    if fam is None or table not in fam.tables:
+        return []
+    return fam.tables[table].to_dict("records")
+
+
+def _event_kinds(data: ParticipantData) -> list[tuple[str, int]]:
+    """Event kinds the participant reported, most frequent first (names as typed)."""
+    if data.events.empty or "kind" not in data.events:
+        return []
+    counts = data.events["kind"].astype(str).value_counts()
+    return sorted(((str(k), int(n)) for k, n in counts.items()), key=lambda kn: (-kn[1], kn[0]))
+
+
+def _quality(data: ParticipantData) -> dict[str, Any]:
+    if data.quality.empty:
+        return {}
+    return {k: v for k, v in data.quality.iloc[0].to_dict().items() if k != "participant"}
+
+
+def _questionnaires(
+    settings: StudySettings, results: ParticipantResults, language: str
+) -> list[QuestionnaireView]:
+    """Questionnaires with at least one score, with their bands as score ranges."""
+    fam = results.families.get("questionnaires")
+    if fam is None:
+        return []
+    views = []
+    for key, spec in settings.questionnaires.items():
+        scores = fam.tables.get(f"scores_{key}")
+        if scores is None or scores.empty:
+            continue
+        last = fam.estimates.get(f"questionnaire_last_{key}", Estimate.missing("no score"))
+        bands = []
+        for i, (lower, label) in enumerate(spec.bands):
+            upper = spec.bands[i + 1][0] - 1 if i + 1 < len(spec.bands) else spec.range[1]
+            bands.append((str(label), float(lower), float(upper)))
+        views.append(
+            QuestionnaireView(
+                key=key,
+                label=_text(spec.label, language) or key,
+                last=last,
+                last_band=str(scores["band"].iloc[-1]) if "band" in scores else "",
+                change=fam.estimates.get(
+                    f"reliable_change_{key}", Estimate.missing("only one score")
+                ),
+                bands=tuple(bands),
+                higher_is_worse=spec.higher_is == "worse",
+                n_scores=len(scores),
+            )
+        )
+    return views
+
+
+def _palette_css() -> str:
+    """CSS custom properties of the shared palette (springback.palette, shared with charts)."""
+    from springback import palette
+
+    return palette.css_variables()

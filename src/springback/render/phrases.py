@@ -1,0 +1,107 @@
+"""Numbers in the words people use: "about 1 in 5 prompts", "about half a day", "about 3 hours".
+
+Pure functions; every phrase goes through the catalogue passed in (`gettext.NullTranslations`
+or a language's catalogue), so translators see whole phrases.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Protocol
+
+
+class Translator(Protocol):
+    """What a gettext catalogue offers."""
+
+    def gettext(self, message: str) -> str: ...
+    def ngettext(self, singular: str, plural: str, n: int) -> str: ...
+
+
+# Fractions a reader knows by heart; a share is described by the nearest one.
+_FRACTIONS = ((1, 10), (1, 5), (1, 4), (1, 3), (1, 2), (2, 3), (3, 4), (4, 5), (9, 10))
+
+
+def share_of_prompts(share: float, tr: Translator) -> str:
+    """Say a share 0..1 of prompts in words: 'about 1 in 5 prompts'."""
+    if not math.isfinite(share) or share < 0:
+        raise ValueError(f"a share must be a number from 0 to 1, got {share}")
+    if share >= 0.97:
+        return tr.gettext("almost every prompt")
+    if share < 0.07:
+        return tr.gettext("fewer than 1 in 10 prompts")
+    k, n = min(_FRACTIONS, key=lambda f: abs(f[0] / f[1] - share))
+    if (k, n) == (1, 2):
+        return tr.gettext("about half of the prompts")
+    return tr.gettext("about %(k)d in %(n)d prompts") % {"k": k, "n": n}
+
+
+def duration(hours: float, tr: Translator) -> str:
+    """Say a duration in hours in words: 'about 3 hours', 'about half a day', 'about 2 days'."""
+    if not math.isfinite(hours) or hours < 0:
+        raise ValueError(f"a duration must be zero or more hours, got {hours}")
+    if hours < 0.75:
+        return tr.gettext("less than an hour")
+    if hours < 1.5:
+        return tr.gettext("about an hour")
+    if hours < 9.5:
+        n = round(hours)
+        return tr.ngettext("about %(n)d hour", "about %(n)d hours", n) % {"n": n}
+    if hours < 16:
+        return tr.gettext("about half a day")
+    if hours < 32:
+        return tr.gettext("about a day")
+    if hours < 42:
+        return tr.gettext("about a day and a half")
+    days = round(hours / 24)
+    if days < 10:
+        return tr.ngettext("about %(n)d day", "about %(n)d days", days) % {"n": days}
+    weeks = round(hours / (24 * 7))
+    return tr.ngettext("about %(n)d week", "about %(n)d weeks", weeks) % {"n": weeks}
+
+
+def count(n: int, tr: Translator) -> str:
+    """Say how many times something happened: 'once', 'twice', '5 times'."""
+    if n == 1:
+        return tr.gettext("once")
+    if n == 2:
+        return tr.gettext("twice")
+    return tr.ngettext("%(n)d time", "%(n)d times", n) % {"n": n}
+
+
+def strength(r: float, tr: Translator) -> str:
+    """Say how strong a carry-over (a correlation -1..1) is: 'a little', 'quite a lot'."""
+    if not math.isfinite(r):
+        raise ValueError(f"a correlation must be a number, got {r}")
+    a = abs(r)
+    if a < 0.1:
+        return tr.gettext("hardly at all")
+    if a < 0.3:
+        return tr.gettext("a little")
+    if a < 0.5:
+        return tr.gettext("quite a bit")
+    return tr.gettext("a lot")
+
+
+def sureness(lower: float | None, upper: float | None, null: float, tr: Translator) -> str:
+    """Say how sure we can be, from an interval and the value meaning 'no effect'.
+
+    An interval that contains the no-effect value could be chance; one that does not is
+    'fairly sure'; without an interval we say plainly that we cannot tell.
+    """
+    if lower is None or upper is None or not (math.isfinite(lower) and math.isfinite(upper)):
+        return tr.gettext("We cannot tell how sure this is.")
+    if lower <= null <= upper:
+        return tr.gettext("This could be chance.")
+    return tr.gettext("We can be fairly sure of this, but it is not certain.")
+
+
+def trend_sureness(p: float | None, alpha: float, tr: Translator) -> str:
+    """Say how sure a rise or fall over the study is, from its surrogate p-value."""
+    if p is None or not math.isfinite(p):
+        return tr.gettext("We cannot tell how sure this is.")
+    if p < alpha:
+        return tr.gettext(
+            "A change this clear is unlikely to be chance alone. Even so, signs like this often "
+            "turn out to be false alarms."
+        )
+    return tr.gettext("This could be chance.")
