@@ -53,17 +53,21 @@ def stratified_times(
     blocks: Sequence[tuple[float, float]],
     rng: np.random.Generator,
     size: int | None = None,
+    margin: float = 0.0,
 ) -> np.ndarray:
     """Draw one prompt time uniformly inside each daily block, for `days` days.
 
-    Blocks are (start, end) clock hours, e.g. five blocks between 08:00 and 22:00. Returns hours
-    since midnight of day 0 on the local clock, shape (days * len(blocks),) or
-    (size, days * len(blocks)), increasing along the last axis.
+    Blocks are (start, end) clock hours, e.g. five blocks between 08:00 and 22:00; the last
+    `margin` hours of each block are left free, so prompts are at least `margin` apart (apps
+    usually enforce such a spacing). Returns hours since midnight of day 0 on the local clock,
+    shape (days * len(blocks),) or (size, days * len(blocks)), increasing along the last axis.
     """
     lo = np.array([b[0] for b in blocks], dtype=float)
     hi = np.array([b[1] for b in blocks], dtype=float)
-    if np.any(hi <= lo) or np.any(lo[1:] < hi[:-1]):
-        raise ValueError("blocks must be increasing, non-overlapping (start, end) hours")
+    if np.any(hi - margin <= lo) or np.any(lo[1:] < hi[:-1]) or margin < 0:
+        raise ValueError("blocks must be increasing, non-overlapping (start, end) hours, "
+                         "each longer than the margin")
+    hi = hi - margin
     shape = (1 if size is None else size, days, len(blocks))
     u = rng.random(shape)
     hours = np.arange(days, dtype=float)[None, :, None] * 24.0 + lo + u * (hi - lo)
@@ -119,6 +123,8 @@ def shock_impulses(
     rates = np.broadcast_to(_per_series(rate, t2), t2.shape)
     if np.any(np.diff(t2, axis=1) <= 0):
         raise ValueError("times must increase along each series")
+    if events.shape != sizes2.shape or (events.size and events.shape[0] != t2.shape[0]):
+        raise ValueError("give one row of event times and sizes per series")
     out = np.zeros_like(t2)
     if events.size == 0:
         return out if np.ndim(t) == 2 else out[0]
