@@ -140,14 +140,15 @@ def _load(project: Path) -> tuple[Study | None, list[Problem], bool]:
         return None, sink.problems, False
     consenting = set(roster.loc[roster["consent"] == "yes", "participant"])
     withdrawn = set(roster.loc[roster["consent"] == "withdrawn", "participant"])
+    listed = set(roster["participant"])
     roster_where = data.participants.as_posix()
-    kept = _consent_rules(momentary_table.where, prompts.frame, consenting, withdrawn,
+    kept = _consent_rules(momentary_table.where, prompts.frame, consenting, withdrawn, listed,
                           roster_where, settings, sink)
     if events_table is not None and events is not None:
-        events = _consent_rules(events_table.where, events, consenting, withdrawn,
+        events = _consent_rules(events_table.where, events, consenting, withdrawn, listed,
                                 roster_where, settings, sink)
     if questionnaire_table is not None and scores is not None:
-        scores = _consent_rules(questionnaire_table.where, scores, consenting, withdrawn,
+        scores = _consent_rules(questionnaire_table.where, scores, consenting, withdrawn, listed,
                                 roster_where, settings, sink)
     momentary = momentary_frame(kept, settings)
     _late_and_absent(momentary_table.where, kept, momentary, roster, roster_where, settings, sink)
@@ -179,11 +180,12 @@ def _empty(columns: tuple[str, ...]) -> pd.DataFrame:
 
 
 def _consent_rules(where: str, frame: pd.DataFrame, consenting: set[str], withdrawn: set[str],
-                   roster_where: str, settings: StudySettings, sink: Sink) -> pd.DataFrame:
+                   listed: set[str], roster_where: str, settings: StudySettings,
+                   sink: Sink) -> pd.DataFrame:
     """Rows of people not on the roster are errors; withdrawn people's rows are set aside."""
     column = settings.data.columns.participant
     who = frame["participant"]
-    stranger = ~who.isin(consenting | withdrawn)
+    stranger = ~who.isin(listed)
     for person, rows in frame.loc[stranger, "source_row"].groupby(who[stranger]):
         sink.add(error(where, f"participant '{person}' is not in the roster (no consent record)",
                        found=f"{len(rows)} row{'s' if len(rows) > 1 else ''}",

@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 
 from springback.errors import error
-from springback.intake.momentary import TIME_PROBLEMS, _expected, _time_fix
+from springback.intake.momentary import LOCAL_TIME_CODES, TIME_PROBLEMS, _expected, _time_fix
 from springback.intake.problems import Sink
 from springback.intake.readers import Table, as_number, as_text, labelled, missing_mask
 from springback.intake.times import parse_times, zone_texts
@@ -54,7 +54,7 @@ def read_timed(table: Table, settings: StudySettings, sink: Sink,
     usable &= ~no_time
     for code, what in TIME_PROBLEMS.items():
         hit = usable & (times.problem == code).to_numpy()
-        found = [f"'{v}'" + (f" in {z}" if code != "bad-time" else "")
+        found = [f"'{v}'" + (f" in {z}" if code in LOCAL_TIME_CODES else "")
                  for v, z in zip(frame[cols.timestamp][hit], times.zone[hit], strict=True)]
         sink.bad_rows(table.where, rows[hit], who[hit], found, what=what, column=cols.timestamp,
                       expected=_expected(code, settings.data.timestamp_format),

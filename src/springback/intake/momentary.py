@@ -20,6 +20,7 @@ TIME_PROBLEMS = {
     "nonexistent-time": "this local time does not exist (the clocks were put forward)",
     "ambiguous-time": "this local time happens twice (the clocks were put back)",
 }
+LOCAL_TIME_CODES = ("nonexistent-time", "ambiguous-time")
 ZONE_EXPECTED = ("an IANA zone such as Europe/Amsterdam, an offset such as +02:00, or a "
                  "fixed-offset abbreviation such as CET")
 
@@ -82,10 +83,14 @@ def _has_columns(table: Table, wanted: dict[str, str], sink: Sink) -> bool:
         hint = f"did you mean '{close[0]}'? Rename the column, or {how}" if close else \
             f"add the column, or {how}"
         sink.add(error(table.where, f"column '{name}' is missing",
-                       expected=f"a column named '{name}' ({role.removeprefix('items.')})",
+                       expected=f"a column named '{name}' ({_role(role)})",
                        found="columns " + _names(present), fix=hint, column=name,
                        code="missing-column"))
     return ok
+
+
+def _role(role: str) -> str:
+    return f"ratings of item '{role[6:]}'" if role.startswith("items.") else role
 
 
 def _names(names: list[str], limit: int = 8) -> str:
@@ -190,7 +195,7 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
         name = getattr(cols, key)
         for code, what in TIME_PROBLEMS.items():
             hit = given & ~bad & (parsed.problem == code).to_numpy()
-            found = [f"'{v}'" + (f" in {z}" if code != "bad-time" else "")
+            found = [f"'{v}'" + (f" in {z}" if code in LOCAL_TIME_CODES else "")
                      for v, z in zip(raw[key][hit], parsed.zone[hit], strict=True)]
             sink.bad_rows(where, rows[hit], pid[hit], found, what=what, column=name,
                           expected=_expected(code, settings.data.timestamp_format),
@@ -206,11 +211,11 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
                   what="the time is missing", column=cols.timestamp,
                   expected="when the prompt was answered", code="missing-time")
     bad |= no_time
-    out["time"] = answer.to_numpy()
+    out["time"] = answer
     if "scheduled" in times:
-        out["scheduled"] = times["scheduled"][0].utc.to_numpy()
+        out["scheduled"] = times["scheduled"][0].utc
     elif "answered" in times:
-        out["scheduled"] = stamp.utc.to_numpy()
+        out["scheduled"] = stamp.utc
     else:
         out["scheduled"] = pd.Series(pd.NaT, index=out.index, dtype="datetime64[ns, UTC]")
     out["source_row"] = rows

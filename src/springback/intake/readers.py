@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import io
 import re
+import warnings
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -54,7 +55,7 @@ def read_table(path: Path, where: str, *, sheet: str | None = None) -> Table:
             fix="export the data in one of these formats", code="unsupported-format")])
     if not path.is_file():
         raise DataError([error(
-            where, "the file is missing", expected=f"a file at {path}",
+            where, "the file is missing",
             fix="check the file name, or the path under [data] in study.toml",
             code="missing-file")])
     if path.stat().st_size == 0:
@@ -83,8 +84,18 @@ def _read_csv(path: Path, where: str, notes: list[Problem]) -> pd.DataFrame:
                                code="empty-file")])
     delimiter = sniff_delimiter(text)
     try:
-        frame = pd.read_csv(io.StringIO(text), sep=delimiter, dtype=str, keep_default_na=False,
-                            na_filter=False, engine="c", skip_blank_lines=True)
+        with warnings.catch_warnings():
+            # More fields than the header would silently lose data: make it an error.
+            warnings.simplefilter("error", pd.errors.ParserWarning)
+            frame = pd.read_csv(io.StringIO(text), sep=delimiter, dtype=str, index_col=False,
+                                keep_default_na=False, na_filter=False, engine="c",
+                                skip_blank_lines=True)
+    except pd.errors.ParserWarning:
+        raise DataError([error(
+            where, f"the file cannot be read as CSV: {_long_line(text, delimiter)}",
+            expected=f"the same number of '{_name(delimiter)}'-separated fields on every line",
+            fix="look at the line named (an unclosed quote or an extra separator is usual)",
+            code="unreadable")]) from None
     except pd.errors.EmptyDataError:
         raise DataError([error(where, "the file is empty", fix="export the data again",
                                code="empty-file")]) from None
@@ -136,6 +147,17 @@ def sniff_delimiter(text: str) -> str:
     return best
 
 
+def _long_line(text: str, delimiter: str) -> str:
+    """Name the first line with more fields than the header (only called when one exists)."""
+    reader = csv.reader(io.StringIO(text.lstrip("\r\n")), delimiter=delimiter)
+    width = len(next(reader, []))
+    for fields in reader:
+        if len(fields) > width:
+            return (f"line {reader.line_num} has {len(fields)} fields but the header "
+                    f"has {width}")
+    return "a line has more fields than the header"
+
+
 def _name(delimiter: str) -> str:
     return {"\t": "tab"}.get(delimiter, delimiter)
 
@@ -145,6 +167,9 @@ def _parser_detail(exc: Exception) -> str:
     m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", text)
     if m:
         return f"line {m.group(2)} has {m.group(3)} fields but the header has {m.group(1)}"
+    m = re.search(r"EOF inside string starting at row (\d+)", text)
+    if m:
+        return f"a quoted field starting on line {int(m.group(1)) + 1} is never closed"
     return text.removeprefix("Error tokenizing data. C error: ")
 
 
