@@ -155,6 +155,7 @@ def _scrub_build(folder: Path, participant: str, token: str) -> tuple[int, int] 
         elif outcome == "rewritten":
             files[rel] = sha256_file(staging / rel)
             rewritten += 1
+    _drop_named_dirs(staging, pattern)
     mentioned = pattern.search(str(manifest))
     if not (removed or rewritten or participant in people or mentioned):
         shutil.rmtree(staging)
@@ -188,10 +189,15 @@ def _scrub_tree(root: Path, participant: str, others: list[str]) -> tuple[int, i
         outcome = _scrub_file(path, rel, participant, patterns, {"participant"})
         removed += outcome == "removed"
         rewritten += outcome == "rewritten"
-    for folder in sorted((p for p in root.rglob("*") if p.is_dir()), reverse=True):
-        if mentions(participant).search(folder.relative_to(root).as_posix()):
-            shutil.rmtree(folder, ignore_errors=True)
+    _drop_named_dirs(root, mentions(participant))
     return removed, rewritten
+
+
+def _drop_named_dirs(root: Path, pattern: re.Pattern[str]) -> None:
+    """Remove folders whose path names the participant (their files are already gone)."""
+    for folder in sorted((p for p in root.rglob("*") if p.is_dir()), reverse=True):
+        if pattern.search(folder.relative_to(root).as_posix()):
+            shutil.rmtree(folder, ignore_errors=True)
 
 
 def forget(project: Path, participant: str, by: str) -> ErasureReport:
