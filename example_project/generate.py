@@ -137,7 +137,9 @@ def _random_role(kind: str, rng: np.random.Generator) -> dict:
     if u() < 0.03:
         role |= dict(consent="withdrawn", expected="withdrawn: no booklet")
     elif u() < 0.05:
-        role |= dict(feedback="no", expected="no booklet wanted")
+        flags = role.get("expected", "")
+        role |= dict(feedback="no", expected=f"{flags}; no booklet wanted" if flags
+                     else "no booklet wanted")
     return role
 
 

@@ -214,6 +214,18 @@ def test_the_shift_participant_is_worse_after_day_77(data: dict[str, pd.DataFram
     day = (m["time"] - m["time"].min()).dt.days
     mood = _composite(m)
     assert mood[day >= 80].mean() - mood[(day >= 50) & (day < 75)].mean() > 1.2
+    # Critical slowing down before the shift (Scheffer et al. 2009, Nature 461:53-59): carry-over
+    # between same-day prompts and the spread rise as the rate falls from day 28 to day 77.
+    early, late = (day < 28), (day >= 49) & (day < 77)
+    assert _same_day_lag1(m[late], mood[late]) > _same_day_lag1(m[early], mood[early]) + 0.2
+    assert mood[late].std() > 1.4 * mood[early].std()
+
+
+def _same_day_lag1(m: pd.DataFrame, mood: pd.Series) -> float:
+    local = m["time"].dt.tz_convert("Europe/Amsterdam") - pd.Timedelta(hours=4)
+    same = (local.dt.date.to_numpy()[1:] == local.dt.date.to_numpy()[:-1])
+    values = mood.to_numpy()
+    return float(np.corrcoef(values[:-1][same], values[1:][same])[0, 1])
 
 
 def test_the_two_state_participant_has_two_clusters(data: dict[str, pd.DataFrame]) -> None:
