@@ -13,6 +13,7 @@ Translators only edit the `.po` files. The report lists what is left to do per l
 
 from __future__ import annotations
 
+import copy
 import datetime as dt
 import io
 import os
@@ -173,8 +174,14 @@ def extract(root: Path = SOURCE_ROOT) -> list[Path]:
 
 def compile_catalogue(catalog: Catalog) -> bytes:
     """Compile a catalogue to `.mo` bytes (fuzzy messages are left out, as gettext does)."""
+    complete = copy.deepcopy(catalog)
+    # Babel would compile an untranslated plural as empty strings, which gettext then shows
+    # as blank text; leaving it out makes gettext fall back to the English source instead.
+    for message in list(complete):
+        if message.id and not _translated(message):
+            complete.delete(message.id, message.context)
     buffer = io.BytesIO()
-    write_mo(buffer, catalog, use_fuzzy=False)
+    write_mo(buffer, complete, use_fuzzy=False)
     return buffer.getvalue()
 
 
