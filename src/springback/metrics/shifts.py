@@ -1,0 +1,214 @@
+"""Abrupt shifts: change points in the daily means of the composite, found with PELT.
+
+Method: PELT (Killick, Fearnhead & Eckley 2012, "Optimal detection of changepoints with a
+linear computational cost", JASA 107:1590-1598) through the `ruptures` library (Truong, Oudre &
+Vayatis 2020, "Selective review of offline change point detection methods", Signal Processing
+167:107299), cost L2 (change in mean), every day a candidate (`jump=1`; the library's default of
+5 moves change points to multiples of 5), shortest segment `metrics.min_segment_days`.
+
+Penalty: `metrics.pelt_penalty` when set, else the BIC-type beta = 2 s^2 ln n on the L2 cost,
+with n the number of days and s a robust estimate of the day-to-day noise SD: the median
+absolute deviation (scaled by 1.4826 to estimate an SD under normality; Rousseeuw & Croux 1993,
+JASA 88:1273-1283) of the first differences of the daily means, divided by sqrt 2 because a
+difference of two independent days has twice the variance. Differencing makes s insensitive to
+the level shifts being looked for (common practice in change-point work, e.g. Fryzlewicz 2014,
+Annals of Statistics 42:2243-2281, from memory).
+
+Days without answers are skipped: the series is the sequence of days with at least one answer.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import ruptures as rpt
+
+from springback.metrics._series import Series
+from springback.metrics.results import Estimate, Family, ParticipantResults
+from springback.settings import StudySettings
+
+METHOD = "PELT"
+MAD_TO_SD = 1.4826
+"""Scales a median absolute deviation to an SD for normal data (Rousseeuw & Croux 1993)."""
+SWING_FACTOR = 2.0
+"""A shift 'exceeds the person's own swings' when |size| > 2 x the within-segment SD of days."""
+NEARBY_DAYS = 7
+"""Questionnaire sudden gains/losses this many days either side of a shift are cross-referenced;
+questionnaires are typically weekly, so a week is the closest they can bracket a shift."""
+
+SHIFT_CSV_COLUMNS = ("participant", "date", "direction", "size", "method")
+
+
+def daily_means(study_day: np.ndarray, value: np.ndarray) -> pd.DataFrame:
+    """Return study_day, mean and n of answered values per study day with an answer."""
+    frame = pd.DataFrame({"study_day": np.asarray(study_day, dtype="datetime64[ns]"),
+                          "value": np.asarray(value, dtype=float)}).dropna()
+    grouped = frame.groupby("study_day", sort=True)["value"]
+    out = pd.DataFrame({"mean": grouped.mean(), "n": grouped.size()}).reset_index()
+    out["n"] = out["n"].astype(int)
+    return out
+
+
+def noise_scale(y: np.ndarray) -> float:
+    """Estimate the day-to-day noise SD robustly: scaled MAD of first differences / sqrt 2."""
+    d = np.diff(np.asarray(y, dtype=float))
+    if d.size == 0:
+        return 0.0
+    mad = MAD_TO_SD * float(np.median(np.abs(d - np.median(d))))
+    if mad > 0:
+        return mad / math.sqrt(2.0)
+    # Why: when most days repeat the same mean the MAD is 0; the mean absolute difference
+    # (times sqrt(pi/2), its SD scaling under normality) still sees the few days that move.
+    return float(np.mean(np.abs(d))) * math.sqrt(math.pi / 2.0) / math.sqrt(2.0)
+
+
+def default_penalty(y: np.ndarray) -> float:
+    """Return the BIC-type penalty 2 s^2 ln n for an L2 cost (s from `noise_scale`)."""
+    n = len(y)
+    s = noise_scale(y)
+    return 2.0 * s * s * math.log(max(n, 2))
+
+
+def pelt_changepoints(y: np.ndarray, penalty: float, min_size: int) -> list[int]:
+    """Return the indices where a new segment starts (PELT, L2 cost, jump 1), 0 and n excluded."""
+    y = np.asarray(y, dtype=float)
+    if len(y) < 2 * min_size or penalty <= 0 or np.ptp(y) == 0:
+        return []
+    algo = rpt.Pelt(model="l2", min_size=min_size, jump=1).fit(y.reshape(-1, 1))
+    ends = algo.predict(pen=penalty)
+    return [int(e) for e in ends[:-1]]
+
+
+def segment_levels(y: np.ndarray, starts: list[int]) -> tuple[np.ndarray, float]:
+    """Return each day's segment mean and the pooled within-segment SD of the days."""
+    y = np.asarray(y, dtype=float)
+    bounds = [0, *starts, len(y)]
+    level = np.empty_like(y)
+    for a, b in itertools.pairwise(bounds):
+        level[a:b] = y[a:b].mean()
+    dof = len(y) - (len(bounds) - 1)
+    pooled = math.sqrt(float(np.sum((y - level) ** 2)) / dof) if dof > 0 else float("nan")
+    return level, pooled
+
+
+def _sudden_events(questionnaires: Family | None) -> list[tuple[pd.Timestamp, str]]:
+    """Collect (date, 'sudden gain on q' or 'sudden loss on q') from the questionnaires family."""
+    if questionnaires is None:
+        return []
+    found = []
+    for name, table in questionnaires.tables.items():
+        if not name.startswith("sudden_") or table.empty:
+            continue
+        q = name.removeprefix("sudden_")
+        for when, kind in zip(table["local_time"], table["kind"], strict=False):
+            stamp = pd.Timestamp(when)
+            # Why: local wall-clock date; the day-start shift is immaterial at a week's tolerance.
+            day = (stamp.tz_localize(None) if stamp.tzinfo else stamp).normalize()
+            found.append((day, f"sudden {kind} on {q}"))
+    return found
+
+
+def _nearby(day: pd.Timestamp, events: list[tuple[pd.Timestamp, str]]) -> str:
+    """Describe questionnaire sudden gains/losses within NEARBY_DAYS of a shift's first day."""
+    near = [
+        f"{text} ({when.date().isoformat()})"
+        for when, text in events
+        if abs((when - day).days) <= NEARBY_DAYS
+    ]
+    return "; ".join(near)
+
+
+def shift_family(
+    series: Series, settings: StudySettings, questionnaires: Family | None = None
+) -> Family:
+    """Find abrupt shifts in daily means; `questionnaires` is that family's result, if any."""
+    variable = series.variable
+    worse_sign = 1.0 if series.higher_is_worse else -1.0
+    min_size = settings.metrics.min_segment_days
+    daily = daily_means(series.study_day, series.value)
+    params: dict[str, Any] = {"method": METHOD, "cost": "L2 (change in mean)", "jump": 1,
+                              "min_segment_days": min_size, "swing_factor": SWING_FACTOR,
+                              "nearby_days": NEARBY_DAYS, "variable": variable}
+    empty_cp = pd.DataFrame(
+        {"study_day": pd.Series([], dtype="datetime64[ns]"), "direction": pd.Series([], dtype=str),
+         "size": pd.Series([], dtype=float), "method": pd.Series([], dtype=str),
+         "exceeds_swings": pd.Series([], dtype=bool),
+         "questionnaire_nearby": pd.Series([], dtype=str)}
+    )
+    n_days = len(daily)
+    if n_days < 2 * min_size:
+        reason = (f"shifts need at least {2 * min_size} days with answers "
+                  f"(two segments of {min_size} days); there were {n_days}")
+        return Family(
+            estimates={"n_shifts": Estimate.missing(reason, n=n_days),
+                       "shift_largest": Estimate.missing(reason, n=n_days)},
+            tables={"daily": daily[["study_day", "mean", "n"]], "change_points": empty_cp},
+            params=params,
+        )
+    y = daily["mean"].to_numpy()
+    s = noise_scale(y)
+    penalty = settings.metrics.pelt_penalty or 2.0 * s * s * math.log(n_days)
+    starts = pelt_changepoints(y, penalty, min_size)
+    level, pooled = segment_levels(y, starts)
+    daily = daily.assign(level=level)
+    params.update(penalty=penalty, penalty_rule="set in study.toml" if
+                  settings.metrics.pelt_penalty else "2 s^2 ln n (BIC-type)",
+                  noise_sd=s, within_segment_sd=pooled)
+    events = _sudden_events(questionnaires)
+    rows = []
+    for i in starts:
+        size = worse_sign * float(level[i] - level[i - 1])
+        day = pd.Timestamp(daily["study_day"].iloc[i])
+        rows.append({
+            "study_day": day,
+            "direction": "worse" if size > 0 else "better",
+            "size": size,
+            "method": METHOD,
+            "exceeds_swings": bool(math.isfinite(pooled) and abs(size) > SWING_FACTOR * pooled),
+            "questionnaire_nearby": _nearby(day, events),
+        })
+    change_points = pd.DataFrame(rows) if rows else empty_cp
+    note = (f"PELT on {n_days} daily means, L2 cost, penalty {penalty:.3g}, "
+            f"segments of at least {min_size} days")
+    if rows:
+        largest = max(rows, key=lambda r: abs(r["size"]))
+        n_big = sum(r["exceeds_swings"] for r in rows)
+        shift_largest = Estimate(
+            largest["size"], n=n_days,
+            note=f"{largest['direction']} on {largest['study_day'].date().isoformat()}; "
+                 f"{n_big} of {len(rows)} shifts exceed twice the usual day-to-day swing "
+                 f"({pooled:.2f})",
+        )
+    else:
+        shift_largest = Estimate.missing("no change point was found", n=n_days)
+    return Family(
+        estimates={"n_shifts": Estimate(float(len(rows)), n=n_days, note=note),
+                   "shift_largest": shift_largest},
+        tables={"daily": daily[["study_day", "mean", "n", "level"]],
+                "change_points": change_points},
+        params=params,
+    )
+
+
+def shift_rows(results: ParticipantResults) -> list[dict[str, Any]]:
+    """Rows of out/shifts.csv for one participant (one per detected shift)."""
+    family = results.families.get("shifts")
+    if family is None or "change_points" not in family.tables:
+        return []
+    table = family.tables["change_points"]
+    return [
+        {
+            "participant": results.participant,
+            "date": pd.Timestamp(day).date().isoformat(),
+            "direction": direction,
+            "size": float(size),
+            "method": method,
+        }
+        for day, direction, size, method in zip(
+            table["study_day"], table["direction"], table["size"], table["method"], strict=False
+        )
+    ]
