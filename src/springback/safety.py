@@ -122,7 +122,7 @@ def _window_words(rule: SafetyRule) -> str:
 
 
 def _threshold_flag(pid: str, rule: SafetyRule, times: pd.Series, values: pd.Series,
-                    noun: str, end: pd.Timestamp | None) -> Flag | None:
+                    nouns: tuple[str, str], end: pd.Timestamp | None) -> Flag | None:
     """Flag the latest value crossing the rule's bound, counting every crossing."""
     keep = values.notna()
     if rule.within_days and end is not None:
@@ -139,8 +139,7 @@ def _threshold_flag(pid: str, rule: SafetyRule, times: pd.Series, values: pd.Ser
     last = order.index[-1]
     value, day = float(values[last]), times[last].date().isoformat()
     count = int(hit.sum())
-    many = "s" if count != 1 else ""
-    detail = (f"{count} {noun}{many} at {_bound_words(rule)}{_window_words(rule)}; "
+    detail = (f"{count} {nouns[count != 1]} at {_bound_words(rule)}{_window_words(rule)}; "
               f"the latest was {value:g} on {day}")
     return Flag(pid, rule.name, rule.action, value, day, detail)
 
@@ -206,13 +205,15 @@ def evaluate(data: ParticipantData, results: ParticipantResults, settings: Study
                 label = settings.questionnaires[rule.questionnaire].label.get(
                     "en", rule.questionnaire)
                 flag = _threshold_flag(pid, rule, _local(rows["local_time"], tz),
-                                       rows["score"].astype(float), f"{label} score", end)
+                                       rows["score"].astype(float),
+                                       (f"{label} score", f"{label} scores"), end)
         elif rule.item is not None:
             m = data.momentary
             if len(m) and rule.item in m.columns:
                 label = settings.label_of(rule.item, "en")
                 flag = _threshold_flag(pid, rule, _local(m["local_time"], tz),
-                                       m[rule.item].astype(float), f"rating of '{label}'", end)
+                                       m[rule.item].astype(float),
+                                       (f"rating of '{label}'", f"ratings of '{label}'"), end)
         elif rule.shift:
             flag = _shift_flag(pid, rule, results, end, settings.label_of(settings.about, "en"))
         elif rule.silence_days is not None:
