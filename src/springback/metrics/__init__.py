@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from springback.metrics import descriptives, dynamics, recovery
+from springback.metrics import descriptives, dynamics, questionnaires, recovery, warnings
 from springback.metrics._series import prepare
 from springback.metrics.results import Family, ParticipantResults, to_rows
 from springback.model import ParticipantData
@@ -26,6 +26,8 @@ def compute(data: ParticipantData, settings: StudySettings) -> ParticipantResult
     families["descriptives"] = descriptives.describe(series, data, settings)
     families["dynamics"] = dynamics.carry_over(series, settings)
     families["recovery"] = recovery.bounce_back(series, data, settings)
+    families["warnings"] = warnings.early_warnings(series, settings, data.participant)
+    families["questionnaires"] = questionnaires.questionnaire_family(data.questionnaires, settings)
     return ParticipantResults(participant=data.participant, variable=series.variable,
                               families=families, enough_data=enough, reason=reason)
 

@@ -64,34 +64,63 @@ def phase_surrogates(x: np.ndarray, n: int, rng: np.random.Generator) -> np.ndar
     return np.fft.irfft(spectrum * np.exp(1j * phases), n=length, axis=1)
 
 
+def phase_surrogates_multi(x: np.ndarray, n: int, rng: np.random.Generator) -> np.ndarray:
+    """Make n phase-randomised copies of the columns of x (len, p) with shared random phases.
+
+    Prichard & Theiler 1994, "Generating surrogate data for time series with several
+    simultaneously measured variables", Phys Rev Lett 73:951: adding the same phases to every
+    column keeps each power spectrum and the cross-spectra, hence the cross-correlations.
+    Returns an (n, len, p) array.
+    """
+    x = np.asarray(x, dtype=float)
+    length = x.shape[0]
+    spectrum = np.fft.rfft(x.T, axis=1)  # (p, freq)
+    phases = rng.uniform(0.0, 2.0 * np.pi, (n, spectrum.shape[1]))
+    phases[:, 0] = 0.0
+    if length % 2 == 0:
+        phases[:, -1] = 0.0
+    rotated = spectrum[None, :, :] * np.exp(1j * phases)[:, None, :]
+    return np.fft.irfft(rotated, n=length, axis=2).transpose(0, 2, 1)
+
+
 def _dense_ranks(y: np.ndarray) -> np.ndarray:
-    """Dense ranks (ties share a rank) of each row, as small integers."""
-    order = np.argsort(y, axis=1)
-    sorted_y = np.take_along_axis(y, order, axis=1)
+    """Dense ranks (ties share a rank) down each column, as small integers."""
+    order = np.argsort(y, axis=0)
+    sorted_y = np.take_along_axis(y, order, axis=0)
     step = np.ones(y.shape, dtype=bool)
-    step[:, 1:] = sorted_y[:, 1:] != sorted_y[:, :-1]
-    dtype = np.int16 if y.shape[1] < np.iinfo(np.int16).max else np.int32
-    dense = (np.cumsum(step, axis=1) - 1).astype(dtype)
+    step[1:] = sorted_y[1:] != sorted_y[:-1]
+    dtype = np.int16 if y.shape[0] < np.iinfo(np.int16).max else np.int32
+    dense = (np.cumsum(step, axis=0) - 1).astype(dtype)
     ranks = np.empty(y.shape, dtype=dtype)
-    np.put_along_axis(ranks, order, dense, axis=1)
+    np.put_along_axis(ranks, order, dense, axis=0)
     return ranks
 
 
 def kendall_tau_rows(y: np.ndarray) -> np.ndarray:
-    """Kendall's tau-b of each row of y against its position 0..k-1 (NaN rows give NaN).
+    """Kendall's tau-b of each row of y (m, k) against its position 0..k-1 (NaN rows give NaN).
 
-    Equals scipy.stats.kendalltau(range(k), row).statistic for each row. Time has no ties,
-    so tau-b = S / sqrt(n0 * (n0 - T)), S = sum over i<j of sign(y_j - y_i), n0 = k(k-1)/2 and
-    T the pairs tied in y. The sum runs over lags (k - 1 vectorised steps over all rows) on
-    small integer ranks, which is several times faster than comparing floats.
+    Equals scipy.stats.kendalltau(range(k), row).statistic for each row.
     """
-    y = np.atleast_2d(np.asarray(y, dtype=float))
-    m, k = y.shape
+    return kendall_tau_columns(np.atleast_2d(np.asarray(y, dtype=float)).T)
+
+
+def kendall_tau_columns(y: np.ndarray) -> np.ndarray:
+    """Kendall's tau-b of each column of y (k, m) against its position 0..k-1.
+
+    Time has no ties, so tau-b = S / sqrt(n0 * (n0 - T)) with S = sum over i<j of
+    sign(y_j - y_i), n0 = k(k-1)/2 and T the pairs tied in y (Kendall 1945, "The treatment of
+    ties in ranking problems", Biometrika 33:239-251). S is summed over lags: k - 1 vectorised
+    steps over all columns, on small integer ranks (several times faster than on floats).
+    """
+    y = np.asarray(y, dtype=float)
+    if y.ndim == 1:
+        y = y[:, None]
+    k, m = y.shape
     out = np.full(m, np.nan)
     if k < 2 or m == 0:
         return out
-    bad = ~np.isfinite(y).all(axis=1)
-    ranks = np.ascontiguousarray(_dense_ranks(np.where(bad[:, None], 0.0, y)).T)
+    bad = ~np.isfinite(y).all(axis=0)
+    ranks = _dense_ranks(np.where(bad[None, :], 0.0, y))
     sign_sum = np.zeros((k, m), dtype=ranks.dtype)
     untied = np.zeros((k, m), dtype=ranks.dtype)
     buf = np.empty((k, m), dtype=ranks.dtype)
