@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import datetime as dt
 from dataclasses import dataclass, replace
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from springback import render
 from springback.metrics.results import Estimate, Family, ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import StudySettings, from_mapping
@@ -16,6 +19,9 @@ EVIL = "<script>alert(1)</script>"
 """A user-supplied string that must come out escaped wherever it is shown."""
 
 ZONE = "Europe/Amsterdam"
+BUILT = dt.datetime(2026, 3, 25, 9, 30, tzinfo=dt.UTC)
+CHART_KEYS = ("mood", "calendar", "recovery", "warnings", "grid", "landscape",
+              "questionnaire_phq9")
 
 
 def sample_settings(title: str = "Harbour Light Mood Study", **booklet: Any) -> StudySettings:
@@ -204,3 +210,22 @@ class SampleFlag:
     value: float | None
     when: str
     detail: str
+
+
+def render_booklet(edition: str, *, settings: StudySettings | None = None,
+                   data: ParticipantData | None = None,
+                   results: ParticipantResults | None = None, flags: tuple[Any, ...] = (),
+                   charts: dict[str, Any] | None = None,
+                   project_templates: Path | None = None,
+                   review_state: str = "not needed") -> str:
+    """Render one edition of the sample booklet (all sample charts unless given)."""
+    settings = settings or sample_settings()
+    data = data or sample_data()
+    results = results or sample_results(data)
+    charts = {k: sample_chart(k) for k in CHART_KEYS} if charts is None else charts
+    env = render.make_environment(project_templates, "en", timezone=ZONE)
+    ctx = render.build_context(
+        settings=settings, data=data, results=results, flags=list(flags),
+        review_state=review_state, charts=charts, edition=edition, language="en", version=3,
+        built_at=BUILT, tool_version="0.1.0")
+    return render.render_edition(env, ctx, edition)

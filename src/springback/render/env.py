@@ -35,7 +35,6 @@ def make_environment(
         autoescape=jinja2.select_autoescape(["html", "htm", "xml"], default_for_string=True),
         extensions=["jinja2.ext.i18n"],
         undefined=jinja2.StrictUndefined,
-        trim_blocks=True,
         lstrip_blocks=True,
     )
     catalogue = i18n.translations(language)
