@@ -1,0 +1,308 @@
+"""Charts of change: recovery after dips and events, rolling indicators, the sensitivity grid."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from springback.charts.common import (
+    Chart,
+    Inputs,
+    KeyItem,
+    day_noon_ms,
+    direction_words,
+    key_spec,
+    records,
+    time_axis,
+)
+from springback.charts.svg import PLOT_WIDTH, to_svg
+from springback.palette import CHART, DIVERGING, readable_text_on
+
+SOLID, DASHED = [1, 0], [5, 4]
+
+
+def recovery_chart(ctx: Inputs) -> Chart | None:
+    """Episodes aligned at their start, with the pooled fitted return curve."""
+    _ = ctx.gettext
+    aligned = ctx.table("recovery", "aligned")
+    episodes = ctx.table("recovery", "episodes")
+    if aligned is None or episodes is None:
+        return None
+    aligned = aligned.dropna(subset=["hours", "deviation"])
+    censored = dict(zip(episodes["episode"], episodes["censored"].astype(bool), strict=True))
+    back, not_back = _("got back to usual"), _("not back before night or the end")
+    lines = aligned.assign(status=[not_back if censored.get(e, False) else back
+                                   for e in aligned["episode"]])
+    top = float(max(lines["deviation"].max(), 0.0))
+    bottom = float(min(lines["deviation"].min(), 0.0)) - 0.12 * (top or 1.0)
+    x = {"type": "quantitative", "axis": {"title": _("Hours after the dip or event")},
+         "scale": {"zero": True, "nice": True}}
+    y = {"type": "quantitative", "scale": {"domain": [bottom, top * 1.05], "nice": False},
+         "axis": {"title": _("Distance from your usual level (higher = worse)")}}
+    usual = [{"y": 0.0, "label": _("your usual level")}]
+    layers: list[dict[str, Any]] = [
+        {"data": {"values": usual},
+         "mark": {"type": "rule", "color": CHART.axis, "strokeWidth": 1.5},
+         "encoding": {"y": {"field": "y", **y}}},
+        {"data": {"values": usual},
+         "mark": {"type": "text", "align": "right", "baseline": "top", "dy": 4,
+                  "color": CHART.ink},
+         "encoding": {"x": {"value": PLOT_WIDTH}, "y": {"field": "y", **y},
+                      "text": {"field": "label"}}},
+        {"data": {"values": records(lines[["episode", "hours", "deviation", "status"]])},
+         "mark": {"type": "line", "color": CHART.neutral, "strokeWidth": 1.4},
+         "encoding": {"x": {"field": "hours", **x}, "y": {"field": "deviation", **y},
+                      "detail": {"field": "episode", "type": "nominal"},
+                      "strokeDash": {"field": "status", "type": "nominal",
+                                     "scale": {"domain": [back, not_back],
+                                               "range": [SOLID, DASHED]},
+                                     "legend": None}}},
+    ]
+    key = [KeyItem(_("one time: got back to usual"), CHART.neutral, width=1.5),
+           KeyItem(_("one time: not back before night or the end"), CHART.neutral,
+                   dash=tuple(DASHED), width=1.5)]
+    fit = ctx.table("recovery", "fit")
+    if fit is not None:
+        layers.append(
+            {"data": {"values": records(fit[["hours", "deviation"]].dropna())},
+             "mark": {"type": "line", "color": CHART.accent, "strokeWidth": 3.5},
+             "encoding": {"x": {"field": "hours", **x}, "y": {"field": "deviation", **y}}})
+        key.insert(0, KeyItem(_("typical way back (fitted curve)"), CHART.accent, width=3.5))
+    plot = {"width": PLOT_WIDTH, "height": 240, "layer": layers}
+    spec = {"vconcat": [key_spec(key, PLOT_WIDTH), plot], "spacing": 10}
+    title = _("Bouncing back after dips and events")
+    description = _recovery_description(ctx, episodes)
+    return Chart("recovery", title, description,
+                 to_svg(spec, "recovery", title, description, ctx.language),
+                 _recovery_table(ctx, episodes), _("Each dip or event and how long it lasted"))
+
+
+def _recovery_description(ctx: Inputs, episodes: pd.DataFrame) -> str:
+    _ = ctx.gettext
+    n = len(episodes)
+    n_back = int((~episodes["censored"].astype(bool)).sum())
+    parts = [_("We found {n} times when your mood dipped or an upsetting event happened. "
+               "In {back} of them your mood got back to your usual level before night or "
+               "the end of the study.").format(n=n, back=n_back)]
+    median = ctx.estimate("recovery", "median_recovery_hours")
+    if median.ok:
+        parts.append(_("Getting back usually took {time}.").format(
+            time=ctx.hours_words(float(median.value))))
+    half = ctx.estimate("recovery", "recovery_half_life_hours")
+    if half.ok:
+        parts.append(_("The fitted curve is half-way back after {time}.").format(
+            time=ctx.hours_words(float(half.value))))
+    else:
+        parts.append(_("There were too few of these times to fit a curve."))
+    return " ".join(parts)
+
+
+def _recovery_table(ctx: Inputs, episodes: pd.DataFrame) -> pd.DataFrame:
+    _ = ctx.gettext
+    reasons = {"night": _("not back before night"), "end": _("not back before the end"),
+               "next event": _("next event came first")}
+    starts = ctx.wall_clock(episodes["start"])
+    what = [(str(k) if t == "event" and isinstance(k, str) and k else _("a dip"))
+            for t, k in zip(episodes["trigger"], episodes["kind"], strict=True)]
+    hours = [reasons.get(str(r), _("not back")) if bool(c) else ctx.num(h)
+             for h, c, r in zip(episodes["hours_to_baseline"], episodes["censored"],
+                                episodes["censored_by"], strict=True)]
+    return pd.DataFrame({
+        _("Start"): [f"{ctx.date_short(s)} {ctx.time_of_day(s)}" for s in starts],
+        _("What happened"): what,
+        _("How far from usual"): [ctx.num(d) for d in episodes["depth"]],
+        _("Hours to get back"): hours,
+    })
+
+
+INDICATORS = (("ar1", "warning_tau_inertia", "primary"),
+              ("variance", "warning_tau_variance", "secondary"))
+
+
+def _daily_last(ctx: Inputs, rolling: pd.DataFrame, column: str) -> pd.DataFrame:
+    """The last window ending on each day (a daily series is enough to see a trend)."""
+    wall = ctx.wall_clock(rolling["local_time"])
+    frame = pd.DataFrame({"day": wall.dt.normalize(), "v": rolling[column].to_numpy()})
+    return frame.dropna().groupby("day", sort=True).last().reset_index()
+
+
+def warnings_chart(ctx: Inputs) -> Chart | None:
+    """Rolling carry-over and variance, each with its Theil–Sen trend line and Kendall's tau."""
+    _ = ctx.gettext
+    rolling = ctx.table("warnings", "rolling")
+    if rolling is None:
+        return None
+    names = {"ar1": _("Carry-over (lag-1 autocorrelation)"),
+             "variance": _("Ups and downs (variance)")}
+    panels, found = [], {}
+    for column, measure, colour in INDICATORS:
+        if column not in rolling.columns:
+            continue
+        daily = _daily_last(ctx, rolling, column)
+        if len(daily) < 2:
+            continue
+        found[column] = daily
+        panels.append(_indicator_panel(ctx, daily, names[column], measure,
+                                       getattr(CHART, colour)))
+    for panel in panels[:-1]:
+        for layer in panel["layer"]:
+            layer["encoding"]["x"]["axis"] = {**layer["encoding"]["x"]["axis"], "title": None}
+    if not panels:
+        return None
+    spec = {"vconcat": panels, "spacing": 18}
+    title = _("How the indicators changed over the study")
+    description = _warnings_description(ctx)
+    table = _warnings_table(ctx, found)
+    return Chart("warnings", title, description,
+                 to_svg(spec, "warnings", title, description, ctx.language), table,
+                 _("Indicator values at the end of each day"))
+
+
+def _indicator_panel(ctx: Inputs, daily: pd.DataFrame, name: str, measure: str,
+                     colour: str) -> dict[str, Any]:
+    _ = ctx.gettext
+    t = day_noon_ms(ctx, daily["day"])
+    frame = pd.DataFrame({"t": t, "v": daily["v"].to_numpy()})
+    # Theil–Sen slope (Sen 1968): the rank-based line that goes with Kendall's tau.
+    slope, intercept, _lo, _hi = stats.theilslopes(frame["v"], (t - t[0]) / 86_400_000)
+    ends = pd.DataFrame({"t": [t[0], t[-1]],
+                         "v": [intercept, intercept + slope * (t[-1] - t[0]) / 86_400_000]})
+    tau = ctx.estimate("warnings", measure)
+    note = (_("dashed line: trend; Kendall's tau {tau}").format(tau=ctx.num(float(tau.value), 2))
+            if tau.ok else _("dashed line: trend; Kendall's tau not computed"))
+    x = time_axis(ctx, _("Date"), t)
+    y = {"type": "quantitative", "scale": {"zero": False}, "axis": {"title": None}}
+    return {
+        "title": {"text": name, "subtitle": note, "subtitleColor": CHART.ink,
+                  "subtitleFontSize": 13},
+        "width": PLOT_WIDTH, "height": 120,
+        "layer": [
+            {"data": {"values": records(frame)},
+             "mark": {"type": "line", "color": colour, "strokeWidth": 2.5},
+             "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}},
+            {"data": {"values": records(ends)},
+             "mark": {"type": "line", "color": CHART.axis, "strokeWidth": 2,
+                      "strokeDash": [6, 4]},
+             "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}},
+        ],
+    }
+
+
+def _warnings_description(ctx: Inputs) -> str:
+    _ = ctx.gettext
+    tau_i = ctx.estimate("warnings", "warning_tau_inertia")
+    tau_v = ctx.estimate("warnings", "warning_tau_variance")
+    parts = [
+        _("Carry-over from one moment to the next {change} over the study.").format(
+            change=direction_words(ctx, tau_i.value if tau_i.ok else None)),
+        _("The size of your ups and downs {change}.").format(
+            change=direction_words(ctx, tau_v.value if tau_v.ok else None)),
+        _("The dashed lines show the overall trend. Such changes often come and go without "
+          "any shift in mood, so they are not a prediction."),
+    ]
+    return " ".join(parts)
+
+
+def _warnings_table(ctx: Inputs, found: dict[str, pd.DataFrame]) -> pd.DataFrame:
+    _ = ctx.gettext
+    headers = {"ar1": _("Carry-over"), "variance": _("Variance")}
+    merged: pd.DataFrame | None = None
+    for column, daily in found.items():
+        part = daily.rename(columns={"v": column})
+        merged = part if merged is None else merged.merge(part, on="day", how="outer")
+    assert merged is not None
+    merged = merged.sort_values("day")
+    out = {_("Date"): [ctx.date_short(d) for d in merged["day"]]}
+    for column in found:
+        out[headers[column]] = [ctx.num(v, 2) for v in merged[column]]
+    return pd.DataFrame(out)
+
+
+def _tau_fill(tau: float) -> str:
+    """The diverging fill for a tau value (the value itself is written in the cell)."""
+    if not math.isfinite(tau):
+        return CHART.background
+    edges = (-0.5, -0.1, 0.1, 0.5)
+    return DIVERGING[int(np.searchsorted(edges, tau, side="right"))]
+
+
+def grid_chart(ctx: Inputs) -> Chart | None:
+    """Kendall's tau of both indicators for every window and smoothing bandwidth tried."""
+    _ = ctx.gettext
+    grid = ctx.table("warnings", "grid")
+    if grid is None:
+        return None
+    alpha = float(ctx.param("warnings", "alpha", ctx.settings.metrics.alpha))
+    windows = sorted(grid["window"].unique())
+    bands = sorted(grid["bandwidth_days"].unique())
+    window_names = {w: ctx.percent(float(w)) for w in windows}
+    band_names = {b: ctx.num(float(b), 0 if float(b).is_integer() else 1) for b in bands}
+    panels = []
+    names = {"inertia": _("Carry-over"), "variance": _("Variance")}
+    for which in ("inertia", "variance"):
+        tau, p = grid[f"tau_{which}"].astype(float), grid[f"p_{which}"].astype(float)
+        fills = [_tau_fill(v) for v in tau]
+        cells = pd.DataFrame({
+            "w": [window_names[w] for w in grid["window"]],
+            "b": [band_names[b] for b in grid["bandwidth_days"]],
+            "label": [ctx.num(v, 2) + ("*" if pv < alpha else "") if math.isfinite(v) else "–"
+                      for v, pv in zip(tau, p, strict=True)],
+            "fill": fills, "ink": [readable_text_on(f) for f in fills],
+        })
+        x = {"field": "w", "type": "ordinal", "sort": list(window_names.values()),
+             "axis": {"title": _("Window (share of prompts)"), "labelAngle": 0}}
+        y = {"field": "b", "type": "ordinal", "sort": list(band_names.values()),
+             "axis": {"title": _("Smoothing (days)")}}
+        panels.append({
+            "title": names[which], "data": {"values": records(cells)},
+            "width": 52 * len(windows), "height": 30 * len(bands),
+            "layer": [
+                {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},
+                 "encoding": {"x": x, "y": y,
+                              "fill": {"field": "fill", "type": "nominal", "scale": None}}},
+                {"mark": {"type": "text", "fontSize": 13},
+                 "encoding": {"x": x, "y": y, "text": {"field": "label"},
+                              "fill": {"field": "ink", "type": "nominal", "scale": None}}},
+            ],
+        })
+    spec = {"hconcat": panels, "spacing": 24}
+    title = _("How much the trends depend on the analysis choices")
+    description = _grid_description(ctx, grid, alpha)
+    return Chart("grid", title, description,
+                 to_svg(spec, "grid", title, description, ctx.language),
+                 _grid_table(ctx, grid, window_names, band_names),
+                 _("Kendall's tau and p-value for each window and smoothing"))
+
+
+def _grid_description(ctx: Inputs, grid: pd.DataFrame, alpha: float) -> str:
+    _ = ctx.gettext
+    n = len(grid)
+    parts = [_("Numbers are Kendall's tau of each indicator over time; above 0 means rising. "
+               "A star marks p below {alpha}.").format(alpha=ctx.num(alpha, 2))]
+    for which, text in (
+        ("inertia", _("Carry-over rose in {up} of {n} analyses and significantly in {sig}.")),
+        ("variance", _("Variance rose in {up} of {n} analyses and significantly in {sig}.")),
+    ):
+        tau = grid[f"tau_{which}"].astype(float)
+        p = grid[f"p_{which}"].astype(float)
+        parts.append(text.format(up=int((tau > 0).sum()), n=n,
+                                 sig=int(((tau > 0) & (p < alpha)).sum())))
+    return " ".join(parts)
+
+
+def _grid_table(ctx: Inputs, grid: pd.DataFrame, window_names: dict[Any, str],
+                band_names: dict[Any, str]) -> pd.DataFrame:
+    _ = ctx.gettext
+    ordered = grid.sort_values(["window", "bandwidth_days"])
+    return pd.DataFrame({
+        _("Window"): [window_names[w] for w in ordered["window"]],
+        _("Smoothing (days)"): [band_names[b] for b in ordered["bandwidth_days"]],
+        _("Tau, carry-over"): [ctx.num(v, 2) for v in ordered["tau_inertia"]],
+        _("p, carry-over"): [ctx.num(v, 3) for v in ordered["p_inertia"]],
+        _("Tau, variance"): [ctx.num(v, 2) for v in ordered["tau_variance"]],
+        _("p, variance"): [ctx.num(v, 3) for v in ordered["p_variance"]],
+    })

@@ -1,0 +1,302 @@
+"""What every chart builder shares: the inputs, language-aware formatting, times for Vega-Lite."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from functools import cached_property
+from typing import Any
+
+import babel.dates
+import numpy as np
+import pandas as pd
+
+from springback.i18n import LOCALES, LocaleFormat
+from springback.metrics.results import Estimate, Family, ParticipantResults
+from springback.model import ParticipantData
+from springback.settings import StudySettings
+
+_MS_PER_DAY = 86_400_000
+CHAR_WIDTH = 6.9
+"""Estimated mean width in px of a character of the 13 px booklet font (for wrapping keys)."""
+
+
+@dataclass(frozen=True)
+class Chart:
+    """One chart of a booklet: inline SVG plus its text alternative and data table."""
+
+    key: str
+    title: str
+    description: str
+    """The text alternative in plain words; states the pattern the chart shows."""
+    svg: str
+    """Inline <svg role="img" aria-labelledby=...> with <title> and <desc>; ids namespaced."""
+    table: pd.DataFrame
+    """The chart's data, display-ready: translated column names, cells formatted as text."""
+    table_caption: str
+
+
+@dataclass(frozen=True)
+class Inputs:
+    """One participant's inputs to the chart builders, with formatting in their language."""
+
+    data: ParticipantData
+    results: ParticipantResults
+    settings: StudySettings
+    language: str
+    gettext: Callable[[str], str]
+
+    # -- where the numbers come from -----------------------------------------------------
+    def family(self, name: str) -> Family | None:
+        """The metric family, or None when it was not computed."""
+        return self.results.families.get(name)
+
+    def table(self, family: str, name: str) -> pd.DataFrame | None:
+        """A family's table, or None when the family or table is absent or empty."""
+        fam = self.family(family)
+        if fam is None:
+            return None
+        frame = fam.tables.get(name)
+        if frame is None or len(frame) == 0:
+            return None
+        return frame
+
+    def estimate(self, family: str, measure: str) -> Estimate:
+        """An estimate of a family; missing (with a reason) when not reported."""
+        fam = self.family(family)
+        if fam is None or measure not in fam.estimates:
+            return Estimate.missing("not computed")
+        return fam.estimates[measure]
+
+    def param(self, family: str, name: str, default: Any = None) -> Any:
+        """A family's parameter, or the default."""
+        fam = self.family(family)
+        return default if fam is None else fam.params.get(name, default)
+
+    # -- the variable the booklet is about ----------------------------------------------
+    @property
+    def variable(self) -> str:
+        return self.results.variable or self.settings.about
+
+    @property
+    def label(self) -> str:
+        return self.settings.label_of(self.variable, self.language)
+
+    @property
+    def higher_is_worse(self) -> bool:
+        flag = self.param("descriptives", "higher_is_worse")
+        if flag is not None:
+            return bool(flag)
+        try:
+            return self.settings.higher_is_worse(self.variable)
+        except KeyError:
+            return True
+
+    @property
+    def scale(self) -> tuple[float, float]:
+        low = self.param("descriptives", "scale_low")
+        high = self.param("descriptives", "scale_high")
+        if low is not None and high is not None:
+            return (float(low), float(high))
+        try:
+            return self.settings.scale_of(self.variable)
+        except KeyError:
+            return (0.0, 1.0)
+
+    def value_axis_title(self) -> str:
+        """Axis title naming the variable and which end is worse."""
+        _ = self.gettext
+        if self.higher_is_worse:
+            return _("{label} (higher means worse)").format(label=self.label)
+        return _("{label} (higher means better)").format(label=self.label)
+
+    # -- formatting ----------------------------------------------------------------------
+    @property
+    def locale(self) -> str:
+        """The CLDR locale of the booklet language (the one springback.i18n formats with)."""
+        return LOCALES.get(self.language, LOCALES["en"])
+
+    @cached_property
+    def formatter(self) -> LocaleFormat:
+        """The booklet's own number formatting, so charts and text round alike."""
+        language = self.language if self.language in LOCALES else "en"
+        return LocaleFormat(language, self.settings.study.timezone)
+
+    def num(self, value: float | None, digits: int = 1) -> str:
+        """A number in the booklet language, rounded half up ('–' for a missing value)."""
+        return self.formatter.number(value, digits)
+
+    def percent(self, share: float) -> str:
+        """A share 0..1 as a whole percentage in the booklet language."""
+        return self.formatter.percent(share)
+
+    def date(self, when: Any) -> str:
+        """Day and month in the booklet language (e.g. '3 May', '3. Mai')."""
+        return babel.dates.format_skeleton("MMMMd", _as_date(when), locale=self.locale)
+
+    def date_short(self, when: Any) -> str:
+        """Weekday, day and short month (e.g. 'Fri 3 May') for data tables."""
+        return babel.dates.format_skeleton("MMMEd", _as_date(when), locale=self.locale)
+
+    def time_of_day(self, when: Any) -> str:
+        """Clock time on the 24-hour clock, as everywhere in the booklet."""
+        return babel.dates.format_time(pd.Timestamp(when).to_pydatetime(), "HH:mm",
+                                       locale=self.locale)
+
+    def hours_words(self, hours: float) -> str:
+        """A duration in hours as people say it ('about half a day')."""
+        _ = self.gettext
+        if hours < 0.75:
+            return _("less than an hour")
+        if hours < 1.5:
+            return _("about an hour")
+        if 10 <= hours < 15:
+            return _("about half a day")
+        if 20 <= hours < 30:
+            return _("about a day")
+        if hours >= 30:
+            return _("about {n} days").format(n=self.num(hours / 24, 0 if hours >= 60 else 1))
+        return _("about {n} hours").format(n=self.num(hours, 0))
+
+    # -- times ---------------------------------------------------------------------------
+    def wall_clock(self, times: pd.Series) -> pd.Series:
+        """Times as naive wall-clock times in the study time zone."""
+        values = pd.to_datetime(times)
+        if values.dt.tz is not None:
+            values = values.dt.tz_convert(self.settings.study.timezone).dt.tz_localize(None)
+        return values
+
+    def ms(self, times: pd.Series) -> np.ndarray:
+        """Wall-clock times as epoch milliseconds read as UTC (Vega-Lite 'utc' scales).
+
+        Charts show study-zone clock times whatever the time zone of the machine: the
+        wall-clock time is passed as if it were UTC, and every time scale is a UTC scale.
+        """
+        wall = self.wall_clock(times)
+        return (wall.astype("datetime64[ms]").astype("int64")).to_numpy()
+
+
+def _as_date(when: Any) -> Any:
+    stamp = pd.Timestamp(when)
+    if stamp.tzinfo is not None:
+        stamp = stamp.tz_localize(None)
+    return stamp.date()
+
+
+def time_axis(ctx: Inputs, title: str | None, times: np.ndarray, pad_days: int = 0
+              ) -> dict[str, Any]:
+    """Encoding options for a date axis over whole study days, with at most ~8 labelled days.
+
+    `times` are the plotted epoch-ms values; the scale is UTC (see `Inputs.ms`).
+    """
+    from springback.charts.svg import date_axis_format
+
+    first = (int(np.min(times)) // _MS_PER_DAY - pad_days) * _MS_PER_DAY
+    last = (int(np.max(times)) // _MS_PER_DAY + 1 + pad_days) * _MS_PER_DAY
+    n_days = (last - first) // _MS_PER_DAY
+    step = next((s for s in (1, 2, 7, 14, 28) if n_days / s <= 8), 56)
+    start = first
+    if step >= 7:  # weekly labels fall on Mondays (1 Jan 1970 was a Thursday)
+        start += ((0 - (first // _MS_PER_DAY + 3)) % 7) * _MS_PER_DAY
+    ticks = list(range(start, last + 1, step * _MS_PER_DAY))
+    return {
+        "type": "temporal",
+        "scale": {"type": "utc", "domain": [first, last], "nice": False},
+        "axis": {"title": title, "format": date_axis_format(ctx.language), "values": ticks,
+                 "labelOverlap": True, "labelFlush": False},
+    }
+
+
+@dataclass(frozen=True)
+class KeyItem:
+    """One entry of a chart key: a sample mark and its label."""
+
+    label: str
+    colour: str
+    kind: str = "line"
+    """'line' (with `dash`), 'point' (with `shape`, `filled`) or 'box' (a filled swatch)."""
+    dash: tuple[int, ...] = (1, 0)
+    shape: str = "circle"
+    filled: bool = True
+    width: float = 2.5
+    edge: str = ""
+    """Outline of a 'box' swatch (a 3:1 colour; the fill may be light)."""
+
+
+def key_spec(items: list[KeyItem], width: int) -> dict[str, Any]:
+    """A small chart drawing a key of sample marks with written labels, wrapped to `width`.
+
+    A key with dashes, shapes and words keeps every series readable without colour.
+    """
+    row_h, sample_w, gap = 24, 26, 18
+    x, row, layers, labels = 0.0, 0, [], []
+    for item in items:
+        need = sample_w + 6 + CHAR_WIDTH * len(item.label)
+        if x > 0 and x + need > width:
+            x, row = 0.0, row + 1
+        y = row * row_h + row_h / 2
+        if item.kind == "line":
+            layers.append({"mark": {"type": "rule", "color": item.colour,
+                                    "strokeWidth": item.width,
+                                    "strokeDash": list(item.dash)},
+                           "encoding": {"x": {"value": x}, "x2": {"value": x + sample_w},
+                                        "y": {"value": y}}})
+        elif item.kind == "box":
+            layers.append({"mark": {"type": "rect", "color": item.colour,
+                                    "stroke": item.edge or None, "strokeWidth": 1},
+                           "encoding": {"x": {"value": x}, "x2": {"value": x + sample_w},
+                                        "y": {"value": y - 7}, "y2": {"value": y + 7}}})
+        else:
+            layers.append({"mark": {"type": "point", "shape": item.shape, "size": 80,
+                                    "filled": item.filled, "color": item.colour,
+                                    "strokeWidth": 1.5, "opacity": 1},
+                           "encoding": {"x": {"value": x + sample_w / 2}, "y": {"value": y}}})
+        labels.append({"x": x + sample_w + 6, "y": y, "label": item.label})
+        x += need + gap
+    layers.append({"data": {"values": labels},
+                   "mark": {"type": "text", "align": "left", "baseline": "middle"},
+                   "encoding": {"x": {"field": "x", "type": "quantitative", "scale": None},
+                                "y": {"field": "y", "type": "quantitative", "scale": None},
+                                "text": {"field": "label"}}})
+    return {"width": width, "height": (row + 1) * row_h, "data": {"values": [{}]},
+            "layer": layers}
+
+
+def day_noon_ms(ctx: Inputs, days: pd.Series) -> np.ndarray:
+    """Study days (naive midnight) as epoch ms of their noon, so daily points sit mid-day."""
+    return ctx.ms(pd.to_datetime(days)) + _MS_PER_DAY // 2
+
+
+def records(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    """Rows as JSON-ready dicts (NaN -> None, numpy scalars -> Python) for inline data."""
+    out = []
+    for row in frame.to_dict(orient="records"):
+        clean: dict[str, Any] = {}
+        for k, v in row.items():
+            if isinstance(v, np.generic):
+                v = v.item()
+            if isinstance(v, float) and not math.isfinite(v):
+                v = None
+            elif isinstance(v, pd.Timestamp):
+                v = v.isoformat()
+            clean[str(k)] = v
+        out.append(clean)
+    return out
+
+
+def direction_words(ctx: Inputs, tau: float | None) -> str:
+    """Describe a Kendall's tau trend in words ('rose', 'stayed about the same', ...)."""
+    _ = ctx.gettext
+    if tau is None or not math.isfinite(tau):
+        return _("could not be judged")
+    # Cut-offs are a design choice for plain wording, not a test: the p-value does that.
+    if tau >= 0.3:
+        return _("rose")
+    if tau >= 0.1:
+        return _("rose slightly")
+    if tau > -0.1:
+        return _("stayed about the same")
+    if tau > -0.3:
+        return _("fell slightly")
+    return _("fell")

@@ -1,0 +1,308 @@
+"""Mood over time and the answering calendar."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import babel.dates
+import numpy as np
+import pandas as pd
+
+from springback.charts.common import (
+    Chart,
+    Inputs,
+    KeyItem,
+    day_noon_ms,
+    key_spec,
+    records,
+    time_axis,
+)
+from springback.charts.svg import PLOT_WIDTH, to_svg
+from springback.palette import CALENDAR_RAMP, CHART, readable_text_on
+
+EVENT_SHAPES = ("triangle-down", "diamond", "square", "cross", "triangle-up")
+"""One shape per event kind (answers are circles); further kinds share the last shape."""
+HEIGHT = 260
+
+
+def mood_chart(ctx: Inputs) -> Chart | None:
+    """Answers, daily means, the typical range, events and detected shifts over time."""
+    _ = ctx.gettext
+    series = ctx.table("descriptives", "series")
+    daily = ctx.table("descriptives", "daily")
+    if series is None or daily is None:
+        return None
+    series = series.dropna(subset=["value"])
+    daily = daily.dropna(subset=["mean"])
+    if series.empty or daily.empty:
+        return None
+    low, high = ctx.scale
+    y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
+         "axis": {"title": ctx.value_axis_title(), "tickMinStep": 1}}
+    answers = pd.DataFrame({"t": ctx.ms(series["local_time"]), "v": series["value"]})
+    means = pd.DataFrame({"t": day_noon_ms(ctx, daily["study_day"]), "v": daily["mean"]})
+    x = time_axis(ctx, _("Date"), np.concatenate([answers["t"], means["t"]]))
+    layers: list[dict[str, Any]] = []
+    key = [KeyItem(_("daily average"), CHART.primary, width=3),
+           KeyItem(_("single answers"), CHART.neutral, kind="point", filled=False)]
+    typical = (ctx.param("descriptives", "typical_low"), ctx.param("descriptives", "typical_high"))
+    if all(v is not None and math.isfinite(v) for v in typical):
+        layers += _band_layers(float(typical[0]), float(typical[1]), y)
+        key.append(KeyItem(_("your typical range"), CHART.band, kind="box", edge=CHART.neutral))
+    layers.append({
+        "data": {"values": records(answers)},
+        "mark": {"type": "point", "shape": "circle", "filled": False, "size": 22,
+                 "color": CHART.neutral, "strokeWidth": 1},
+        "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}},
+    })
+    shift_layers = _shift_layers(ctx, x, y)
+    if shift_layers:
+        layers += shift_layers
+        key.append(KeyItem(_("level before and after a shift"), CHART.highlight, dash=(8, 4)))
+    layers.append(
+        {"data": {"values": records(means)},
+         "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 3,
+                  "point": {"filled": True, "size": 24, "color": CHART.primary}},
+         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}})
+    n_events = 0
+    events = _events(ctx)
+    if events is not None:
+        n_events = len(events)
+        kinds = list(dict.fromkeys(sorted(events["kind"])))
+        shapes = dict(zip(kinds, EVENT_SHAPES, strict=False))
+        events = events.assign(shape=[shapes.get(k, EVENT_SHAPES[-1]) for k in events["kind"]])
+        layers.append({
+            "data": {"values": records(events[["t", "kind", "shape"]])},
+            "mark": {"type": "point", "filled": True, "size": 90, "color": CHART.accent,
+                     "opacity": 1},
+            "encoding": {"x": {"field": "t", **x}, "y": {"value": 8},
+                         "shape": {"field": "shape", "type": "nominal", "scale": None}},
+        })
+        key += [KeyItem(_("event: {kind}").format(kind=k), CHART.accent, kind="point",
+                        shape=shapes[k]) for k in kinds]
+    plot = {"width": PLOT_WIDTH, "height": HEIGHT, "layer": layers}
+    spec = {"vconcat": [key_spec(key, PLOT_WIDTH), plot], "spacing": 10}
+    title = _("Your mood over time")
+    description = _mood_description(ctx, series, daily, n_events)
+    table = _mood_table(ctx, daily, events)
+    return Chart("mood", title, description, to_svg(spec, "mood", title, description,
+                                                    ctx.language),
+                 table, _("Daily averages, answers and events per day"))
+
+
+def _band_layers(lo: float, hi: float, y: dict[str, Any]) -> list[dict[str, Any]]:
+    """The typical range: a light band with 3:1 edges (named in the key)."""
+    band = [{"lo": lo, "hi": hi}]
+    edge = {"type": "rule", "color": CHART.neutral, "strokeWidth": 1}
+    return [
+        {"data": {"values": band}, "mark": {"type": "rect", "color": CHART.band},
+         "encoding": {"y": {"field": "lo", **y}, "y2": {"field": "hi"}}},
+        {"data": {"values": band}, "mark": edge, "encoding": {"y": {"field": "lo", **y}}},
+        {"data": {"values": band}, "mark": edge, "encoding": {"y": {"field": "hi", **y}}},
+    ]
+
+
+def _shift_layers(ctx: Inputs, x: dict[str, Any], y: dict[str, Any]) -> list[dict[str, Any]]:
+    """Detected shifts: dashed rules with a written direction, and the segment levels."""
+    _ = ctx.gettext
+    points = ctx.table("shifts", "change_points")
+    if points is None:
+        return []
+    words = {"worse": _("shift: worse"), "better": _("shift: better")}
+    marks = pd.DataFrame({
+        "t": ctx.ms(pd.to_datetime(points["study_day"])),
+        "label": [words.get(str(d), str(d)) for d in points["direction"]],
+    })
+    layers: list[dict[str, Any]] = [
+        {"data": {"values": records(marks)},
+         "mark": {"type": "rule", "color": CHART.highlight, "strokeWidth": 2,
+                  "strokeDash": [2, 3]},
+         "encoding": {"x": {"field": "t", **x}}},
+        {"data": {"values": records(marks)},
+         "mark": {"type": "text", "align": "left", "dx": 4, "color": CHART.ink},
+         "encoding": {"x": {"field": "t", **x}, "y": {"value": 26}, "text": {"field": "label"}}},
+    ]
+    levels = ctx.table("shifts", "daily")
+    if levels is not None and "level" in levels.columns:
+        # Each level holds from the start of its day; the last one to the end of its day.
+        starts = ctx.ms(pd.to_datetime(levels["study_day"]))
+        steps = pd.DataFrame({"t": np.append(starts, starts[-1] + 86_400_000),
+                              "v": np.append(levels["level"].to_numpy(dtype=float),
+                                             float(levels["level"].iloc[-1]))}).dropna()
+        layers.append({
+            "data": {"values": records(steps)},
+            "mark": {"type": "line", "interpolate": "step-after", "color": CHART.highlight,
+                     "strokeWidth": 2, "strokeDash": [8, 4]},
+            "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}},
+        })
+    return layers
+
+
+def _events(ctx: Inputs) -> pd.DataFrame | None:
+    """Events inside the plotted period, with their kind (kinds beyond five pooled)."""
+    _ = ctx.gettext
+    events = ctx.data.events
+    if events is None or len(events) == 0 or "local_time" not in events.columns:
+        return None
+    kinds = events["kind"].astype(str).fillna("")
+    order = kinds.value_counts().sort_index().sort_values(ascending=False, kind="stable")
+    keep = set(order.index[: len(EVENT_SHAPES) - 1]) if len(order) > len(EVENT_SHAPES) else None
+    if keep is not None:
+        kinds = kinds.where(kinds.isin(keep), _("other events"))
+    return pd.DataFrame({"t": ctx.ms(events["local_time"]), "kind": kinds.to_numpy(),
+                         "day": ctx.wall_clock(events["local_time"]).dt.normalize()})
+
+
+def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
+                      n_events: int) -> str:
+    _ = ctx.gettext
+    values = series["value"].to_numpy(dtype=float)
+    parts = [_("Your answers ranged from {low} to {high}.").format(
+        low=ctx.num(values.min()), high=ctx.num(values.max()))]
+    lo, hi = ctx.param("descriptives", "typical_low"), ctx.param("descriptives", "typical_high")
+    if lo is not None and hi is not None and math.isfinite(lo) and math.isfinite(hi):
+        parts.append(_("Half of them were between {low} and {high}: your typical range.").format(
+            low=ctx.num(lo), high=ctx.num(hi)))
+    means = daily["mean"].to_numpy(dtype=float)
+    if len(means) >= 14:
+        first, last = float(np.mean(means[:7])), float(np.mean(means[-7:]))
+        spread = float(np.std(values, ddof=1)) if len(values) > 1 else 0.0
+        if abs(last - first) < 0.5 * spread or spread == 0:
+            trend = _("about the same as")
+        elif (last > first) == ctx.higher_is_worse:
+            trend = _("worse than")
+        else:
+            trend = _("better than")
+        parts.append(_("In the last week your daily average was {last}, {trend} in the first "
+                       "week ({first}).").format(last=ctx.num(last), trend=trend,
+                                                 first=ctx.num(first)))
+    points = ctx.table("shifts", "change_points")
+    if points is not None:
+        for row in points.itertuples():
+            text = (_("Around {date} your mood seemed to shift to feeling worse.")
+                    if row.direction == "worse"
+                    else _("Around {date} your mood seemed to shift to feeling better."))
+            parts.append(text.format(date=ctx.date(row.study_day)))
+    if n_events:
+        parts.append(_("Events you reported are marked at the top ({n} in all).").format(
+            n=n_events))
+    return " ".join(parts)
+
+
+def _mood_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None) -> pd.DataFrame:
+    _ = ctx.gettext
+    per_day: dict[pd.Timestamp, str] = {}
+    if events is not None:
+        for day, group in events.groupby("day", sort=True):
+            per_day[pd.Timestamp(day)] = ", ".join(sorted(group["kind"].astype(str)))
+    days = pd.to_datetime(daily["study_day"])
+    return pd.DataFrame({
+        _("Date"): [ctx.date_short(d) for d in days],
+        _("Daily average"): [ctx.num(v) for v in daily["mean"]],
+        _("Answers"): [str(int(n)) if pd.notna(n) else "" for n in daily["n"]],
+        _("Events"): [per_day.get(pd.Timestamp(d).normalize(), "") for d in days],
+    })
+
+
+def calendar_chart(ctx: Inputs) -> Chart | None:
+    """Weeks by weekdays, Monday first: prompts answered per day, written in each cell."""
+    _ = ctx.gettext
+    daily = ctx.table("descriptives", "daily")
+    if daily is None:
+        return None
+    cells = _calendar_cells(ctx, daily)
+    weekdays = babel.dates.get_day_names("abbreviated", locale=ctx.locale)
+    day_names = [weekdays[i] for i in range(7)]
+    week_names = list(dict.fromkeys(cells["week"]))
+    cell_w, cell_h = 72, 40
+    x = {"field": "weekday", "type": "ordinal", "sort": day_names,
+         "scale": {"domain": day_names, "paddingInner": 0.06},
+         "axis": {"title": None, "orient": "top", "labelAngle": 0, "domain": False,
+                  "ticks": False}}
+    y = {"field": "week", "type": "ordinal", "sort": week_names,
+         "scale": {"domain": week_names, "paddingInner": 0.08},
+         "axis": {"title": _("Week starting"), "domain": False, "ticks": False}}
+    data = {"values": records(cells.assign(weekday=[day_names[i] for i in cells["wd"]]))}
+    spec = {
+        "width": 7 * cell_w, "height": cell_h * len(week_names), "data": data,
+        "layer": [
+            {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},
+             "encoding": {"x": x, "y": y, "fill": {"field": "fill", "type": "nominal",
+                                                   "scale": None}}},
+            {"mark": {"type": "text", "fontSize": 14, "fontWeight": "bold", "dy": 6},
+             "encoding": {"x": x, "y": y, "text": {"field": "label"},
+                          "fill": {"field": "ink", "type": "nominal", "scale": None}}},
+            {"mark": {"type": "text", "fontSize": 11, "align": "left", "baseline": "top",
+                      "dx": -cell_w / 2 + 6, "dy": -cell_h / 2 + 3},
+             "encoding": {"x": x, "y": y, "text": {"field": "dom"},
+                          "fill": {"field": "ink", "type": "nominal", "scale": None}}},
+        ],
+    }
+    title = _("Which prompts you answered")
+    description = _calendar_description(ctx, cells)
+    table = _calendar_table(ctx, cells, day_names)
+    return Chart("calendar", title, description,
+                 to_svg(spec, "calendar", title, description, ctx.language), table,
+                 _("Prompts answered per day, by week"))
+
+
+def _calendar_cells(ctx: Inputs, daily: pd.DataFrame) -> pd.DataFrame:
+    """One row per study day from the first to the last, with share answered and colours."""
+    days = pd.to_datetime(daily["study_day"]).dt.normalize()
+    answered = pd.Series(daily["n"].to_numpy(dtype=float), index=days)
+    sent = pd.Series(
+        daily["scheduled"].to_numpy(dtype=float) if "scheduled" in daily.columns
+        else np.full(len(daily), np.nan), index=days)
+    span = pd.date_range(days.min(), days.max(), freq="D")
+    answered = answered.groupby(level=0).sum().reindex(span, fill_value=0.0)
+    sent = sent.groupby(level=0).max().reindex(span)
+    per_day = ctx.settings.study.prompts_per_day
+    if per_day is not None:
+        sent = sent.fillna(float(per_day))
+    share = (answered / sent).clip(upper=1.0)
+    known = sent.notna() & (sent > 0)
+    top = float(answered.max()) if answered.max() > 0 else 1.0
+    level = share.where(known, answered / top)
+    steps = len(CALENDAR_RAMP) - 1
+    # Steps: none, under half, half or more, three quarters or more, all.
+    cuts = np.array([0.0, 0.5, 0.75, 1.0])
+    fills = [CALENDAR_RAMP[min(steps, int(np.searchsorted(cuts, v, side="right")))]
+             if v > 0 else CALENDAR_RAMP[0] for v in level.fillna(0.0)]
+    labels = [f"{int(a)}/{int(s)}" if k else f"{int(a)}"
+              for a, s, k in zip(answered, sent.fillna(0), known, strict=True)]
+    week_start = span - pd.to_timedelta(span.day_of_week, unit="D")
+    return pd.DataFrame({
+        "day": span, "wd": span.day_of_week, "week": [ctx.date(w) for w in week_start],
+        "dom": [str(d.day) for d in span], "label": labels, "answered": answered.to_numpy(),
+        "sent": sent.to_numpy(), "known": known.to_numpy(), "fill": fills,
+        "ink": [readable_text_on(f) for f in fills],
+    })
+
+
+def _calendar_description(ctx: Inputs, cells: pd.DataFrame) -> str:
+    _ = ctx.gettext
+    n_days = len(cells)
+    answered = int(cells["answered"].sum())
+    none = int((cells["answered"] == 0).sum())
+    if bool(cells["known"].all()):
+        sent = int(cells["sent"].sum())
+        full = int((cells["answered"] >= cells["sent"]).sum())
+        text = _("You answered {answered} of {sent} prompts ({share}) over {days} days.").format(
+            answered=answered, sent=sent, share=ctx.percent(answered / sent if sent else 0.0),
+            days=n_days)
+        text += " " + _("On {full} days you answered every prompt; on {none} days none.").format(
+            full=full, none=none)
+        return text
+    return _("You answered {answered} prompts over {days} days; on {none} days none.").format(
+        answered=answered, days=n_days, none=none)
+
+
+def _calendar_table(ctx: Inputs, cells: pd.DataFrame, day_names: list[str]) -> pd.DataFrame:
+    _ = ctx.gettext
+    wide = cells.pivot(index="week", columns="wd", values="label")
+    wide = wide.reindex(index=list(dict.fromkeys(cells["week"])), columns=range(7))
+    table = wide.fillna("").rename(columns=dict(enumerate(day_names)))
+    table.columns = [str(c) for c in table.columns]
+    table.index.name = None
+    return table.reset_index(names=_("Week starting"))

@@ -1,0 +1,353 @@
+"""Charts of levels and states: questionnaire bands, the mood landscape, mood against load."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from springback.charts.common import (
+    CHAR_WIDTH,
+    Chart,
+    Inputs,
+    day_noon_ms,
+    records,
+    time_axis,
+)
+from springback.charts.svg import PLOT_WIDTH, to_svg
+from springback.palette import BAND_FILLS, CHART
+
+POTENTIAL_SPAN = 6.0
+"""Height of the landscape shown above its deepest point: density ratios up to e^6 (~400)."""
+TABLE_ROWS = 21
+
+
+def questionnaire_charts(ctx: Inputs) -> list[Chart]:
+    """One chart per questionnaire with scores: the scores over its labelled bands."""
+    fam = ctx.family("questionnaires")
+    if fam is None:
+        return []
+    keys = sorted(name.removeprefix("scores_") for name in fam.tables
+                  if name.startswith("scores_"))
+    charts = []
+    for q in keys:
+        chart = _questionnaire_chart(ctx, q)
+        if chart is not None:
+            charts.append(chart)
+    return charts
+
+
+def _bands(ctx: Inputs, q: str) -> tuple[tuple[float, float], list[tuple[float, float, str]]]:
+    """The score range and (low, high, label) bands, from the settings or the family params."""
+    spec = ctx.settings.questionnaires.get(q)
+    params = ctx.param("questionnaires", q, {}) or {}
+    if spec is not None:
+        rng, raw = (float(spec.range[0]), float(spec.range[1])), list(spec.bands)
+    else:
+        rng = tuple(float(v) for v in params.get("range", (0.0, 1.0)))  # type: ignore[assignment]
+        raw = list(params.get("bands", []))
+    bounds = [float(b[0]) for b in raw] + [rng[1]]
+    return rng, [(bounds[i], bounds[i + 1], str(raw[i][1])) for i in range(len(raw))]
+
+
+def _questionnaire_chart(ctx: Inputs, q: str) -> Chart | None:
+    _ = ctx.gettext
+    scores = ctx.table("questionnaires", f"scores_{q}")
+    if scores is None:
+        return None
+    scores = scores.dropna(subset=["score"]).sort_values("local_time")
+    if scores.empty:
+        return None
+    spec_q = ctx.settings.questionnaires.get(q)
+    name = (spec_q.label.get(ctx.language) or spec_q.label.get("en") or q) if spec_q else q
+    (low, high), bands = _bands(ctx, q)
+    y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
+         "axis": {"title": _("{name} score").format(name=name)}}
+    points = pd.DataFrame({"t": ctx.ms(scores["local_time"]), "v": scores["score"]})
+    x = time_axis(ctx, _("Date"), points["t"].to_numpy(), pad_days=1)
+    margin = int(min(170, 12 + CHAR_WIDTH * max((len(b[2]) for b in bands), default=0)))
+    band_rows = pd.DataFrame(
+        [{"lo": lo, "hi": hi, "label": label, "fill": BAND_FILLS[i % len(BAND_FILLS)]}
+         for i, (lo, hi, label) in enumerate(bands)])
+    layers: list[dict[str, Any]] = []
+    if len(band_rows):
+        layers += [
+            {"data": {"values": records(band_rows)},
+             "mark": {"type": "rect"},
+             "encoding": {"y": {"field": "lo", **y}, "y2": {"field": "hi"},
+                          "fill": {"field": "fill", "type": "nominal", "scale": None}}},
+            {"data": {"values": records(band_rows.iloc[1:])},
+             "mark": {"type": "rule", "color": CHART.neutral, "strokeDash": [3, 3]},
+             "encoding": {"y": {"field": "lo", **y}}},
+            # Band names sit in the right margin, clear of the scores.
+            {"data": {"values": records(band_rows.assign(mid=(band_rows["lo"]
+                                                              + band_rows["hi"]) / 2))},
+             "mark": {"type": "text", "align": "left", "baseline": "middle", "dx": 8,
+                      "color": CHART.ink, "limit": margin},
+             "encoding": {"x": {"value": PLOT_WIDTH - margin}, "y": {"field": "mid", **y},
+                          "text": {"field": "label"}}},
+        ]
+    layers.append({
+        "data": {"values": records(points)},
+        "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 2.5,
+                 "point": {"filled": True, "size": 70, "color": CHART.primary}},
+        "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}},
+    })
+    layers += _sudden_layers(ctx, q, scores, x, y)
+    spec = {"width": PLOT_WIDTH - margin, "height": 220, "layer": layers}
+    key = f"questionnaire_{q}"
+    title = _("Your {name} scores").format(name=name)
+    description = _questionnaire_description(ctx, q, name, scores)
+    table = pd.DataFrame({
+        _("Date"): [ctx.date_short(t) for t in ctx.wall_clock(scores["local_time"])],
+        _("Score"): [ctx.num(s, 0 if float(s).is_integer() else 1) for s in scores["score"]],
+        _("Band"): [str(b) if isinstance(b, str) else "" for b in scores.get("band", [])]
+        if "band" in scores.columns else [""] * len(scores),
+    })
+    return Chart(key, title, description, to_svg(spec, key, title, description, ctx.language),
+                 table, _("{name} scores and their bands").format(name=name))
+
+
+def _sudden_layers(ctx: Inputs, q: str, scores: pd.DataFrame, x: dict[str, Any],
+                   y: dict[str, Any]) -> list[dict[str, Any]]:
+    """Sudden gains and losses: a marked point with a written label."""
+    _ = ctx.gettext
+    sudden = ctx.table("questionnaires", f"sudden_{q}")
+    if sudden is None:
+        return []
+    words = {"gain": _("sudden gain"), "loss": _("sudden loss")}
+    by_time = dict(zip(ctx.ms(scores["local_time"]), scores["score"], strict=True))
+    times = ctx.ms(sudden["local_time"])
+    rows = pd.DataFrame({"t": times, "v": [by_time.get(t, np.nan) for t in times],
+                         "label": [words.get(str(k), str(k)) for k in sudden["kind"]]}).dropna()
+    if rows.empty:
+        return []
+    return [
+        {"data": {"values": records(rows)},
+         "mark": {"type": "point", "shape": "diamond", "filled": False, "size": 260,
+                  "strokeWidth": 2.5, "color": CHART.highlight},
+         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}},
+        {"data": {"values": records(rows)},
+         "mark": {"type": "text", "dy": -18, "color": CHART.ink},
+         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y},
+                      "text": {"field": "label"}}},
+    ]
+
+
+def _band_of(row: pd.Series) -> str:
+    """' (band)' after a score, or '' when the score has no band."""
+    band = row.get("band")
+    return f" ({band})" if isinstance(band, str) and band else ""
+
+
+def _questionnaire_description(ctx: Inputs, q: str, name: str, scores: pd.DataFrame) -> str:
+    _ = ctx.gettext
+    first, last = scores.iloc[0], scores.iloc[-1]
+    if len(scores) == 1:
+        return _("You filled in the {name} once, on {date}: score {score}{band}.").format(
+            name=name, date=ctx.date(ctx.wall_clock(scores["local_time"]).iloc[0]),
+            score=ctx.num(float(first["score"]), 0), band=_band_of(first))
+    wall = ctx.wall_clock(scores["local_time"])
+    parts = [_("Your {name} score went from {first}{first_band} on {first_date} to "
+               "{last}{last_band} on {last_date}.").format(
+        name=name, first=ctx.num(float(first["score"]), 0), first_band=_band_of(first),
+        first_date=ctx.date(wall.iloc[0]), last=ctx.num(float(last["score"]), 0),
+        last_band=_band_of(last), last_date=ctx.date(wall.iloc[-1]))]
+    rci = ctx.estimate("questionnaires", f"reliable_change_{q}")
+    verdicts = {
+        "reliable improvement": _("This change is larger than the usual measurement error: "
+                                  "a reliable improvement."),
+        "reliable worsening": _("This change is larger than the usual measurement error: "
+                                "a reliable worsening."),
+        "no reliable change": _("This change is within the usual measurement error."),
+    }
+    if rci.ok and rci.note in verdicts:
+        parts.append(verdicts[rci.note])
+    return " ".join(parts)
+
+
+def landscape_chart(ctx: Inputs) -> Chart | None:
+    """The quasi-potential U(x) = -ln p(x) as a landscape, with its valleys marked."""
+    _ = ctx.gettext
+    potential = ctx.table("landscape", "potential")
+    if potential is None:
+        return None
+    curve = potential[["x", "potential", "density"]].astype(float)
+    curve = curve[np.isfinite(curve["x"]) & np.isfinite(curve["potential"])]
+    if len(curve) < 3:
+        return None
+    floor = float(curve["potential"].min())
+    ceiling = floor + POTENTIAL_SPAN
+    # Levels almost never visited rise off the top; they are left out rather than flattened.
+    curve = curve[curve["potential"] <= ceiling].assign(u=lambda f: f["potential"])
+    valleys = ctx.table("landscape", "valleys")
+    valley_rows = _valley_rows(ctx, curve, valleys)
+    low, high = ctx.scale
+    bottom = floor - 0.5
+    x = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
+         "axis": {"title": ctx.value_axis_title(), "tickMinStep": 1}}
+    y = {"type": "quantitative",
+         "scale": {"domain": [bottom, ceiling], "nice": False, "zero": False},
+         "axis": {"title": _("Lower = more often"), "labels": False, "ticks": False}}
+    ground = records(curve[["x", "u"]])
+    layers: list[dict[str, Any]] = [
+        {"data": {"values": ground},
+         "mark": {"type": "area", "color": CHART.terrain},
+         "encoding": {"x": {"field": "x", **x}, "y": {"field": "u", **y},
+                      "y2": {"datum": bottom}}},
+        {"data": {"values": ground},
+         "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 3},
+         "encoding": {"x": {"field": "x", **x}, "y": {"field": "u", **y}}},
+    ]
+    if len(valley_rows):
+        layers += [
+            {"data": {"values": records(valley_rows)},
+             "mark": {"type": "point", "shape": "circle", "filled": True, "size": 260,
+                      "color": CHART.accent, "yOffset": -10, "opacity": 1},
+             "encoding": {"x": {"field": "x", **x}, "y": {"field": "u", **y}}},
+            {"data": {"values": records(valley_rows)},
+             "mark": {"type": "text", "dy": -42, "color": CHART.ink, "fontWeight": "bold",
+                      "lineBreak": "\n", "baseline": "bottom"},
+             "encoding": {"x": {"field": "x", **x}, "y": {"field": "u", **y},
+                          "text": {"field": "label"}}},
+        ]
+    spec = {"width": PLOT_WIDTH, "height": 230, "layer": layers}
+    title = _("Your mood landscape")
+    description = _landscape_description(ctx, valley_rows)
+    return Chart("landscape", title, description,
+                 to_svg(spec, "landscape", title, description, ctx.language),
+                 _landscape_table(ctx, curve, valley_rows),
+                 _("How often your mood was at each level"))
+
+
+def _valley_rows(ctx: Inputs, curve: pd.DataFrame, valleys: pd.DataFrame | None) -> pd.DataFrame:
+    _ = ctx.gettext
+    if valleys is None:
+        return pd.DataFrame({"x": [], "u": [], "label": []})
+    xs = sorted(float(v) for v in valleys["x"] if math.isfinite(float(v)))
+    grid = curve["x"].to_numpy()
+    us = [float(np.interp(v, grid, curve["u"].to_numpy())) for v in xs]
+    labels = [_("resting place\nnear {x}").format(x=ctx.num(v)) for v in xs]
+    return pd.DataFrame({"x": xs, "u": us, "label": labels})
+
+
+def _landscape_description(ctx: Inputs, valley_rows: pd.DataFrame) -> str:
+    _ = ctx.gettext
+    xs = [ctx.num(v) for v in valley_rows["x"]]
+    if len(xs) == 1:
+        text = _("Your mood seemed to have one resting place, near {x}.").format(x=xs[0])
+    elif len(xs) == 2:
+        text = _("Your mood seemed to have two resting places, near {a} and near {b}.").format(
+            a=xs[0], b=xs[1])
+        switches = ctx.estimate("landscape", "switches")
+        if switches.ok:
+            text += " " + _("It moved from one to the other {n} times.").format(
+                n=int(switches.value))
+    elif len(xs) > 2:
+        text = _("Your mood seemed to have several resting places, near {places}.").format(
+            places=", ".join(xs))
+    else:
+        text = _("Your mood had no clear resting place.")
+    return text + " " + _("The lower the line, the more often your mood was at that level.")
+
+
+def _landscape_table(ctx: Inputs, curve: pd.DataFrame, valley_rows: pd.DataFrame
+                     ) -> pd.DataFrame:
+    _ = ctx.gettext
+    picks = np.unique(np.linspace(0, len(curve) - 1, TABLE_ROWS).round().astype(int))
+    rows = curve.iloc[picks]
+    top = float(curve["density"].max()) or 1.0
+    near = set()
+    for v in valley_rows["x"]:
+        near.add(int(np.abs(rows["x"].to_numpy() - v).argmin()))
+    return pd.DataFrame({
+        _("Mood level"): [ctx.num(v) for v in rows["x"]],
+        _("How often (most often = 100)"): [ctx.num(100 * d / top, 0) for d in rows["density"]],
+        _("Resting place"): [_("yes") if i in near else "" for i in range(len(rows))],
+    })
+
+
+def load_chart(ctx: Inputs) -> Chart | None:
+    """Daily mood against daily load, points joined in time order (a loop shows hysteresis)."""
+    _ = ctx.gettext
+    load = ctx.table("landscape", "load")
+    if load is None:
+        return None
+    load = load.dropna(subset=["load", "mood"]).sort_values("study_day").reset_index(drop=True)
+    if len(load) < 3:
+        return None
+    thirds = np.array_split(np.arange(len(load)), 3)
+    names = [_("first third"), _("middle third"), _("last third")]
+    part = np.empty(len(load), dtype=object)
+    for name, idx in zip(names, thirds, strict=True):
+        part[idx] = name
+    frame = pd.DataFrame({"order": np.arange(len(load)), "load": load["load"].astype(float),
+                          "mood": load["mood"].astype(float), "part": part,
+                          "t": day_noon_ms(ctx, load["study_day"])})
+    ends = frame.iloc[[0, -1]].assign(label=[
+        _("start, {date}").format(date=ctx.date(load["study_day"].iloc[0])),
+        _("end, {date}").format(date=ctx.date(load["study_day"].iloc[-1]))])
+    load_name = _load_label(ctx)
+    low, high = ctx.scale
+    counts = bool(np.all(np.mod(frame["load"], 1) == 0))
+    x = {"type": "quantitative", "scale": {"zero": False, "nice": True, "padding": 12},
+         "axis": {"title": load_name, **({"tickMinStep": 1, "format": "d"} if counts else {})}}
+    y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
+         "axis": {"title": ctx.value_axis_title()}}
+    spec = {"width": PLOT_WIDTH, "height": 300,
+            "layer": [
+                {"data": {"values": records(frame)},
+                 "mark": {"type": "line", "color": CHART.neutral, "strokeWidth": 1.2},
+                 "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
+                              "order": {"field": "order", "type": "quantitative"}}},
+                {"data": {"values": records(frame)},
+                 "mark": {"type": "point", "filled": True, "size": 70, "color": CHART.primary,
+                          "opacity": 1},
+                 "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
+                              "shape": {"field": "part", "type": "nominal",
+                                        "scale": {"domain": names,
+                                                  "range": ["circle", "square",
+                                                            "triangle-up"]},
+                                        "legend": {"title": _("Part of the study")}}}},
+                {"data": {"values": records(ends)},
+                 "mark": {"type": "text", "dy": -14, "align": "left", "dx": 6,
+                          "color": CHART.ink, "fontWeight": "bold"},
+                 "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
+                              "text": {"field": "label"}}},
+            ]}
+    title = _("Your mood and your daily load")
+    description = _load_description(ctx, frame, load_name)
+    table = pd.DataFrame({
+        _("Date"): [ctx.date_short(d) for d in load["study_day"]],
+        _("Load"): [ctx.num(v) for v in load["load"]],
+        _("Daily average"): [ctx.num(v) for v in load["mood"]],
+    })
+    return Chart("load", title, description,
+                 to_svg(spec, "load", title, description, ctx.language), table,
+                 _("Daily load and daily average mood"))
+
+
+def _load_label(ctx: Inputs) -> str:
+    _ = ctx.gettext
+    source = ctx.settings.events.daily_load
+    if source == "events" or source is None:
+        return _("Upsetting events that day")
+    return _("{label} (daily average)").format(label=ctx.settings.label_of(source, ctx.language))
+
+
+def _load_description(ctx: Inputs, frame: pd.DataFrame, load_name: str) -> str:
+    _ = ctx.gettext
+    # Spearman's rank correlation: robust to a few extreme days (Spearman 1904).
+    rho = frame["load"].corr(frame["mood"], method="spearman")
+    if not math.isfinite(rho) or abs(rho) < 0.1:
+        text = _("Your mood was about the same on days with more and with less load.")
+    elif (rho > 0) == ctx.higher_is_worse:
+        text = _("On days with more load your mood tended to be worse (rank correlation "
+                 "{rho}).").format(rho=ctx.num(rho, 2))
+    else:
+        text = _("On days with more load your mood tended to be better (rank correlation "
+                 "{rho}).").format(rho=ctx.num(rho, 2))
+    return text + " " + _("The line joins the days in order, so a loop shows when your mood "
+                          "came back along a different path than it went.")

@@ -1,0 +1,136 @@
+"""Turn a Vega-Lite spec into an accessible, self-contained SVG string for inlining.
+
+vl-convert renders the spec (no JavaScript reaches the booklet); the result then gets a
+<title> and <desc> as direct children of the root (WeasyPrint takes the <title> as the PDF
+figure's alternate text), role="img" with aria-labelledby, and every id renamed with a
+per-chart prefix: vl-convert numbers clip paths with a process-wide counter, so two inlined
+charts could share an id and the same chart could differ between runs without the renaming.
+"""
+
+from __future__ import annotations
+
+import re
+import threading
+import xml.etree.ElementTree as ET
+from typing import Any
+
+import vl_convert
+
+from springback.palette import CHART, FONT_FAMILY
+
+SVG_NS = "http://www.w3.org/2000/svg"
+XLINK_NS = "http://www.w3.org/1999/xlink"
+ET.register_namespace("", SVG_NS)
+ET.register_namespace("xlink", XLINK_NS)
+
+WIDTH = 640
+"""Outer width of every chart in CSS pixels: one A4 text column at 96 px per inch."""
+PLOT_WIDTH = WIDTH - 100
+"""Width of a plot area: what is left for the data after a y axis with its title."""
+FONT_SIZE = 14
+
+_VEGA_LOCALES = {"en": "en-GB", "nl": "nl-NL", "de": "de-DE"}
+_DATE_AXIS_FORMATS = {"de": "%-d. %b"}
+_fonts_lock = threading.Lock()
+_fonts_registered = False
+
+THEME: dict[str, Any] = {
+    # Vega's own ARIA labels are English and generic; the SVG carries ours instead.
+    "aria": False,
+    "background": CHART.background,
+    "font": FONT_FAMILY,
+    "padding": 6,
+    "view": {"stroke": None},
+    "axis": {
+        "labelColor": CHART.ink, "titleColor": CHART.ink, "domainColor": CHART.axis,
+        "tickColor": CHART.axis, "labelFontSize": FONT_SIZE - 1, "titleFontSize": FONT_SIZE,
+        "titleFontWeight": "normal", "grid": False, "labelFont": FONT_FAMILY,
+        "titleFont": FONT_FAMILY, "titlePadding": 8,
+    },
+    "legend": {
+        "labelColor": CHART.ink, "titleColor": CHART.ink, "labelFontSize": FONT_SIZE - 1,
+        "titleFontSize": FONT_SIZE, "titleFontWeight": "normal", "labelFont": FONT_FAMILY,
+        "titleFont": FONT_FAMILY, "orient": "bottom", "direction": "horizontal",
+        "symbolStrokeWidth": 2, "labelLimit": 260,
+    },
+    "header": {"labelColor": CHART.ink, "titleColor": CHART.ink, "labelFontSize": FONT_SIZE,
+               "labelFont": FONT_FAMILY, "titleFont": FONT_FAMILY},
+    "title": {"color": CHART.ink, "fontSize": FONT_SIZE, "fontWeight": "normal",
+              "font": FONT_FAMILY, "anchor": "start"},
+    "text": {"color": CHART.ink, "fontSize": FONT_SIZE - 1, "font": FONT_FAMILY},
+}
+
+
+def vega_locale(language: str) -> str:
+    """Return the d3 locale name used for a booklet language (English as the fallback)."""
+    return _VEGA_LOCALES.get(language, "en-GB")
+
+
+def date_axis_format(language: str) -> str:
+    """Return the d3 time format for day-and-month axis labels in a language."""
+    return _DATE_AXIS_FORMATS.get(language, "%-d %b")
+
+
+def _register_fonts() -> None:
+    """Make vl-convert measure text with the booklet font (once per process)."""
+    global _fonts_registered
+    with _fonts_lock:
+        if _fonts_registered:
+            return
+        try:
+            import fontpkg_atkinson_hyperlegible as font
+        except ImportError:  # the sans-serif fallback is measured instead
+            _fonts_registered = True
+            return
+        vl_convert.register_font_directory(str(font.ROOT / "files"))
+        _fonts_registered = True
+
+
+def to_svg(spec: dict[str, Any], key: str, title: str, description: str, language: str) -> str:
+    """Render a Vega-Lite spec to an inline SVG with title, description and namespaced ids."""
+    _register_fonts()
+    full = {**spec, "config": THEME}
+    locale = vega_locale(language)
+    raw = vl_convert.vegalite_to_svg(
+        full, allowed_base_urls=[], format_locale=locale, time_format_locale=locale
+    )
+    return finish_svg(raw, key, title, description)
+
+
+def _prefix(key: str) -> str:
+    return "sb-" + re.sub(r"[^A-Za-z0-9_-]", "-", key)
+
+
+def finish_svg(raw: str, key: str, title: str, description: str) -> str:
+    """Add <title>/<desc>, role and aria-labelledby, and prefix every id with the chart key."""
+    root = ET.fromstring(raw)
+    prefix = _prefix(key)
+    renamed: dict[str, str] = {}
+    for element in root.iter():
+        old = element.get("id")
+        if old is not None:
+            renamed[old] = f"{prefix}-{len(renamed) + 1}"
+            element.set("id", renamed[old])
+    if renamed:
+        pattern = re.compile(r"url\(#([^)]+)\)")
+
+        def swap(match: re.Match[str]) -> str:
+            return f"url(#{renamed.get(match.group(1), match.group(1))})"
+
+        for element in root.iter():
+            for name, value in element.attrib.items():
+                if "url(#" in value:
+                    element.set(name, pattern.sub(swap, value))
+                elif name in ("href", f"{{{XLINK_NS}}}href") and value.startswith("#"):
+                    element.set(name, "#" + renamed.get(value[1:], value[1:]))
+    title_id, desc_id = f"{prefix}-title", f"{prefix}-desc"
+    title_el = ET.Element(f"{{{SVG_NS}}}title", {"id": title_id})
+    title_el.text = title
+    desc_el = ET.Element(f"{{{SVG_NS}}}desc", {"id": desc_id})
+    desc_el.text = description
+    root.insert(0, desc_el)
+    root.insert(0, title_el)
+    root.set("role", "img")
+    root.set("aria-labelledby", f"{title_id} {desc_id}")
+    root.attrib.pop("class", None)
+    return ET.tostring(root, encoding="unicode")
