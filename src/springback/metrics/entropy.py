@@ -49,19 +49,30 @@ CELLS_PER_CHUNK = 20_000_000
 
 
 def pattern_codes(x: np.ndarray, order: int, delay: int) -> np.ndarray:
-    """Return the ordinal pattern index (0..order!-1) of every embedding vector (last axis)."""
+    """Return the ordinal pattern index (0..order!-1) of every embedding vector (last axis).
+
+    The pattern is the rank vector: rank k = #{j: v_j < v_k} + #{j < k: v_j = v_k}, so equal
+    values are ranked by order of occurrence (the same order a stable sort gives). Pairwise
+    comparisons (order^2 array passes) are much faster than sorting many short vectors.
+    """
     x = np.asarray(x, dtype=float)
     span = (order - 1) * delay + 1
     if x.shape[-1] < span:
         return np.zeros((*x.shape[:-1], 0), dtype=np.int64)
-    emb = sliding_window_view(x, span, axis=-1)[..., ::delay]
-    ranks = np.argsort(emb, axis=-1, kind="stable")
-    code = ranks @ (order ** np.arange(order))
+    n = x.shape[-1] - span + 1
+    cols = [x[..., k * delay:k * delay + n] for k in range(order)]
+    code = np.zeros(cols[0].shape, dtype=np.int64)
+    for k in range(order):
+        rank = np.zeros(cols[0].shape, dtype=np.int64)
+        for j in range(order):
+            if j != k:
+                rank += (cols[j] < cols[k]) | ((cols[j] == cols[k]) & (j < k))
+        code += rank * order**k
     return _lookup(order)[code]
 
 
 def _lookup(order: int) -> np.ndarray:
-    """Map base-`order` codes of permutations to 0..order!-1."""
+    """Map base-`order` codes of permutations (rank vectors) to 0..order!-1."""
     table = np.full(order**order, -1, dtype=np.int64)
     for k, perm in enumerate(permutations(range(order))):
         table[int(np.dot(perm, order ** np.arange(order)))] = k
@@ -69,12 +80,15 @@ def _lookup(order: int) -> np.ndarray:
 
 
 def entropy_of_counts(counts: np.ndarray, order: int) -> np.ndarray:
-    """Return normalised Shannon entropy over the last axis of pattern counts."""
-    counts = np.asarray(counts, dtype=float)
-    total = counts.sum(axis=-1, keepdims=True)
-    p = counts / total
+    """Return normalised Shannon entropy over the last axis of integer pattern counts."""
+    counts = np.asarray(counts).astype(np.int64)
+    total = counts.sum(axis=-1)
+    # Why: H = ln W - sum(c ln c) / W; c ln c from a table of the few possible integer counts.
+    top = int(counts.max()) if counts.size else 0
+    c = np.arange(top + 1, dtype=float)
+    clogc = np.concatenate([[0.0], c[1:] * np.log(c[1:])])
     with np.errstate(divide="ignore", invalid="ignore"):
-        h = -np.sum(np.where(p > 0, p * np.log(p), 0.0), axis=-1)
+        h = np.log(total) - clogc[counts].sum(axis=-1) / total
     return h / math.log(math.factorial(order))
 
 
@@ -109,8 +123,10 @@ def valid_patterns(admissible: np.ndarray, order: int, delay: int) -> np.ndarray
 
 def _remap(surrogates: np.ndarray, x: np.ndarray) -> np.ndarray:
     """Replace each surrogate row's values rank for rank by the sorted observed values."""
-    ranks = np.argsort(np.argsort(surrogates, axis=1, kind="stable"), axis=1)
-    return np.sort(x)[ranks]
+    order = np.argsort(surrogates, axis=1)
+    out = np.empty(surrogates.shape)
+    np.put_along_axis(out, order, np.broadcast_to(np.sort(x), surrogates.shape), axis=1)
+    return out
 
 
 def complexity_family(series: Series, participant: str, settings: StudySettings) -> Family:

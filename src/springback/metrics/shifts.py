@@ -45,12 +45,13 @@ SHIFT_CSV_COLUMNS = ("participant", "date", "direction", "size", "method")
 
 def daily_means(study_day: np.ndarray, value: np.ndarray) -> pd.DataFrame:
     """Return study_day, mean and n of answered values per study day with an answer."""
-    frame = pd.DataFrame({"study_day": np.asarray(study_day, dtype="datetime64[ns]"),
-                          "value": np.asarray(value, dtype=float)}).dropna()
-    grouped = frame.groupby("study_day", sort=True)["value"]
-    out = pd.DataFrame({"mean": grouped.mean(), "n": grouped.size()}).reset_index()
-    out["n"] = out["n"].astype(int)
-    return out
+    day = np.asarray(study_day, dtype="datetime64[ns]")
+    value = np.asarray(value, dtype=float)
+    keep = np.isfinite(value) & ~np.isnat(day)
+    days, which = np.unique(day[keep], return_inverse=True)
+    n = np.bincount(which, minlength=days.size)
+    sums = np.bincount(which, weights=value[keep], minlength=days.size)
+    return pd.DataFrame({"study_day": days, "mean": sums / np.maximum(n, 1), "n": n.astype(int)})
 
 
 def noise_scale(y: np.ndarray) -> float:
