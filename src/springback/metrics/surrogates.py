@@ -83,12 +83,18 @@ def phase_surrogates_multi(x: np.ndarray, n: int, rng: np.random.Generator) -> n
     return np.fft.irfft(rotated, n=length, axis=2).transpose(0, 2, 1)
 
 
+TIE_TOLERANCE = 1e-9
+"""Values closer than this (relative to the column's largest size) are ties: window statistics
+from running sums carry rounding noise that would otherwise break exact ties at random."""
+
+
 def _dense_ranks(y: np.ndarray) -> np.ndarray:
-    """Dense ranks (ties share a rank) down each column, as small integers."""
+    """Dense ranks (near-equal values share a rank) down each column, as small integers."""
     order = np.argsort(y, axis=0)
     sorted_y = np.take_along_axis(y, order, axis=0)
     step = np.ones(y.shape, dtype=bool)
-    step[1:] = sorted_y[1:] != sorted_y[:-1]
+    tol = TIE_TOLERANCE * np.abs(sorted_y).max(axis=0)
+    step[1:] = (sorted_y[1:] - sorted_y[:-1]) > tol
     dtype = np.int16 if y.shape[0] < np.iinfo(np.int16).max else np.int32
     dense = (np.cumsum(step, axis=0) - 1).astype(dtype)
     ranks = np.empty(y.shape, dtype=dtype)
