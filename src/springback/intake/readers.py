@@ -244,11 +244,18 @@ def _check_duplicate_names(names: Iterable[str], where: str) -> None:
 # Cell conversion (shared by every file kind, so all formats give identical frames)
 
 
+def _strings(values: pd.Series) -> pd.Series:
+    """Cells as trimmed text (pandas' string dtype; missing cells stay missing)."""
+    if not isinstance(values.dtype, pd.StringDtype):
+        values = values.astype("str")
+    return values.str.strip()
+
+
 def missing_mask(values: pd.Series, missing: Iterable[str]) -> pd.Series:
     """True where a cell holds no value (empty, NaN or one of the missing-value texts)."""
     if values.dtype.kind in "biufcmM":
         return values.isna()
-    text = values.astype("string").str.strip()
+    text = _strings(values)
     return text.isna() | text.isin(list(missing))
 
 
@@ -257,20 +264,20 @@ def as_text(values: pd.Series, missing: Iterable[str]) -> pd.Series:
     if values.dtype.kind in "fc":
         whole = values.notna() & (values == np.round(values))
         out = values.astype(object).where(~whole, values.where(whole).astype("Int64"))
-        text = out.astype("string")
+        text = _strings(out.where(values.notna()))
     elif values.dtype.kind == "b":
-        text = values.map({True: "yes", False: "no"}).astype("string")
+        text = values.map({True: "yes", False: "no"}).astype("str")
     else:
-        text = values.astype("string").str.strip()
-    return text.mask(missing_mask(values, missing) | text.isin(list(missing)))
+        text = _strings(values)
+    return text.mask(text.isna() | text.isin(list(missing)))
 
 
 def as_number(values: pd.Series, missing: Iterable[str]) -> tuple[pd.Series, pd.Series]:
     """Cells as floats, and a mask of cells that hold something that is not a number."""
     if values.dtype.kind in "biuf":
         return values.astype("float64"), pd.Series(False, index=values.index)
-    gone = missing_mask(values, missing)
-    text = values.astype("string").str.strip()
+    text = _strings(values)
+    gone = text.isna() | text.isin(list(missing))
     # A decimal comma (2,5) is what European exports write; a thousands comma never occurs
     # on a rating scale, so reading it as a decimal point is safe here.
     comma = text.str.fullmatch(_DECIMAL_COMMA.pattern).fillna(False).astype(bool)

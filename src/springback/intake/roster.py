@@ -46,7 +46,7 @@ def read_roster(table: Table, settings: StudySettings, problems: list) -> pd.Dat
 
     def text(name: str) -> pd.Series:
         return as_text(labelled(table, name), missing) if name in present else \
-            pd.Series(pd.NA, index=table.frame.index, dtype="string")
+            pd.Series(np.nan, index=table.frame.index, dtype="str")
 
     pid = text(cols.participant)
     out = pd.DataFrame({"participant": pid.fillna("")})

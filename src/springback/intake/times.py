@@ -70,7 +70,7 @@ def _split(text: pd.Series) -> tuple[pd.Series, pd.Series]:
 
 def zone_texts(values: pd.Series) -> pd.Series:
     """Zone texts from a time-zone column: a bare zone, or the zone ending a time."""
-    text = values.astype("string").str.strip().fillna("")
+    text = values.astype("str").str.strip().fillna("")
     clock, zone = _split(text)
     return text.where(clock.isna(), zone).astype(object)
 
@@ -88,7 +88,7 @@ def parse_times(values: pd.Series, *, study_zone: str, row_zones: pd.Series | No
             return Times(utc, problem, pd.Series(str(values.dt.tz), index=index, dtype=object))
         naive = values.astype("datetime64[ns]")
     else:
-        text = values.map(_cell_text, na_action="ignore").astype("string").str.strip()
+        text = values.map(_cell_text, na_action="ignore").astype("str").str.strip()
         text = text.mask(gone)
         if fmt:
             aware = "%z" in fmt or "%Z" in fmt
