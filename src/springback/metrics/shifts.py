@@ -19,8 +19,8 @@ Days without answers are skipped: the series is the sequence of days with at lea
 
 from __future__ import annotations
 
-import itertools
 import math
+from itertools import pairwise
 from typing import Any
 
 import numpy as np
@@ -84,12 +84,52 @@ def pelt_changepoints(y: np.ndarray, penalty: float, min_size: int) -> list[int]
     return [int(e) for e in ends[:-1]]
 
 
+def optimal_partition(y: np.ndarray, penalty: float, min_size: int) -> list[int]:
+    """Return segment starts of the exact optimal partitioning (no pruning), L2 cost.
+
+    The recursion PELT prunes: F(t) = min over tau of F(tau) + C(y[tau:t]) + beta, F(0) = -beta
+    (Jackson et al. 2005, IEEE Signal Processing Letters 12:105-108, as restated in Killick et
+    al. 2012). Used to check ruptures' PELT, whose pruning can discard a still-optimal candidate
+    when segments have a minimum length (deepcharles/ruptures pull request #383, open in 2026).
+    """
+    y = np.asarray(y, dtype=float)
+    n = len(y)
+    if n < 2 * min_size or penalty <= 0:
+        return []
+    cs = np.concatenate([[0.0], np.cumsum(y)])
+    cs2 = np.concatenate([[0.0], np.cumsum(y * y)])
+    best = np.full(n + 1, np.inf)
+    best[0] = -penalty
+    prev = np.zeros(n + 1, dtype=int)
+    for t in range(min_size, n + 1):
+        tau = np.concatenate([[0], np.arange(min_size, t - min_size + 1)])
+        s = cs[t] - cs[tau]
+        cost = cs2[t] - cs2[tau] - s * s / (t - tau)
+        total = best[tau] + cost + penalty
+        k = int(np.argmin(total))
+        best[t], prev[t] = total[k], tau[k]
+    starts, t = [], n
+    while t > 0:
+        t = int(prev[t])
+        if t > 0:
+            starts.append(t)
+    return sorted(starts)
+
+
+def penalised_cost(y: np.ndarray, starts: list[int], penalty: float) -> float:
+    """Return the L2 cost of a segmentation plus the penalty per change point."""
+    y = np.asarray(y, dtype=float)
+    bounds = [0, *starts, len(y)]
+    rss = sum(float(np.sum((y[a:b] - y[a:b].mean()) ** 2)) for a, b in pairwise(bounds))
+    return rss + penalty * len(starts)
+
+
 def segment_levels(y: np.ndarray, starts: list[int]) -> tuple[np.ndarray, float]:
     """Return each day's segment mean and the pooled within-segment SD of the days."""
     y = np.asarray(y, dtype=float)
     bounds = [0, *starts, len(y)]
     level = np.empty_like(y)
-    for a, b in itertools.pairwise(bounds):
+    for a, b in pairwise(bounds):
         level[a:b] = y[a:b].mean()
     dof = len(y) - (len(bounds) - 1)
     pooled = math.sqrt(float(np.sum((y - level) ** 2)) / dof) if dof > 0 else float("nan")
@@ -154,11 +194,19 @@ def shift_family(
     s = noise_scale(y)
     penalty = settings.metrics.pelt_penalty or 2.0 * s * s * math.log(n_days)
     starts = pelt_changepoints(y, penalty, min_size)
+    exact = optimal_partition(y, penalty, min_size)
+    check = "ruptures PELT matched the exact optimal partitioning"
+    if penalised_cost(y, exact, penalty) < penalised_cost(y, starts, penalty) - 1e-9 * (
+            1.0 + penalty):
+        # Why: known pruning defect of ruptures with a minimum segment length; the exact
+        # optimum of the same objective is what PELT is meant to return.
+        starts = exact
+        check = "ruptures PELT missed the optimum (minimum-length pruning); exact result used"
     level, pooled = segment_levels(y, starts)
     daily = daily.assign(level=level)
     params.update(penalty=penalty, penalty_rule="set in study.toml" if
                   settings.metrics.pelt_penalty else "2 s^2 ln n (BIC-type)",
-                  noise_sd=s, within_segment_sd=pooled)
+                  noise_sd=s, within_segment_sd=pooled, optimality_check=check)
     events = _sudden_events(questionnaires)
     rows = []
     for i in starts:
