@@ -157,7 +157,7 @@ def _register_optional() -> None:
     """Add command groups that live in their own modules."""
     import importlib
 
-    for module in ("springback.cli_gate", "springback.cli_extra"):
+    for module in ("springback.cli_gate", "springback.cli_extra", "springback.cli_send"):
         try:
             mod = importlib.import_module(module)
         except ModuleNotFoundError as exc:

@@ -340,8 +340,30 @@ class Delivery(Section):
     passphrases_file: Path | None = Field(
         None, description="CSV with participant,passphrase for protected PDFs."
     )
-    subject: Text = Field(default_factory=dict, description="Message subject per language.")
-    body: Text = Field(default_factory=dict, description="Message text per language.")
+    subject: Text = Field(
+        default_factory=dict,
+        description="Message subject per language; may use {study}, {team}, {contact}, "
+        "{participant}, {version}. Default: an English text of springback's own.",
+    )
+    body: Text = Field(
+        default_factory=dict,
+        description="Message text per language (same placeholders). Never put the passphrase "
+        "here: it reaches people by another channel.",
+    )
+    therapist_subject: Text = Field(
+        default_factory=dict, description="Subject of the therapist copy per language."
+    )
+    therapist_body: Text = Field(
+        default_factory=dict, description="Message text of the therapist copy per language."
+    )
+    ca_file: Path | None = Field(
+        None,
+        description="Certificate of your institution's own certificate authority, when the "
+        "SMTP server's certificate comes from it (default: the system's trusted authorities).",
+    )
+    timeout_seconds: float = Field(
+        30.0, gt=0, description="How long to wait for the SMTP server before giving up."
+    )
 
 
 class Output(Section):
