@@ -112,12 +112,16 @@ def find_episodes(series: Series, events: np.ndarray, settings: StudySettings) -
 
 
 def km_median(times: np.ndarray, observed: np.ndarray) -> float:
-    """Kaplan-Meier median time (NaN when the survival curve never reaches one half)."""
+    """Kaplan-Meier median: the first time the survival estimate drops below one half.
+
+    Convention of Collett 2015, "Modelling survival data in medical research", §2.4 (from
+    memory) and statsmodels' SurvfuncRight.quantile; NaN when it never drops below one half.
+    """
     order = np.lexsort((~observed, times))  # events before censorings at tied times
     times, observed = times[order], observed[order]
     at_risk = len(times) - np.arange(len(times))
     surv = np.cumprod(np.where(observed, 1.0 - 1.0 / at_risk, 1.0))
-    below = np.flatnonzero(observed & (surv <= 0.5 + 1e-12))
+    below = np.flatnonzero(observed & (surv < 0.5 - 1e-12))
     return float(times[below[0]]) if len(below) else float("nan")
 
 
@@ -169,7 +173,7 @@ def bounce_back(series: Series, data: ParticipantData, settings: StudySettings) 
             Estimate(med, n=n_ep, note="Kaplan-Meier median; censored episodes counted as "
                                        "not yet recovered")
             if math.isfinite(med) else Estimate.missing(
-                "fewer than half of the episodes were seen to recover", n=n_ep))
+                "half of the episodes or more were not seen to recover", n=n_ep))
     else:
         est["median_recovery_hours"] = Estimate.missing(
             f"needs at least {MIN_EPISODES} upsets or dips; there were {n_ep}", n=n_ep)
