@@ -118,10 +118,13 @@ def kde_density(
     return density
 
 
-def potential_of(density: np.ndarray) -> np.ndarray:
-    """Return U = -ln p (sigma^2/2 = 1), with empty grid points at a finite ceiling."""
+def potential_of(density: np.ndarray, sigma: float = math.sqrt(2.0)) -> np.ndarray:
+    """Return U = -(sigma^2 / 2) ln p; the default sigma = sqrt 2 gives U = -ln p.
+
+    Empty grid points get a finite ceiling (the log of the smallest positive float).
+    """
     floor = np.finfo(float).tiny
-    return -np.log(np.maximum(density, floor))
+    return -(sigma * sigma / 2.0) * np.log(np.maximum(density, floor))
 
 
 def local_minima(u: np.ndarray) -> np.ndarray:
