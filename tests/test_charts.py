@@ -368,3 +368,29 @@ def test_finish_svg_renames_ids_and_references():
     assert root.find(f"{SVG}g/{SVG}use").get("{http://www.w3.org/1999/xlink}href") == (
         "#sb-questionnaire_phq-9-1")
     assert root.find(f"{SVG}title").text == "T & t" and "D &lt; d" in out
+
+
+def test_many_shifts_are_summarised(study):
+    """Check that more than two shifts give a count and the largest, not one sentence each."""
+    data, results, settings = study
+    days = pd.to_datetime(["2026-03-20", "2026-03-25", "2026-04-01", "2026-04-06"])
+    points = pd.DataFrame({"study_day": days, "direction": ["worse", "better", "worse", "better"],
+                           "size": [0.8, -0.5, 1.9, -0.7], "method": "PELT",
+                           "exceeds_swings": True})
+    fams = dict(results.families)
+    fams["shifts"] = replace(fams["shifts"], tables={**fams["shifts"].tables,
+                                                     "change_points": points})
+    chart = make_charts(data, replace(results, families=fams), settings, "en",
+                        lambda s: s)["mood"]
+    assert "shift 4 times: 2 times to feeling worse and 2 times to feeling better" in (
+        chart.description)
+    assert "The largest shift was around 1 April." in chart.description
+    # Written labels would overlap: the key names the dotted rule instead.
+    assert "shift: worse" not in chart.svg and "detected shift" in chart.svg
+
+
+def test_load_path_joins_weekly_averages_for_long_studies(charts):
+    """Check the load chart: four weeks of days give a weekly path and a day-per-row table."""
+    assert ">weekly averages, joined in time order<" in charts["load"].svg
+    assert len(charts["load"].table) == DAYS
+    assert "start, 16 March" in charts["load"].svg

@@ -256,10 +256,10 @@ def grid_chart(ctx: Inputs) -> Chart | None:
         x = {"field": "w", "type": "ordinal", "sort": list(window_names.values()),
              "axis": {"title": _("Window (share of prompts)"), "labelAngle": 0}}
         y = {"field": "b", "type": "ordinal", "sort": list(band_names.values()),
-             "axis": {"title": _("Smoothing (days)")}}
+             "axis": {"title": _("Smoothing (days)") if not panels else None}}
         panels.append({
             "title": names[which], "data": {"values": records(cells)},
-            "width": 52 * len(windows), "height": 30 * len(bands),
+            "width": 46 * len(windows), "height": 30 * len(bands),
             "layer": [
                 {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},
                  "encoding": {"x": x, "y": y,

@@ -24,6 +24,7 @@ from springback.palette import CALENDAR_RAMP, CHART, readable_text_on
 EVENT_SHAPES = ("triangle-down", "diamond", "square", "cross", "triangle-up")
 """One shape per event kind (answers are circles); further kinds share the last shape."""
 HEIGHT = 260
+MAX_SHIFT_LABELS = 3
 
 
 def mood_chart(ctx: Inputs) -> Chart | None:
@@ -59,7 +60,8 @@ def mood_chart(ctx: Inputs) -> Chart | None:
     shift_layers = _shift_layers(ctx, x, y)
     if shift_layers:
         layers += shift_layers
-        key.append(KeyItem(_("level before and after a shift"), CHART.highlight, dash=(8, 4)))
+        key += [KeyItem(_("detected shift"), CHART.highlight, dash=(2, 3), width=2),
+                KeyItem(_("level before and after a shift"), CHART.highlight, dash=(8, 4))]
     layers.append(
         {"data": {"values": records(means)},
          "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 3,
@@ -119,10 +121,13 @@ def _shift_layers(ctx: Inputs, x: dict[str, Any], y: dict[str, Any]) -> list[dic
          "mark": {"type": "rule", "color": CHART.highlight, "strokeWidth": 2,
                   "strokeDash": [2, 3]},
          "encoding": {"x": {"field": "t", **x}}},
-        {"data": {"values": records(marks)},
-         "mark": {"type": "text", "align": "left", "dx": 4, "color": CHART.ink},
-         "encoding": {"x": {"field": "t", **x}, "y": {"value": 26}, "text": {"field": "label"}}},
     ]
+    if len(marks) <= MAX_SHIFT_LABELS:  # more written labels would overlap; the key names them
+        layers.append(
+            {"data": {"values": records(marks)},
+             "mark": {"type": "text", "align": "left", "dx": 4, "color": CHART.ink},
+             "encoding": {"x": {"field": "t", **x}, "y": {"value": 26},
+                          "text": {"field": "label"}}})
     levels = ctx.table("shifts", "daily")
     if levels is not None and "level" in levels.columns:
         # Each level holds from the start of its day; the last one to the end of its day.
@@ -177,17 +182,32 @@ def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
         parts.append(_("In the last week your daily average was {last}, {trend} in the first "
                        "week ({first}).").format(last=ctx.num(last), trend=trend,
                                                  first=ctx.num(first)))
-    points = ctx.table("shifts", "change_points")
-    if points is not None:
-        for row in points.itertuples():
-            text = (_("Around {date} your mood seemed to shift to feeling worse.")
-                    if row.direction == "worse"
-                    else _("Around {date} your mood seemed to shift to feeling better."))
-            parts.append(text.format(date=ctx.date(row.study_day)))
+    parts += _shift_sentences(ctx)
     if n_events:
         parts.append(_("Events you reported are marked at the top ({n} in all).").format(
             n=n_events))
     return " ".join(parts)
+
+
+def _shift_sentences(ctx: Inputs) -> list[str]:
+    """One sentence per shift, or a summary naming the largest when there are many."""
+    _ = ctx.gettext
+    points = ctx.table("shifts", "change_points")
+    if points is None:
+        return []
+    worse = _("Around {date} your mood seemed to shift to feeling worse.")
+    better = _("Around {date} your mood seemed to shift to feeling better.")
+    if len(points) <= 2:
+        return [(worse if row.direction == "worse" else better).format(date=ctx.date(row.study_day))
+                for row in points.itertuples()]
+    n_worse = int((points["direction"] == "worse").sum())
+    largest = points.loc[points["size"].abs().idxmax()]
+    return [
+        _("Your mood seemed to shift {n} times: {worse} times to feeling worse and {better} "
+          "times to feeling better.").format(n=len(points), worse=n_worse,
+                                             better=len(points) - n_worse),
+        _("The largest shift was around {date}.").format(date=ctx.date(largest["study_day"])),
+    ]
 
 
 def _mood_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None) -> pd.DataFrame:
@@ -215,7 +235,7 @@ def calendar_chart(ctx: Inputs) -> Chart | None:
     weekdays = babel.dates.get_day_names("abbreviated", locale=ctx.locale)
     day_names = [weekdays[i] for i in range(7)]
     week_names = list(dict.fromkeys(cells["week"]))
-    cell_w, cell_h = 72, 40
+    cell_w, cell_h = 72, 32
     x = {"field": "weekday", "type": "ordinal", "sort": day_names,
          "scale": {"domain": day_names, "paddingInner": 0.06},
          "axis": {"title": None, "orient": "top", "labelAngle": 0, "domain": False,
@@ -230,11 +250,11 @@ def calendar_chart(ctx: Inputs) -> Chart | None:
             {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},
              "encoding": {"x": x, "y": y, "fill": {"field": "fill", "type": "nominal",
                                                    "scale": None}}},
-            {"mark": {"type": "text", "fontSize": 14, "fontWeight": "bold", "dy": 6},
+            {"mark": {"type": "text", "fontSize": 14, "fontWeight": "bold", "dx": 8, "dy": 2},
              "encoding": {"x": x, "y": y, "text": {"field": "label"},
                           "fill": {"field": "ink", "type": "nominal", "scale": None}}},
             {"mark": {"type": "text", "fontSize": 11, "align": "left", "baseline": "top",
-                      "dx": -cell_w / 2 + 6, "dy": -cell_h / 2 + 3},
+                      "dx": -cell_w / 2 + 5, "dy": -cell_h / 2 + 3},
              "encoding": {"x": x, "y": y, "text": {"field": "dom"},
                           "fill": {"field": "ink", "type": "nominal", "scale": None}}},
         ],

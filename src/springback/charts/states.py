@@ -12,7 +12,8 @@ from springback.charts.common import (
     CHAR_WIDTH,
     Chart,
     Inputs,
-    day_noon_ms,
+    KeyItem,
+    key_spec,
     records,
     time_axis,
 )
@@ -22,6 +23,8 @@ from springback.palette import BAND_FILLS, CHART
 POTENTIAL_SPAN = 6.0
 """Height of the landscape shown above its deepest point: density ratios up to e^6 (~400)."""
 TABLE_ROWS = 21
+WEEKLY_PATH_DAYS = 21
+"""From three weeks of days on, the path over time joins weekly averages instead of days."""
 
 
 def questionnaire_charts(ctx: Inputs) -> list[Chart]:
@@ -270,7 +273,7 @@ def _landscape_table(ctx: Inputs, curve: pd.DataFrame, valley_rows: pd.DataFrame
 
 
 def load_chart(ctx: Inputs) -> Chart | None:
-    """Daily mood against daily load, points joined in time order (a loop shows hysteresis)."""
+    """Mood against load: days as dots, the path over time joined in order (loops show)."""
     _ = ctx.gettext
     load = ctx.table("landscape", "load")
     if load is None:
@@ -278,51 +281,74 @@ def load_chart(ctx: Inputs) -> Chart | None:
     load = load.dropna(subset=["load", "mood"]).sort_values("study_day").reset_index(drop=True)
     if len(load) < 3:
         return None
-    thirds = np.array_split(np.arange(len(load)), 3)
+    days = pd.to_datetime(load["study_day"])
+    daily = pd.DataFrame({"load": load["load"].astype(float), "mood": load["mood"].astype(float)})
+    weekly = len(load) >= WEEKLY_PATH_DAYS
+    if weekly:
+        # Day-to-day noise hides a loop; weekly averages keep the path readable.
+        block = ((days - days.iloc[0]).dt.days // 7).to_numpy()
+        path = daily.groupby(block).mean().reset_index(drop=True)
+        starts = days.groupby(block).min().reset_index(drop=True)
+    else:
+        path, starts = daily, days
     names = [_("first third"), _("middle third"), _("last third")]
-    part = np.empty(len(load), dtype=object)
-    for name, idx in zip(names, thirds, strict=True):
+    part = np.empty(len(path), dtype=object)
+    for name, idx in zip(names, np.array_split(np.arange(len(path)), 3), strict=True):
         part[idx] = name
-    frame = pd.DataFrame({"order": np.arange(len(load)), "load": load["load"].astype(float),
-                          "mood": load["mood"].astype(float), "part": part,
-                          "t": day_noon_ms(ctx, load["study_day"])})
-    ends = frame.iloc[[0, -1]].assign(label=[
-        _("start, {date}").format(date=ctx.date(load["study_day"].iloc[0])),
-        _("end, {date}").format(date=ctx.date(load["study_day"].iloc[-1]))])
+    shapes = dict(zip(names, ("circle", "square", "triangle-up"), strict=True))
+    path = path.assign(order=np.arange(len(path)), part=part,
+                       shape=[shapes[p] for p in part])
+    ends = path.iloc[[0, -1]].assign(label=[
+        _("start, {date}").format(date=ctx.date(starts.iloc[0])),
+        _("end, {date}").format(date=ctx.date(days.iloc[-1]))])
     load_name = _load_label(ctx)
     low, high = ctx.scale
-    counts = bool(np.all(np.mod(frame["load"], 1) == 0))
+    counts = bool(np.all(np.mod(daily["load"], 1) == 0))
     x = {"type": "quantitative", "scale": {"zero": False, "nice": True, "padding": 12},
          "axis": {"title": load_name, **({"tickMinStep": 1, "format": "d"} if counts else {})}}
     y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
          "axis": {"title": ctx.value_axis_title()}}
-    spec = {"width": PLOT_WIDTH, "height": 300,
-            "layer": [
-                {"data": {"values": records(frame)},
-                 "mark": {"type": "line", "color": CHART.neutral, "strokeWidth": 1.2},
-                 "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
-                              "order": {"field": "order", "type": "quantitative"}}},
-                {"data": {"values": records(frame)},
-                 "mark": {"type": "point", "filled": True, "size": 70, "color": CHART.primary,
-                          "opacity": 1},
-                 "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
-                              "shape": {"field": "part", "type": "nominal",
-                                        "scale": {"domain": names,
-                                                  "range": ["circle", "square",
-                                                            "triangle-up"]},
-                                        "legend": {"title": _("Part of the study")}}}},
-                {"data": {"values": records(ends)},
-                 "mark": {"type": "text", "dy": -14, "align": "left", "dx": 6,
-                          "color": CHART.ink, "fontWeight": "bold"},
-                 "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
-                              "text": {"field": "label"}}},
-            ]}
+    layers: list[dict[str, Any]] = []
+    key: list[KeyItem] = []
+    if weekly:
+        layers.append({"data": {"values": records(daily)},
+                       "mark": {"type": "point", "shape": "circle", "filled": False,
+                                "size": 24, "color": CHART.neutral, "strokeWidth": 1},
+                       "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y}}})
+        key.append(KeyItem(_("one day"), CHART.neutral, kind="point", filled=False))
+    key.append(KeyItem(_("weekly averages, joined in time order") if weekly
+                       else _("days, joined in time order"), CHART.primary))
+    key += [KeyItem(name, CHART.primary, kind="point", shape=shapes[name]) for name in names]
+    layers += [
+        {"data": {"values": records(path)},
+         "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 2},
+         "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
+                      "order": {"field": "order", "type": "quantitative"}}},
+        {"data": {"values": records(path)},
+         "mark": {"type": "point", "filled": True, "size": 80, "color": CHART.primary,
+                  "opacity": 1},
+         "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
+                      "shape": {"field": "shape", "type": "nominal", "scale": None}}},
+        # The start label sits below its point and the end label above, so they do not meet.
+        {"data": {"values": records(ends.iloc[[0]])},
+         "mark": {"type": "text", "dy": 10, "baseline": "top", "align": "left", "dx": 6,
+                  "color": CHART.ink, "fontWeight": "bold"},
+         "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
+                      "text": {"field": "label"}}},
+        {"data": {"values": records(ends.iloc[[1]])},
+         "mark": {"type": "text", "dy": -10, "baseline": "bottom", "align": "left", "dx": 6,
+                  "color": CHART.ink, "fontWeight": "bold"},
+         "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
+                      "text": {"field": "label"}}},
+    ]
+    plot = {"width": PLOT_WIDTH, "height": 300, "layer": layers}
+    spec = {"vconcat": [key_spec(key, PLOT_WIDTH), plot], "spacing": 10}
     title = _("Your mood and your daily load")
-    description = _load_description(ctx, frame, load_name)
+    description = _load_description(ctx, daily)
     table = pd.DataFrame({
-        _("Date"): [ctx.date_short(d) for d in load["study_day"]],
-        _("Load"): [ctx.num(v) for v in load["load"]],
-        _("Daily average"): [ctx.num(v) for v in load["mood"]],
+        _("Date"): [ctx.date_short(d) for d in days],
+        _("Load"): [ctx.num(v) for v in daily["load"]],
+        _("Daily average"): [ctx.num(v) for v in daily["mood"]],
     })
     return Chart("load", title, description,
                  to_svg(spec, "load", title, description, ctx.language), table,
@@ -337,7 +363,7 @@ def _load_label(ctx: Inputs) -> str:
     return _("{label} (daily average)").format(label=ctx.settings.label_of(source, ctx.language))
 
 
-def _load_description(ctx: Inputs, frame: pd.DataFrame, load_name: str) -> str:
+def _load_description(ctx: Inputs, frame: pd.DataFrame) -> str:
     _ = ctx.gettext
     # Spearman's rank correlation: robust to a few extreme days (Spearman 1904).
     rho = frame["load"].corr(frame["mood"], method="spearman")
@@ -349,5 +375,5 @@ def _load_description(ctx: Inputs, frame: pd.DataFrame, load_name: str) -> str:
     else:
         text = _("On days with more load your mood tended to be better (rank correlation "
                  "{rho}).").format(rho=ctx.num(rho, 2))
-    return text + " " + _("The line joins the days in order, so a loop shows when your mood "
-                          "came back along a different path than it went.")
+    return text + " " + _("The line follows the study in time order, so a loop shows when "
+                          "your mood came back along a different path than it went.")
