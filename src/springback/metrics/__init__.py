@@ -7,7 +7,17 @@ from __future__ import annotations
 
 from typing import Any
 
-from springback.metrics import descriptives, dynamics, questionnaires, recovery, warnings
+from springback.metrics import (
+    descriptives,
+    dynamics,
+    entropy,
+    landscape,
+    pattern,
+    questionnaires,
+    recovery,
+    shifts,
+    warnings,
+)
 from springback.metrics._series import prepare
 from springback.metrics.results import Family, ParticipantResults, to_rows
 from springback.model import ParticipantData
@@ -28,6 +38,10 @@ def compute(data: ParticipantData, settings: StudySettings) -> ParticipantResult
     families["recovery"] = recovery.bounce_back(series, data, settings)
     families["warnings"] = warnings.early_warnings(series, settings, data.participant)
     families["questionnaires"] = questionnaires.questionnaire_family(data.questionnaires, settings)
+    families["shifts"] = shifts.shift_family(series, settings, families.get("questionnaires"))
+    families["landscape"] = landscape.landscape_family(series, data, settings)
+    families["complexity"] = entropy.complexity_family(series, data.participant, settings)
+    families["pattern"] = pattern.pattern_family(families, settings)
     return ParticipantResults(participant=data.participant, variable=series.variable,
                               families=families, enough_data=enough, reason=reason)
 
