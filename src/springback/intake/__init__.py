@@ -217,7 +217,7 @@ def _late_and_absent(where: str, prompts: pd.DataFrame, momentary: pd.DataFrame,
                          fix="check the device clocks; late answers are counted in the quality "
                          "report (late_after_minutes under [data] sets the limit)",
                          code="late-answers"))
-    has_data = set(momentary["participant"])
+    has_data = set(momentary["participant"].unique())
     for person, row in roster.loc[roster["consent"] == "yes", ["participant", "_row"]].itertuples(
             index=False):
         if person not in has_data:

@@ -280,8 +280,9 @@ def as_number(values: pd.Series, missing: Iterable[str]) -> tuple[pd.Series, pd.
     gone = text.isna() | text.isin(list(missing))
     # A decimal comma (2,5) is what European exports write; a thousands comma never occurs
     # on a rating scale, so reading it as a decimal point is safe here.
-    comma = text.str.fullmatch(_DECIMAL_COMMA.pattern).fillna(False).astype(bool)
-    text = text.where(~comma, text.str.replace(",", ".", regex=False))
+    if bool(text.str.contains(",", regex=False).any()):
+        comma = text.str.fullmatch(_DECIMAL_COMMA.pattern).fillna(False).astype(bool)
+        text = text.where(~comma, text.str.replace(",", ".", regex=False))
     number = pd.to_numeric(text.mask(gone), errors="coerce").astype("float64")
     bad = number.isna() & ~gone
     return number, bad.astype(bool)
