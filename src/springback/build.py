@@ -45,6 +45,8 @@ class ParticipantOutcome:
     compliance: float | None = None
     editions: tuple[str, ...] = ()
     flags: list[dict[str, Any]] = field(default_factory=list)
+    reused: bool = False
+    """True when nothing this participant's booklet depends on changed since the last build."""
 
 
 @dataclass(frozen=True)
@@ -64,6 +66,8 @@ class BuildReport:
         out: dict[str, int] = {}
         for o in self.outcomes:
             key = "held" if o.status == "built" and o.review_state == "held" else o.status
+            if o.reused:
+                key = f"unchanged ({key})"
             out[key] = out.get(key, 0) + 1
         return out
 
@@ -259,18 +263,26 @@ def build(
         selected = _select(study, participants)
         tmpl = template_files(project)
         s_hash, t_hash = settings_hash(settings), templates_hash(tmpl)
-        jobs_list = []
+        previous = None if force else Previous.load(project)
+        jobs_list, reused = [], {}
         for pid in selected:
             data = study.slice(pid)
             fp = fingerprint(data, s_hash, t_hash)
             version = archive.booklet_version(project, pid, fp)
-            jobs_list.append(Job(project, data, settings, fp, version, started))
+            job = Job(project, data, settings, fp, version, started)
+            again = previous.outcome(job) if previous else None
+            if again is not None:
+                reused[pid] = again
+            else:
+                jobs_list.append(job)
         report = progress or (lambda _p, _s: None)
         report("", f"start:{len(jobs_list)}")
-        outcomes = run_jobs(
+        fresh = run_jobs(
             jobs_list, run_job, jobs_n=jobs, backend=backend, scheduler=scheduler,
             progress=progress,
         )
+        by_id = {**reused, **{o.participant: o for o in fresh}}
+        outcomes = [by_id[pid] for pid in selected]
         report("", "writing the overview, tables and archive")
         tables = study_tables(study, outcomes)
         overview = render_overview(project, study, outcomes, started)
@@ -283,6 +295,75 @@ def build(
             ended=ended, templates=tmpl,
         )
     return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
+
+
+class Previous:
+    """The last archived build, for reusing participants whose inputs did not change."""
+
+    def __init__(self, project: Path, folder: Path, manifest: dict[str, Any]) -> None:
+        self.project = project
+        self.folder = folder
+        self.people: dict[str, dict[str, Any]] = manifest.get("participants", {})
+        self.rows = {name: _rows_by_participant(folder / "out" / name)
+                     for name in ("metrics.csv", "flags.csv", "shifts.csv")}
+
+    @classmethod
+    def load(cls, project: Path) -> Previous | None:
+        """The latest build's record, or None before the first build."""
+        from springback.archive import latest_manifest
+        from springback.fsutil import project_dirs
+
+        manifest = latest_manifest(project)
+        if not manifest:
+            return None
+        folder = project_dirs(project).archive / manifest["build"]
+        return cls(project, folder, manifest)
+
+    def outcome(self, job: Job) -> ParticipantOutcome | None:
+        """The participant's last outcome if nothing it depends on changed, else None."""
+        from springback.review import review_state
+
+        pid = job.data.participant
+        rec = self.people.get(pid)
+        if not rec or rec.get("fingerprint") != job.fingerprint or rec.get("status") not in (
+            "built", "no feedback", "not enough data", "withdrawn"
+        ):
+            return None
+        flags = list(rec.get("flags", []))
+        state = review_state(self.project, pid, job.fingerprint, flags)
+        if state != rec.get("review_state"):
+            return None  # the therapist edition shows the review state: render it anew
+        files: dict[str, bytes] = {}
+        for rel in rec.get("files", []):
+            path = self.folder / "out" / rel
+            if not path.is_file():
+                return None
+            files[rel] = path.read_bytes()
+        metrics_rows = self.rows["metrics.csv"].get(pid, [])
+        compliance = next((r["value"] for r in metrics_rows if r["measure"] == "compliance"), "")
+        editions = tuple(e for e in EDITIONS if f"{BOOKLETS}/{pid}/{e}.html" in files
+                         or f"{BOOKLETS}/{pid}/{e}.pdf" in files)
+        period = rec.get("period", {})
+        return ParticipantOutcome(
+            participant=pid, status=rec["status"], reason=rec.get("reason", ""), files=files,
+            metrics_rows=metrics_rows, flag_rows=self.rows["flags.csv"].get(pid, []),
+            shift_rows=self.rows["shifts.csv"].get(pid, []), review_state=state,
+            fingerprint=job.fingerprint, version=job.version,
+            period=(period.get("first", ""), period.get("last", "")),
+            compliance=float(compliance) if compliance not in ("", None) else None,
+            editions=editions, flags=flags, reused=True,
+        )
+
+
+def _rows_by_participant(path: Path) -> dict[str, list[dict[str, Any]]]:
+    """A study table's rows as exact strings, grouped by participant (empty if absent)."""
+    if not path.is_file():
+        return {}
+    df = pd.read_csv(path, dtype=str, keep_default_na=False)
+    out: dict[str, list[dict[str, Any]]] = {}
+    for row in df.to_dict("records"):
+        out.setdefault(row["participant"], []).append(row)
+    return out
 
 
 def _select(study: Study, participants: list[str] | None) -> list[str]:
