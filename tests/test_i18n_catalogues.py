@@ -124,10 +124,10 @@ def test_missing_compiled_catalogue_is_reported(scratch_locale: Path) -> None:
     assert "compiled catalogue for language 'nl' is missing" in problems[0].what
 
 
-def test_update_adds_new_messages_and_marks_removed_ones(
+def test_update_adds_new_messages_and_drops_removed_ones(
     scratch_locale: Path, tmp_path: Path
 ) -> None:
-    """Check the update workflow on a tiny source tree: new text untranslated, old obsolete."""
+    """Check the update workflow on a tiny source tree: new text untranslated, old text gone."""
     root = tmp_path / "checkout"
     (root / "src" / "springback").mkdir(parents=True)
     (root / "babel.cfg").write_text("[python: src/springback/**.py]\n", encoding="utf-8")
@@ -137,11 +137,14 @@ def test_update_adds_new_messages_and_marks_removed_ones(
         "    return gettext('A brand new sentence.')\n",
         encoding="utf-8",
     )
+    before = translation_report(["nl"], fresh=True, root=root)["nl"]
+    assert before["untranslated"] == ["A brand new sentence."]
+    assert "Your mood booklet" in before["obsolete"]  # in the .po, gone from these sources
     changed = extract(root)
     assert template_path() in changed and catalogue_path("nl") in changed
-    result = translation_report(["nl"], fresh=False)["nl"]
-    assert result["untranslated"] == ["A brand new sentence."]
-    assert result["not_compiled"] == []
+    after = translation_report(["nl"], fresh=False)["nl"]
+    assert after["untranslated"] == ["A brand new sentence."]
+    assert after["obsolete"] == [] and after["not_compiled"] == []
     with template_path().open("rb") as fh:
         (message,) = [m for m in read_po(fh) if m.id]
     assert message.auto_comments == ["a made-up message for this test"]

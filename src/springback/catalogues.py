@@ -5,7 +5,7 @@ The workflow of `springback translations --update` (and `make translations`):
 1. extract every message from the code and templates listed in `babel.cfg` into
    `locale/messages.pot` (Babel's extractors; Jinja's for templates);
 2. merge it into each language's `messages.po` (new messages appear untranslated, changed
-   ones fuzzy with the previous text shown, removed ones obsolete);
+   ones fuzzy with the previous text shown, removed ones dropped);
 3. compile each `.po` into the `.mo` that booklets are rendered with.
 
 Translators only edit the `.po` files. The report lists what is left to do per language.
@@ -165,7 +165,11 @@ def extract(root: Path = SOURCE_ROOT) -> list[Path]:
         po_path = catalogue_path(language)
         catalog = _read(po_path, language)
         catalog.update(template)
-        _write_if_changed(po_path, _po_bytes(catalog, include_previous=True), changed)
+        # Old translations have already served as fuzzy suggestions for changed messages;
+        # keeping them as obsolete entries would only clutter the translator's file.
+        _write_if_changed(
+            po_path, _po_bytes(catalog, include_previous=True, ignore_obsolete=True), changed
+        )
         _write_if_changed(catalogue_path(language, ".mo"), compile_catalogue(catalog), changed)
     if changed:
         translations.cache_clear()
@@ -287,7 +291,7 @@ def format_report(report: Report) -> str:
         "fuzzy": "fuzzy (check and remove the 'fuzzy' flag)",
         "errors": "format errors (placeholders must match the English)",
         "not_compiled": "not compiled (run `springback translations --update`)",
-        "obsolete": "obsolete (no longer used; may be deleted)",
+        "obsolete": "obsolete (no longer in the sources; dropped by --update)",
     }
     lines = []
     for language, entry in report.items():

@@ -261,6 +261,7 @@ class _TextCollector(HTMLParser):
             self.blocks.append(text if _ENDED.search(text) else text + ".")
 
     def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        tag = tag.rpartition(":")[2]  # a namespaced <ns0:svg> is still a chart
         if self.hidden or tag in _SKIPPED or dict(attrs).get("aria-hidden") == "true":
             if tag not in _VOID:
                 self.hidden.append(tag)
@@ -269,6 +270,7 @@ class _TextCollector(HTMLParser):
             self.end_block()
 
     def handle_endtag(self, tag: str) -> None:
+        tag = tag.rpartition(":")[2]
         if self.hidden:
             if tag in self.hidden:
                 while self.hidden and self.hidden.pop() != tag:

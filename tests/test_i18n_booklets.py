@@ -1,0 +1,153 @@
+"""The built example booklets: each fully in its participant's language, plain, and localised."""
+
+from __future__ import annotations
+
+import re
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from babel.dates import get_month_names
+from babel.messages.pofile import read_po
+from pypdf import PdfReader
+
+from springback.i18n import LANGUAGES, LOCALES, SOURCE_LANGUAGE, template_path, translations
+from springback.readability import FORMULAS, PLAIN_LEVEL, measure, text_of_html
+
+pytestmark = pytest.mark.xdist_group("example")
+
+
+
+def _foreign_months(language: str) -> set[str]:
+    """English month names that are not also month names in `language` ('May' is a word)."""
+    english = set(get_month_names("wide", locale="en_GB").values()) - {"May"}
+    return english - set(get_month_names("wide", locale=LOCALES[language]).values())
+
+
+class _AllText(HTMLParser):
+    """Every text a reader or screen reader meets: content, chart titles, alt and labels."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.parts: list[str] = []
+        self.lang = ""
+        self._skip = 0
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        if tag == "html":
+            self.lang = dict(attrs).get("lang") or ""
+        if tag in ("script", "style"):
+            self._skip += 1
+        for key, value in attrs:
+            if key in ("alt", "title", "aria-label") and value:
+                self.parts.append(value)
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag in ("script", "style") and self._skip:
+            self._skip -= 1
+
+    def handle_data(self, data: str) -> None:
+        if not self._skip:
+            self.parts.append(data)
+
+
+def _read(path: Path) -> _AllText:
+    parser = _AllText()
+    parser.feed(path.read_text(encoding="utf-8"))
+    return parser
+
+
+@pytest.fixture(scope="module")
+def booklets(built_example: Path) -> list[tuple[str, str, Path]]:
+    """(participant, language, path) of every HTML booklet of the built example."""
+    roster = pd.read_csv(built_example / "data" / "participants.csv", dtype=str)
+    language = dict(zip(roster["participant"], roster["language"], strict=True))
+    found = []
+    for path in sorted((built_example / "out" / "booklets").glob("*/*.html")):
+        found.append((path.parent.name, language[path.parent.name], path))
+    return found
+
+
+def _english_fragments() -> list[tuple[str, str]]:
+    """(message id, fragment) for every run of 3+ words of English source text.
+
+    Ids are cut at placeholders and markup, since a booklet shows them filled in.
+    """
+    with template_path().open("rb") as fh:
+        template = read_po(fh)
+    fragments = []
+    for message in template:
+        if not message.id:
+            continue
+        ids = [message.id] if isinstance(message.id, str) else list(message.id)
+        for msgid in ids:
+            for piece in re.split(r"%\(\w+\)[sd]|\{\w+\}|%%|<[^>]+>", msgid):
+                words = " ".join(piece.split()).strip(" ,.;:()")
+                if len(words.split()) >= 3:
+                    fragments.append((msgid, words))
+    return fragments
+
+
+def test_example_has_booklets_in_every_language(booklets: list) -> None:
+    """Check that the example study has a built booklet in each language."""
+    assert {lang for _, lang, _ in booklets} == set(LANGUAGES)
+
+
+def test_html_and_pdf_carry_the_language(booklets: list) -> None:
+    """Check that `lang` on the HTML and /Lang in the PDF catalogue name the booklet language."""
+    for participant, language, path in booklets:
+        assert _read(path).lang == language, path
+        pdf = path.with_suffix(".pdf")
+        if pdf.exists():
+            assert str(PdfReader(pdf).trailer["/Root"]["/Lang"]) == language, (participant, pdf)
+
+
+def test_no_untranslated_english_in_dutch_and_german_booklets(booklets: list) -> None:
+    """Check that no English source text shows up in a Dutch or German booklet."""
+    fragments = _english_fragments()
+    leaks = []
+    for _, language, path in booklets:
+        if language == SOURCE_LANGUAGE:
+            continue
+        catalogue = translations(language)
+        text = " ".join(" ".join(_read(path).parts).split())
+        for msgid, fragment in fragments:
+            # Names and symbols kept in the translation are not leaks.
+            if fragment in catalogue.gettext(msgid) or fragment not in text:
+                continue
+            leaks.append(f"{path.parent.name}/{path.name}: {fragment!r}")
+    assert leaks == []
+
+
+@pytest.mark.parametrize("language", LANGUAGES)
+def test_participant_edition_is_plain(booklets: list, language: str) -> None:
+    """Check the reading ease of every participant edition against its language's plain level.
+
+    English: Flesch Reading Ease (Flesch 1948) >= 60, the 'standard' band (Flesch 1949).
+    Dutch: Flesch-Douma (Douma; constants as printed in the DBNL article) >= 60, 'normaal'.
+    German: Amstad (Amstad 1978) >= 60, 'normal'. Bands: METHODS.md §7.
+    """
+    scored = 0
+    for participant, lang, path in booklets:
+        if lang != language or path.stem != "participant":
+            continue
+        result = measure(text_of_html(path.read_text(encoding="utf-8")), language)
+        assert result is not None
+        assert result.formula == FORMULAS[language].name
+        assert result.score >= PLAIN_LEVEL[language], (participant, result)
+        scored += 1
+    assert scored > 0
+
+
+def test_dates_and_numbers_follow_the_locale(booklets: list) -> None:
+    """Check for local month names, decimal commas in nl/de prose and no 12-hour clock."""
+    for _, language, path in booklets:
+        prose = text_of_html(path.read_text(encoding="utf-8"))
+        everything = " ".join(_read(path).parts)
+        assert not re.search(r"\d\s?(AM|PM|a\.m\.|p\.m\.)", everything), path
+        if language == SOURCE_LANGUAGE:
+            continue
+        assert not any(re.search(rf"\b{m}\b", prose) for m in _foreign_months(language)), path
+        # A decimal point between digits (not a version like 0.1.0 or a German date 03.03.26)
+        assert not re.search(r"(?<![\d.])\d+\.\d(?![\d.])", prose), path
