@@ -189,8 +189,13 @@ def _silence_flag(pid: str, rule: SafetyRule, data: ParticipantData, settings: S
 
 def evaluate(data: ParticipantData, results: ParticipantResults, settings: StudySettings,
              period_end: pd.Timestamp | None = None) -> list[Flag]:
-    """Apply every safety rule to one participant; return a flag per rule that was hit."""
+    """Apply every safety rule to one participant; return a flag per rule that was hit.
+
+    A participant who withdrew consent is not analysed, so raises no flag.
+    """
     pid = data.participant
+    if data.consent != "yes":
+        return []
     tz = settings.study.timezone
     ends = [_in_zone(x, tz) for x in (period_end, _participant_end(data, settings))
             if x is not None]
