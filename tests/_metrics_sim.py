@@ -20,21 +20,22 @@ def prompt_hours(days: int, per_day: int, rng: np.random.Generator,
     return day + slot + rng.uniform(0, block, days * per_day)
 
 
-def simulate_ou(hours: np.ndarray, kappa: float | np.ndarray, sd: float, mu: float,
+def simulate_ou(hours: np.ndarray, kappa: float | np.ndarray, sd: float | np.ndarray, mu: float,
                 rng: np.random.Generator) -> np.ndarray:
     """Sample dX = -kappa (X - mu) dt + s dW exactly at the given times (stationary SD `sd`).
 
     Exact OU transition (e.g. Gillespie 1996, "Exact numerical simulation of the
     Ornstein-Uhlenbeck process and its integral", Phys Rev E 54:2084): X(t+dt) - mu =
-    e^{-kappa dt}(X(t) - mu) + sd sqrt(1 - e^{-2 kappa dt}) Z. A per-step kappa gives a
-    slowly changing rate (approach to a fold).
+    e^{-kappa dt}(X(t) - mu) + sd sqrt(1 - e^{-2 kappa dt}) Z. Per-step kappa and sd give a
+    slowly changing rate (approach to a fold: sd = s / sqrt(2 kappa) for constant noise s).
     """
     kappa = np.broadcast_to(np.asarray(kappa, dtype=float), hours.shape)
+    sd = np.broadcast_to(np.asarray(sd, dtype=float), hours.shape)
     x = np.empty(len(hours))
-    x[0] = mu + sd * rng.standard_normal()
+    x[0] = mu + sd[0] * rng.standard_normal()
     for i in range(1, len(hours)):
         phi = np.exp(-kappa[i] * (hours[i] - hours[i - 1]))
-        x[i] = mu + phi * (x[i - 1] - mu) + sd * np.sqrt(1 - phi * phi) * rng.standard_normal()
+        x[i] = mu + phi * (x[i - 1] - mu) + sd[i] * np.sqrt(1 - phi * phi) * rng.standard_normal()
     return x
 
 

@@ -116,7 +116,8 @@ def window_stats(p: Prefix, starts: np.ndarray, ends: np.ndarray) -> dict[str, n
     s2 = p.s2[e1] - p.s2[s]
     mean = s1 / n
     m2 = np.maximum(s2 / n - mean * mean, 0.0)
-    out = {"n": n[:, 0], "variance": m2 * n / (n - 1)}
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = {"n": n[:, 0], "variance": m2 * n / (n - 1)}
     if p.s3 is not None:
         s3 = p.s3[e1] - p.s3[s]
         m3 = s3 / n - 3 * mean * s2 / n + 2 * mean ** 3

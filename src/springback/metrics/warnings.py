@@ -16,8 +16,8 @@ in time series illustrated using simulated ecological data", PLoS ONE 7:e41010; 
    share almost all answers, and it keeps 1000 surrogates affordable).
 5. Significance by surrogates only (the textbook Kendall p-value is invalid for overlapping
    windows; METHODS.md §2): half AR(1)-fitted, half Fourier phase-randomised surrogates of the
-   detrended series run through steps 2-4; p = (1 + #{tau* >= tau}) / (B + 1) per kind, and the
-   reported p is the larger of the two kinds (the rise must stand out against both null models).
+   detrended series run through steps 2-4; p = (1 + #{tau* >= tau}) / (B + 1) over all B
+   surrogates of both kinds (each kind's own p is kept in the parameters).
    Item correlations use multivariate phase surrogates only (shared phases keep the items'
    cross-correlation; Prichard & Theiler 1994).
 6. Sensitivity: the same test over every window share x bandwidth in the settings.
@@ -122,9 +122,8 @@ def _cell(series: Series, det: _Detrended, share: float, min_prompts: int) -> _C
         tau[name] = float(kendall_tau_columns(obs[name][tested])[0])
     for name in TESTED:
         null = kendall_tau_columns(sur[name])
-        by_kind = tuple(surrogate_pvalue(tau[name], null[det.kind == k]) for k in (0, 1))
-        p_kind[name] = by_kind
-        p[name] = max(by_kind)
+        p_kind[name] = tuple(surrogate_pvalue(tau[name], null[det.kind == k]) for k in (0, 1))
+        p[name] = surrogate_pvalue(tau[name], null)
     return _Cell(share, det.bandwidth, len(ends), skipped, used, tested, obs, tau, p, p_kind)
 
 
@@ -170,7 +169,7 @@ def early_warnings(series: Series, settings: StudySettings, participant: str) ->
               "alpha": m.alpha, "min_window_prompts": m.min_window_prompts,
               "ar1_estimator": "Pearson correlation on admissible pairs within the window",
               "trend": "Kendall tau-b against window order", "trend_points": TREND_POINTS,
-              "p_value": "(1 + #{surrogate tau >= tau}) / (B + 1), larger of the two kinds",
+              "p_value": "(1 + #{surrogate tau >= tau}) / (B + 1), both kinds pooled",
               "windows": list(m.windows), "bandwidths_days": bandwidths}
     if series.n < 2 * m.min_window_prompts:
         why = (f"needs at least {2 * m.min_window_prompts} answers for rolling windows; "
