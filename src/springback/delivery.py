@@ -7,6 +7,9 @@ Public functions:
          resend_unconfirmed=False, participants=None, context=None, environ=os.environ,
          progress=None) -> SendReport
 
+The contacts file and the passphrases are handled in `delivery_private`, messages, PDF
+protection and the SMTP conversation in `delivery_mail`.
+
 Only PDFs that `review.release` copied into out/release/ are sent, and only when the latest
 build's manifest, the review decisions and the current roster still allow it; HTML copies are
 never sent (they cannot be protected). Addresses come from a contacts file kept outside data/,
@@ -44,9 +47,10 @@ from springback.delivery_private import (
     full_path,
     passphrases,
     read_contacts,
+    write_private,
 )
 from springback.errors import DataError, DeliveryError, Problem
-from springback.fsutil import BuildLock, atomic_write_bytes, project_dirs, sha256_bytes
+from springback.fsutil import BuildLock, project_dirs, sha256_bytes
 from springback.review import APPROVED, NOT_NEEDED, review_state
 from springback.settings import StudySettings, load_settings
 
@@ -330,7 +334,7 @@ class _Run:
         if self.dry_run:
             assert self.eml_dir is not None
             name = f"{item.participant}-{item.edition}.eml"
-            atomic_write_bytes(self.eml_dir / name, raw)
+            write_private(self.eml_dir / name, raw)
             return Outcome(item.participant, item.edition, "written", name), False
         facts = {"attachment_sha256": sha256_bytes(protected), "message_id": msg["Message-ID"]}
         self._record(item, token, {"state": "attempt", **facts})

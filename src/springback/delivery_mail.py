@@ -160,9 +160,9 @@ def compose(settings: StudySettings, *, to: str, language: str, edition: str,
     msg["Subject"] = " ".join(subject.split())
     msg["Date"] = formatdate(usegmt=True)
     msg["Message-ID"] = make_msgid(domain=sender.rpartition("@")[2] or None)
-    msg["Content-Language"] = language
     msg.set_content(body)
     msg.add_attachment(attachment, maintype="application", subtype="pdf", filename=filename)
+    msg["Content-Language"] = language  # after the parts: set_content drops Content-* headers
     return msg
 
 
@@ -246,7 +246,7 @@ def connect(config: SmtpConfig) -> smtplib.SMTP:
             smtp.starttls(context=config.context)
             smtp.ehlo()
         if config.user:
-            smtp.login(config.user, config.password)
+            _login(smtp, config.user, config.password)
     except smtplib.SMTPAuthenticationError as exc:
         _close(smtp)
         raise DeliveryError(f"the SMTP server {where} refused the user name or password "
@@ -274,6 +274,18 @@ def connect(config: SmtpConfig) -> smtplib.SMTP:
                             "delivery.smtp_host, smtp_port and security (port 465 is usually "
                             "'tls', 587 'starttls'). Nothing was sent") from None
     return smtp
+
+
+def _login(smtp: smtplib.SMTP, user: str, password: str) -> None:
+    """Log in with one mechanism only: a wrong password is then one refusal, not several."""
+    offered = (smtp.esmtp_features.get("auth") or "").upper().split()
+    for mechanism in ("PLAIN", "LOGIN", "CRAM-MD5"):
+        if mechanism in offered:
+            smtp.user, smtp.password = user, password
+            method = getattr(smtp, "auth_" + mechanism.lower().replace("-", "_"))
+            smtp.auth(mechanism, method, initial_response_ok=mechanism != "LOGIN")
+            return
+    raise smtplib.SMTPNotSupportedError("no supported AUTH mechanism")
 
 
 def _close(smtp: smtplib.SMTP | None) -> None:

@@ -143,8 +143,8 @@ def read_passphrases(path: Path, where: str) -> dict[str, str]:
     return out
 
 
-def _write_private(path: Path, data: bytes) -> None:
-    """Write a file only its owner can read, atomically."""
+def write_private(path: Path, data: bytes) -> None:
+    """Write a file only its owner can read (passphrases, messages with addresses), atomically."""
     path.parent.mkdir(parents=True, exist_ok=True)
     tmp = path.with_name(f".{path.name}.partial-{os.getpid()}")
     fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
@@ -181,5 +181,5 @@ def passphrases(project: Path, settings: StudySettings, participants: list[str],
         writer = csv.writer(buf, lineterminator="\n")
         writer.writerow(("participant", "passphrase"))
         writer.writerows(sorted(known.items()))
-        _write_private(path, buf.getvalue().encode("utf-8"))
+        write_private(path, buf.getvalue().encode("utf-8"))
     return known, new, path
