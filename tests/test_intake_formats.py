@@ -9,7 +9,7 @@ import pyreadstat
 import pytest
 
 from fixtures.intake_project import BASE_TOML, make_project
-from springback.intake import check_study, load_study
+from springback.intake import check_study, load_study, read_prompts
 from springback.model import Study
 
 # One small data set, with a missing rating, a naive local time, times with offsets across
@@ -153,7 +153,11 @@ def test_long_layout_equals_wide(tmp_path: Path, reference: Study) -> None:
     long = MOMENTARY.melt(id_vars=["participant", "timestamp"], var_name="item",
                           value_name="value").dropna(subset=["value"])
     long = long.sample(frac=1.0, random_state=3)  # row order must not matter
-    study = load_study(_project(tmp_path / "study", _csv(long), data='layout = "long"\n'))
+    root = _project(tmp_path / "study", _csv(long), data='layout = "long"\n')
+    study = load_study(root)
+    raw = read_prompts(root)
+    assert list(raw.columns) == ["source_row", "participant", "item", "value"]
+    assert len(raw) == len(long) and raw["value"].dtype == float
     pd.testing.assert_frame_equal(study.momentary.drop(columns="source_row"),
                                   reference.momentary.drop(columns="source_row"))
     pd.testing.assert_frame_equal(study.quality, reference.quality)

@@ -17,7 +17,7 @@ from springback.intake.momentary import Prompts, read_momentary
 from springback.intake.problems import Sink
 from springback.intake.quality import momentary_frame, quality_frame, quality_table
 from springback.intake.questionnaires import questionnaire_frame, read_questionnaires
-from springback.intake.readers import Table, read_table
+from springback.intake.readers import Table, as_number, as_text, read_table
 from springback.intake.roster import read_roster
 from springback.model import EVENT_COLUMNS, QUESTIONNAIRE_COLUMNS, Study
 from springback.settings import SETTINGS_FILE, StudySettings, load_settings
@@ -68,28 +68,30 @@ def check_study(project: Path, *, strict: bool = False) -> CheckReport:
 
 
 def read_prompts(project: Path) -> pd.DataFrame:
-    """Every row of the momentary file with items as numbers, before any row is resolved.
+    """Every row of the momentary file as read, ratings as numbers, before any row is resolved.
 
     For audits and published counts (missing cells, repeated prompts); `load_study` is the
-    checked path. Columns: source_row, participant, then one float column per item key.
+    checked path. Columns: source_row, participant, then one float column per item key (wide
+    layout) or item and value (long layout).
     """
     project = Path(project)
     settings, _ = load_settings(project)
-    table = read_table(_path(project, settings.data.momentary),
-                       settings.data.momentary.as_posix(), sheet=settings.data.sheet)
+    data = settings.data
+    table = read_table(_path(project, data.momentary), data.momentary.as_posix(),
+                       sheet=data.sheet)
     sink = Sink("set aside")
-    got = read_momentary(table, settings, sink)
-    if got is None:
+    if read_momentary(table, settings, sink) is None:
         raise DataError(sink.problems)
-    from springback.intake.readers import as_number, as_text
-
-    missing = settings.data.missing_values
-    cols = settings.data.columns
+    frame = table.frame
     out = pd.DataFrame({"source_row": table.rows,
-                        "participant": as_text(table.frame[cols.participant], missing)})
-    if settings.data.layout == "wide":
-        for key, item in settings.items.items():
-            out[key] = as_number(table.frame[item.column or key], missing)[0].to_numpy()
+                        "participant": as_text(frame[data.columns.participant],
+                                               data.missing_values)})
+    if data.layout == "long":
+        out["item"] = as_text(frame[data.columns.item], data.missing_values)
+        out["value"] = as_number(frame[data.columns.value], data.missing_values)[0]
+        return out
+    for key, item in settings.items.items():
+        out[key] = as_number(frame[item.column or key], data.missing_values)[0]
     return out
 
 
