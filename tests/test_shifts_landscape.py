@@ -224,3 +224,19 @@ def test_daily_load_table(load: str) -> None:
         # 02:00 on 7 March counts for 6 March (day starts at 04:00); the non-upsetting one not.
         per_day = dict(zip(table["study_day"].dt.day, table["load"], strict=True))
         assert per_day[4] == 2 and per_day[6] == 1 and per_day[7] == 0 and per_day[5] == 0
+
+
+def test_dip_p_is_not_fooled_by_rating_scale_ties() -> None:
+    """Check unimodal 1-7 ratings do not get a small dip p-value from ties alone."""
+    # Source: simulated single-well process rounded to a 7-point item; Hartigan & Hartigan 1985
+    # assume a continuous distribution, so raw ties alone give p near 0 (checked below).
+    s = settings(scale=(1, 7))
+    small = 0
+    for seed in range(10):
+        rng = np.random.default_rng(seed)
+        hours = prompt_hours(40, 8, rng)
+        likert = np.clip(np.round(4 + 1.2 * single_well(hours, rng)), 1, 7)
+        data = participant(hours, likert)
+        small += landscape_family(prepare(data, s), data, s).estimates["dip_p"].value < 0.05
+    assert small <= 1
+    assert dip_test(likert)[1] < 0.05

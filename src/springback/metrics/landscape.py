@@ -28,7 +28,9 @@ Second opinions: the bimodality coefficient (Pfister, Schwarz, Janczyk, Dale & F
 "Good things peak in pairs: a note on the bimodality coefficient", Frontiers in Psychology
 4:700) with bias-corrected skewness and excess kurtosis (Joanes & Gill 1998), and Hartigan's
 dip test (Hartigan & Hartigan 1985, "The dip test of unimodality", Annals of Statistics
-13:70-84) from the `diptest` package with `allow_zero=False`.
+13:70-84) from the `diptest` package with `allow_zero=False`. The dip test assumes continuous
+data, so for the booklet the ties of a rating scale are broken by seeded uniform noise within
+half a scale step (common practice, from memory); the raw `dip_test` is kept for checks.
 """
 
 from __future__ import annotations
@@ -288,13 +290,19 @@ def landscape_family(series: Series, data: ParticipantData, settings: StudySetti
         return Family(estimates=_missing_all(reason, n), tables=tables, params=params)
     land = landscape(x, bounds)
     bc = bimodality_coefficient(x)
-    dip, dip_p = dip_test(x)
+    step = scale_step(x)
+    # Why: the dip test assumes a continuous distribution; the ties of a rating scale make its
+    # p-value near 0 for any sample, so ties are broken by uniform noise within half a step.
+    jitter = participant_rng(settings.metrics.seed, data.participant, "dip").uniform(
+        -step / 2, step / 2, n)
+    dip, dip_p = dip_test(x + jitter)
     k = len(land.valleys)
     tables["potential"] = pd.DataFrame(
         {"x": land.grid, "density": land.density, "potential": land.potential})
     tables["valleys"] = pd.DataFrame({"x": land.grid[list(land.valleys)],
                                       "depth": list(land.depths), "share": list(land.shares)})
-    params.update(bandwidth=land.bandwidth, step=scale_step(x), counts=list(land.counts))
+    params.update(bandwidth=land.bandwidth, step=step, counts=list(land.counts),
+                  dip_ties="broken by uniform noise within half a scale step (seeded)")
     est = {
         "landscape_valleys": Estimate(
             float(k), n=n, note=f"valleys found at {', '.join(map(str, BANDWIDTH_MULTIPLIERS))} "
