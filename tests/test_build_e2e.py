@@ -132,3 +132,17 @@ def test_version_and_help() -> None:
     for cmd in ([], ["init"], ["check"], ["build"]):
         result = runner.invoke(main, [*cmd, "--help"])
         assert result.exit_code == 0 and "Usage" in result.output
+
+
+def test_build_refuses_without_referral_text(example_copy: Path) -> None:
+    """Check `build` refuses when a participant's language and region have no referral text."""
+    toml = example_copy / "study.toml"
+    text = toml.read_text(encoding="utf-8")
+    blocks = text.split("[[referral]]")
+    kept = [b for b in blocks[1:] if not ('region = "south"' in b and 'language = "nl"' in b)]
+    assert len(kept) == len(blocks) - 2
+    toml.write_text("[[referral]]".join([blocks[0], *kept]), encoding="utf-8")
+    result = CliRunner().invoke(main, ["build", str(example_copy), "-q"])
+    assert result.exit_code != 0
+    assert "no referral text for language 'nl' and region 'south'" in result.output
+    assert not (example_copy / "out").exists()

@@ -251,10 +251,12 @@ def build(
     """Build every selected participant's booklets, the study tables and the overview."""
     from springback import archive, intake
     from springback.fsutil import BuildLock
+    from springback.preflight import require_buildable
     from springback.runner import run_jobs
 
     project = Path(project).resolve()
     study = intake.load_study(project)
+    require_buildable(project, study)
     settings = study.settings
     out_dir = (project / (out or settings.output.out_dir)).resolve()
     archive_dir = project / settings.output.archive_dir

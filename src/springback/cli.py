@@ -89,9 +89,10 @@ def init(folder: Path) -> None:
 @reports_errors
 def check(project: Path, strict: bool) -> None:
     """Validate settings and data, list every problem at once, and summarise data quality."""
-    from springback.intake import check_study, quality_table
+    from springback.intake import quality_table
+    from springback.preflight import preflight
 
-    report = check_study(project, strict=strict)
+    report = preflight(project, strict=strict)
     problems = list(report.problems)
     if report.study is not None:
         out.print(quality_table(report.study))
