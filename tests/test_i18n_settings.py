@@ -1,0 +1,78 @@
+"""The study's own texts per language (labels, referrals, answer checks), checked at `check`."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from springback.i18n import settings_text_problems
+from springback.settings import from_mapping
+
+
+def _settings(**extra: Any):  # type: ignore[no-untyped-def]
+    raw: dict[str, Any] = {
+        "study": {"languages": ["en", "nl", "de"]},
+        "items": {
+            "sad": {"scale": [1, 7], "label": {"en": "sad", "nl": "verdrietig", "de": "traurig"}},
+            "calm": {"scale": [1, 7], "label": {"en": "calm", "nl": "rustig"}},
+            "tired": {"scale": [1, 7]},
+        },
+        "referral": [
+            {"region": "default", "language": lang, "questions": "q", "feeling_worse": "w",
+             "self_harm": "s", "emergency": "e"} for lang in ("en", "nl")
+        ],
+    }
+    raw.update(extra)
+    settings, _ = from_mapping(raw)
+    return settings
+
+
+def test_partial_label_is_an_error_naming_the_language() -> None:
+    """Check that a label given in en/nl but not de is an error for German booklets only."""
+    problems = settings_text_problems(_settings(), [("de", "north"), ("nl", "north")])
+    labels = [p for p in problems if p.code == "label-missing"]
+    assert [p.message() for p in labels] == [
+        "study.toml: items.calm.label: the label of 'calm' has no text in German (de), so those "
+        "booklets would mix languages; expected a text for each language participants read, "
+        'found texts in en, nl. Fix: add de = "..."'
+    ]
+    assert all(p.is_error for p in labels)
+
+
+def test_no_label_at_all_is_not_a_language_problem() -> None:
+    """Check that an item without any label (its key is shown everywhere) is not reported."""
+    problems = settings_text_problems(_settings(), [("de", "north")])
+    assert not any("tired" in p.where for p in problems)
+
+
+def test_referral_missing_for_a_used_language() -> None:
+    """Check that referral texts in other languages but not this one are an error."""
+    problems = settings_text_problems(_settings(), [("en", "south"), ("de", "south")])
+    referral = [p for p in problems if p.code == "referral-missing"]
+    assert len(referral) == 1 and referral[0].is_error
+    assert "no referral text for region 'south' in German (de)" in referral[0].what
+    assert referral[0].found == "texts in en, nl"
+
+
+def test_no_referral_texts_at_all_is_a_warning() -> None:
+    """Check that a study without referral texts is warned (general advice is shown)."""
+    problems = settings_text_problems(_settings(referral=[]), [("en", "north")])
+    assert [(p.code, p.is_error) for p in problems] == [("referral-missing", False)]
+
+
+def test_answers_checked_and_band_labels() -> None:
+    """Check the per-language 'who reads the answers' text and the one-language band labels."""
+    settings = _settings(
+        study={"languages": ["en", "nl"], "answers_checked": {"en": "A nurse reads them daily."}},
+        questionnaires={"phq9": {"range": [0, 27], "bands": [[0, "minimal"], [5, "mild"]],
+                                 "label": {"en": "PHQ-9", "nl": "PHQ-9"}}},
+    )
+    codes = {p.code: p.is_error for p in settings_text_problems(settings, [("nl", "x")])}
+    assert codes["answers-checked-missing"] is True
+    assert codes["band-labels-one-language"] is False
+    english_only = settings_text_problems(settings, [("en", "north")])
+    assert "band-labels-one-language" not in {p.code for p in english_only}
+
+
+def test_unknown_languages_are_left_to_the_catalogue_check() -> None:
+    """Check that an unknown language gives no label problems (catalogue_problems reports it)."""
+    assert settings_text_problems(_settings(), [("fr", "north")]) == []
