@@ -256,3 +256,26 @@ def test_quality_table_lists_participants(tmp_path: Path) -> None:
     assert "Data quality: Tiny study" in text
     assert "2 participants, 3 answered prompts, 0 rows set aside" in text
     assert text.count("p1") == 1 and text.count("p2") == 1
+
+
+def test_every_problem_of_a_row_is_reported_and_counted_once(tmp_path: Path) -> None:
+    """Check that a row with a bad rating and a bad time gives two problems, one set-aside row."""
+    rows = MOMENTARY + "p1,yesterday,9,often\n"
+    setting = '[data]\non_bad_rows = "set aside"\n'
+    report = check_study(make_project(tmp_path / "study", extra_toml=setting,
+                                      files={"data/momentary.csv": rows}))
+    assert sorted(p.code for p in report.problems) == ["bad-time", "not-a-number",
+                                                       "value-out-of-scale"]
+    assert {p.row for p in report.problems} == {5}
+    study = report.study
+    assert study is not None and len(study.set_aside) == 3
+    assert study.quality.set_index("participant").loc["p1", "rows_set_aside"] == 1
+
+
+def test_optional_files_absent_give_typed_empty_frames(tmp_path: Path) -> None:
+    """Check that without events or questionnaires files the frames are empty but typed."""
+    study = _load(tmp_path)
+    assert study.events.empty and study.questionnaires.empty
+    assert str(study.events["time"].dtype) == "datetime64[ns, UTC]"
+    assert str(study.questionnaires["local_time"].dtype) == "datetime64[ns, Europe/Amsterdam]"
+    assert study.events["upsetting"].dtype == bool

@@ -19,7 +19,7 @@ from springback.intake.quality import momentary_frame, quality_frame, quality_ta
 from springback.intake.questionnaires import questionnaire_frame, read_questionnaires
 from springback.intake.readers import Table, as_number, as_text, read_table
 from springback.intake.roster import read_roster
-from springback.model import EVENT_COLUMNS, QUESTIONNAIRE_COLUMNS, Study
+from springback.model import Study
 from springback.settings import SETTINGS_FILE, StudySettings, load_settings
 
 __all__ = ["CheckReport", "check_study", "load_study", "quality_table", "read_prompts"]
@@ -155,9 +155,8 @@ def _load(project: Path) -> tuple[Study | None, list[Problem], bool]:
     momentary = momentary_frame(kept, settings)
     _late_and_absent(momentary_table.where, kept, momentary, roster, roster_where, settings, sink)
     zone = settings.study.timezone
-    events_out = event_frame(events, zone) if events is not None else _empty(EVENT_COLUMNS)
-    scores_out = questionnaire_frame(scores, zone) if scores is not None else \
-        _empty(QUESTIONNAIRE_COLUMNS)
+    events_out = event_frame(events if events is not None else _no_events(), zone)
+    scores_out = questionnaire_frame(scores if scores is not None else _no_scores(), zone)
     set_aside = sink.set_aside_frame()
     late = kept[kept["answered"]].groupby("participant")["late"].sum()
     quality = quality_frame(roster, momentary, late, _schedule(prompts, settings), set_aside,
@@ -177,8 +176,20 @@ def _schedule(prompts: Prompts, settings: StudySettings) -> pd.Series | None:
     return prompts.scheduled if prompts.from_rows else None
 
 
-def _empty(columns: tuple[str, ...]) -> pd.DataFrame:
-    return pd.DataFrame({c: pd.Series(dtype=object) for c in columns})
+def _no_events() -> pd.DataFrame:
+    """An empty events table with the contract's column types (the file is optional)."""
+    return pd.DataFrame({"participant": pd.Series(dtype="str"),
+                         "time": pd.Series(dtype="datetime64[ns, UTC]"),
+                         "kind": pd.Series(dtype="str"), "intensity": pd.Series(dtype=float),
+                         "upsetting": pd.Series(dtype=bool)})
+
+
+def _no_scores() -> pd.DataFrame:
+    """An empty questionnaire table with the contract's column types (the file is optional)."""
+    return pd.DataFrame({"participant": pd.Series(dtype="str"),
+                         "time": pd.Series(dtype="datetime64[ns, UTC]"),
+                         "questionnaire": pd.Series(dtype="str"),
+                         "score": pd.Series(dtype=float)})
 
 
 def _consent_rules(where: str, frame: pd.DataFrame, consenting: set[str], withdrawn: set[str],

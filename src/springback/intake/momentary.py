@@ -194,7 +194,7 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
     for key, (parsed, _gone) in times.items():
         name = getattr(cols, key)
         for code, what in TIME_PROBLEMS.items():
-            hit = given & ~bad & (parsed.problem == code).to_numpy()
+            hit = given & (parsed.problem == code).to_numpy()
             found = [f"'{v}'" + (f" in {z}" if code in LOCAL_TIME_CODES else "")
                      for v, z in zip(raw[key][hit], parsed.zone[hit], strict=True)]
             sink.bad_rows(where, rows[hit], pid[hit], found, what=what, column=name,
@@ -206,7 +206,7 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
     if "answered" in times:
         answer = times["answered"][0].utc.fillna(stamp.utc)
         stamp_gone = stamp_gone & times["answered"][1]
-    no_time = given & ~bad & stamp_gone
+    no_time = given & stamp_gone
     sink.bad_rows(where, rows[no_time], pid[no_time], [""] * int(no_time.sum()),
                   what="the time is missing", column=cols.timestamp,
                   expected="when the prompt was answered", code="missing-time")

@@ -74,7 +74,8 @@ def quality_frame(roster: pd.DataFrame, momentary: pd.DataFrame, late: pd.Series
     else:
         planned = pd.Series(np.nan, index=ids)
     compliance = (answered / planned.where(planned > 0)).astype(float)
-    aside = set_aside.groupby("participant").size().reindex(ids, fill_value=0).astype("int64")
+    rows = set_aside.drop_duplicates(["file", "row"])  # a row set aside for two reasons is one
+    aside = rows.groupby("participant").size().reindex(ids, fill_value=0).astype("int64")
     out = pd.DataFrame({
         "participant": ids.astype(str),
         "answered": answered.to_numpy(),
