@@ -279,3 +279,29 @@ def test_optional_files_absent_give_typed_empty_frames(tmp_path: Path) -> None:
     assert str(study.events["time"].dtype) == "datetime64[ns, UTC]"
     assert str(study.questionnaires["local_time"].dtype) == "datetime64[ns, Europe/Amsterdam]"
     assert study.events["upsetting"].dtype == bool
+
+
+def test_long_layout_repeats_and_unknown_items(tmp_path: Path) -> None:
+    """Check long rows: a repeated value is kept once, clashing values fail, unknown items warn."""
+    rows = ("participant,timestamp,item,value\n"
+            "p1,2024-03-04 09:00,sad,3\np1,2024-03-04 09:00,calm,5\np1,2024-03-04 09:00,sad,3\n"
+            "p1,2024-03-04 13:00,sad,4\np1,2024-03-04 13:00,sad,5\np1,2024-03-04 13:00,calm,2\n"
+            "p1,2024-03-04 13:00,hunger,2\np2,2024-03-04 10:00,sad,2\np2,2024-03-04 10:00,calm,6\n")
+    toml = BASE_TOML + '[data]\nlayout = "long"\n'
+    report = check_study(make_project(tmp_path / "a", toml=toml,
+                                      files={"data/momentary.csv": rows}))
+    assert [p.message() for p in report.problems] == [
+        "data/momentary.csv, column 'item': item 'hunger' is not defined in study.toml; its 1 "
+        "row is not used. Fix: add it under [items] if it should be used",
+        "data/momentary.csv, row 2, column 'value': rows 2 and 4 repeat the same value for the "
+        "same item and prompt; row 2 is kept. Fix: remove the extra rows to silence this",
+        "data/momentary.csv, row 5, column 'value': rows 5 and 6 give different values for the "
+        "same item and prompt; expected one value per participant, time and item, found '4', "
+        "'5'. Fix: correct the value, or set on_bad_rows = \"set aside\" under [data]"]
+    toml += 'on_bad_rows = "set aside"\n'
+    study = load_study(make_project(tmp_path / "b", toml=toml,
+                                    files={"data/momentary.csv": rows}))
+    # the clashing item is unusable; the prompt's other item is kept
+    assert study.momentary["sad"].iloc[0] == 3.0 and math.isnan(study.momentary["sad"].iloc[1])
+    assert study.momentary["calm"].tolist() == [5.0, 2.0, 6.0]
+    assert list(study.set_aside["row"]) == [4, 5, 6]

@@ -106,38 +106,32 @@ def _widen(table: Table, raw: pd.DataFrame, item_cols: dict[str, str],
     by_column = {c: k for k, c in item_cols.items()}
     item = as_text(table.frame[cols.item], missing)
     known = item.isin(list(by_column)).to_numpy()
+    # Rows of items the study does not use are like unused columns in the wide layout: they
+    # are named once per item, not listed row by row.
     for name, n in item[~known].value_counts(dropna=False).items():
         label = "(empty)" if pd.isna(name) else f"'{name}'"
         sink.add(warning(table.where, f"item {label} is not defined in study.toml; its {n} "
-                         "rows are not used", fix="add it under [items] if it should be used",
+                         f"row{'s are' if n > 1 else ' is'} not used",
+                         fix="add it under [items] if it should be used",
                          column=cols.item, code="unknown-item-rows"))
-        rows = table.rows[~known & (item.isna() if pd.isna(name) else item == name).to_numpy()]
-        sink.aside(table.where, rows, as_text(raw["participant"], missing)[~known].fillna(""),
-                   f"item {label} is not defined in study.toml", cols.item)
     long = raw[known].copy()
     long["item"] = item[known].map(by_column)
     long["value"] = table.frame[cols.value][known]
     keys = [c for c in ("participant", "timestamp", "scheduled") if c in long.columns]
-    text = {c: as_text(long[c], missing).fillna("") for c in keys}
-    joined = list(zip(*text.values(), strict=True))
-    long["_prompt"] = pd.Series(joined, index=long.index).map("\x1f".join)
+    prompt = as_text(long[keys[0]], missing).fillna("")
+    for c in keys[1:]:
+        prompt = prompt + "\x1f" + as_text(long[c], missing).fillna("")
+    long["_prompt"] = prompt
     value_text = as_text(long["value"], missing).fillna("")
     cell = long["_prompt"] + "\x1e" + long["item"]
-    twice = cell.duplicated(keep=False)
+    twice = cell.duplicated(keep=False).to_numpy()
     if twice.any():
-        clash = value_text[twice].groupby(cell[twice]).transform("nunique") > 1
-        for _, group in long[twice][clash.to_numpy()].groupby(cell[twice][clash.to_numpy()]):
-            rows = group["source_row"].tolist()
-            sink.bad_rows(table.where, rows[:1], as_text(group["participant"], missing)[:1]
-                          .fillna("").tolist(), [", ".join(map(str, group["value"].tolist()))],
-                          what=f"{rows_list(rows)} give different values for the same item "
-                          "and prompt", column=cols.value,
-                          expected="one value per participant, time and item",
-                          code="conflicting-rows")
-            sink.aside(table.where, rows[1:], [""] * (len(rows) - 1),
-                       "different values for the same item and prompt", cols.value)
-        long = long[~cell.isin(cell[twice][clash.to_numpy()])]
-    long = long.loc[~cell.loc[long.index].duplicated()]
+        for _, group in long[twice].groupby(cell[twice], sort=False):
+            _repeated_cell(table.where, group, value_text[group.index], cols.value, missing,
+                           sink)
+        long = long.loc[~cell.duplicated()]
+        clashing = cell[twice][value_text[twice].groupby(cell[twice]).transform("nunique") > 1]
+        long = long[~long.index.isin(cell.index[cell.isin(clashing)])]
     first = long.groupby("_prompt", sort=False).first()
     wide = long.pivot(index="_prompt", columns="item", values="value")
     out = first.drop(columns=["item", "value"]).join(wide)
@@ -146,6 +140,24 @@ def _widen(table: Table, raw: pd.DataFrame, item_cols: dict[str, str],
         if key not in out.columns:
             out[key] = np.nan
     return out.sort_values("source_row").reset_index(drop=True)
+
+
+def _repeated_cell(where: str, group: pd.DataFrame, values: pd.Series, column: str,
+                   missing: list[str], sink: Sink) -> None:
+    """Report one item of one prompt given on several long rows (same value: kept once)."""
+    rows = group["source_row"].tolist()
+    who = as_text(group["participant"], missing).fillna("").tolist()
+    if values.nunique() > 1:
+        sink.bad_rows(where, rows[:1], who[:1], [", ".join(f"'{v}'" for v in values)],
+                      what=f"{rows_list(rows)} give different values for the same item and "
+                      "prompt", column=column, expected="one value per participant, time and "
+                      "item", code="conflicting-rows")
+        sink.aside(where, rows[1:], who[1:], "different values for the same item and prompt")
+        return
+    sink.add(warning(where, f"{rows_list(rows)} repeat the same value for the same item and "
+                     f"prompt; row {rows[0]} is kept", fix="remove the extra rows to silence "
+                     "this", row=rows[0], column=column, code="duplicate-row"))
+    sink.aside(where, rows[1:], who[1:], f"a copy of row {rows[0]}")
 
 
 def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
