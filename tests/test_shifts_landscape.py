@@ -240,3 +240,12 @@ def test_dip_p_is_not_fooled_by_rating_scale_ties() -> None:
         small += landscape_family(prepare(data, s), data, s).estimates["dip_p"].value < 0.05
     assert small <= 1
     assert dip_test(likert)[1] < 0.05
+
+
+def test_rounding_cell_of_a_composite() -> None:
+    """Check a mean of m integer ratings has lattice spacing 1/m (per prompt)."""
+    from springback.metrics.landscape import rounding_cell
+
+    items = np.array([[1, 2, 3], [1, np.nan, 3], [2, 2, 5], [4, 4, np.nan]], float)
+    np.testing.assert_allclose(rounding_cell(items, 0.1), [1 / 3, 1 / 2, 1 / 3, 1 / 2])
+    np.testing.assert_allclose(rounding_cell(np.array([[3.0], [5.0]]), 0.1), [2.0, 2.0])

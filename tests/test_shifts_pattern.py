@@ -105,3 +105,18 @@ def test_wording_is_resemblance_never_diagnosis() -> None:
     texts = [t for v in fam.params["evidence_by_pattern"].values() for t in v]
     assert texts and not any("diagnos" in t or "you have" in t for t in texts)
     assert set(fam.params["evidence_by_pattern"]) == set(PATTERNS)
+
+
+def test_staircase_of_steps_reads_as_gradual() -> None:
+    """Check a drift that starts mid-study and levels off (a staircase for PELT) reads gradual."""
+    # Source: simulated flat-ramp-flat course (known truth: gradual rise of 30 points from day
+    # 20 to day 50), like a worsening that builds up over weeks.
+    rng = np.random.default_rng(4)
+    hours = prompt_hours(70, 6, rng)
+    day = hours / 24
+    course = 30.0 * np.clip((day - 20) / 30, 0, 1)
+    values = np.clip(np.round(40 + course + rng.normal(0, 6, hours.size)), 0, 100)
+    s = settings()
+    fam = pattern_family({"shifts": shift_family(prepare(participant(hours, values), s), s),
+                          "landscape": _landscape(1, None)}, s)
+    assert fam.params["resembles"] == GRADUAL

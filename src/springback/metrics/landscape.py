@@ -8,8 +8,9 @@ sigma^2/2 and a constant; valleys of U are the modes of p. Here p is a Gaussian 
 
 Bandwidth rule: Silverman's rule of thumb (Silverman 1986, "Density Estimation for Statistics
 and Data Analysis", eq. 3.31 in scipy's form: factor (3n/4)^(-1/5) times the sample SD), but
-never narrower than the scale step (the smallest gap between possible answers), because a
-kernel narrower than a Likert step turns every answer option into its own peak. The density is
+never narrower than the scale step (for a composite: the items' step divided by the typical
+number of items answered), because a kernel narrower than a Likert step turns every answer
+option into its own peak. The density is
 reflected at the scale bounds (Silverman 1986, section 2.10) so that answers at the floor or
 ceiling are not pushed outside the scale.
 
@@ -29,8 +30,9 @@ Second opinions: the bimodality coefficient (Pfister, Schwarz, Janczyk, Dale & F
 4:700) with bias-corrected skewness and excess kurtosis (Joanes & Gill 1998), and Hartigan's
 dip test (Hartigan & Hartigan 1985, "The dip test of unimodality", Annals of Statistics
 13:70-84) from the `diptest` package with `allow_zero=False`. The dip test assumes continuous
-data, so for the booklet the ties of a rating scale are broken by seeded uniform noise within
-half a scale step (common practice, from memory); the raw `dip_test` is kept for checks.
+data, so for the booklet each value is spread uniformly over its rounding cell (item step /
+items answered; seeded), undoing the rating scale's lattice (dequantisation, common practice);
+the raw `dip_test` is kept for checks.
 """
 
 from __future__ import annotations
@@ -187,11 +189,16 @@ def robust_valleys(
 def landscape(
     x: np.ndarray, bounds: tuple[float, float],
     multipliers: tuple[float, ...] = BANDWIDTH_MULTIPLIERS, grid_points: int = GRID_POINTS,
+    step: float | None = None,
 ) -> Landscape:
-    """Estimate density, potential and robust valleys of a bounded sample."""
+    """Estimate density, potential and robust valleys of a bounded sample.
+
+    `step` is the answers' lattice spacing, the narrowest kernel allowed (default: the smallest
+    gap between distinct answers).
+    """
     x = np.asarray(x, dtype=float)
     sd = float(np.std(x, ddof=1))
-    step = scale_step(x)
+    step = scale_step(x) if step is None else step
     base = max(silverman_factor(x.size), step / sd if sd > 0 else 1.0)
     grid = np.linspace(bounds[0], bounds[1], grid_points)
     counts = []
@@ -206,6 +213,20 @@ def landscape(
         valleys=tuple(minima), depths=tuple(depths), shares=tuple(shares),
         barriers=tuple(bars), counts=tuple(counts),
     )
+
+
+def rounding_cell(items: np.ndarray, fallback: float) -> np.ndarray:
+    """Return each composite value's lattice spacing: the items' step / items answered.
+
+    A mean of m ratings on a scale with step d lies on a grid of spacing d / m; single items
+    (one column) give the item's step. `fallback` is used when no step can be seen.
+    """
+    items = np.atleast_2d(np.asarray(items, dtype=float))
+    steps = [scale_step(col[np.isfinite(col)]) for col in items.T]
+    steps = [d for d in steps if d > 0]
+    d = min(steps) if steps else fallback
+    answered = np.maximum(np.isfinite(items).sum(axis=1), 1)
+    return d / answered
 
 
 def bimodality_coefficient(x: np.ndarray) -> float:
@@ -288,13 +309,16 @@ def landscape_family(series: Series, data: ParticipantData, settings: StudySetti
         reason = (f"the landscape needs at least {MIN_PROMPTS} answers with at least "
                   f"{MIN_DISTINCT} different values; there were {n} answers with {distinct}")
         return Family(estimates=_missing_all(reason, n), tables=tables, params=params)
-    land = landscape(x, bounds)
+    cell = rounding_cell(series.items, scale_step(x))
+    # Why: a composite of k items lives on a lattice of spacing step/k, not on the smallest gap
+    # between its distinct values (which mixes lattices of different k).
+    step = max(scale_step(x), float(np.median(cell)))
+    land = landscape(x, bounds, step=step)
     bc = bimodality_coefficient(x)
-    step = scale_step(x)
-    # Why: the dip test assumes a continuous distribution; the ties of a rating scale make its
-    # p-value near 0 for any sample, so ties are broken by uniform noise within half a step.
+    # Why: the dip test assumes a continuous distribution; the lattice of a rating scale makes
+    # its p-value near 0 for any sample, so each value is spread over its own rounding cell.
     jitter = participant_rng(settings.metrics.seed, data.participant, "dip").uniform(
-        -step / 2, step / 2, n)
+        -0.5, 0.5, n) * cell
     dip, dip_p = dip_test(x + jitter)
     k = len(land.valleys)
     tables["potential"] = pd.DataFrame(
@@ -302,7 +326,7 @@ def landscape_family(series: Series, data: ParticipantData, settings: StudySetti
     tables["valleys"] = pd.DataFrame({"x": land.grid[list(land.valleys)],
                                       "depth": list(land.depths), "share": list(land.shares)})
     params.update(bandwidth=land.bandwidth, step=step, counts=list(land.counts),
-                  dip_ties="broken by uniform noise within half a scale step (seeded)")
+                  dip_ties="spread over each value's rounding cell (item step / items answered)")
     est = {
         "landscape_valleys": Estimate(
             float(k), n=n, note=f"valleys found at {', '.join(map(str, BANDWIDTH_MULTIPLIERS))} "

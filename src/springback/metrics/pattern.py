@@ -14,12 +14,16 @@ Rules, applied in this order (each threshold is the one the family that computed
    gives p < alpha (slow switching seen in daily means before the prompt-level landscape
    separates it);
 2. an abrupt shift: a change point larger than twice the usual day-to-day swing, and the step
-   model fits the daily means better than a straight line (penalised as PELT does: 2 ln n per
-   change point, ln n for a slope, residuals in units of the day-to-day noise, i.e. BIC with
-   known variance; Schwarz 1978). It is "after slowing" when the early-warning family reports a
-   rise in inertia or variance with surrogate p below alpha, and "without slowing" otherwise;
+   model fits the daily means better than a gradual course, i.e. a straight line or a broken
+   line with one knot (drifts that start mid-study). Penalised as PELT does: 2 ln n per change
+   point, ln n for a slope, 3 ln n for slope, bend and knot, residuals in units of the
+   day-to-day noise, i.e. BIC with known variance (Schwarz 1978). It is "after slowing" when
+   the early-warning family reports a rise in inertia or variance with surrogate p below
+   alpha, and "without slowing" otherwise. A staircase (the largest step is less than half of
+   a run of same-direction steps around it) is not read as abrupt;
 3. gradual change: the Theil-Sen slope of the daily means (Sen 1968, JASA 63:1379-1389) has a
-   95% interval that excludes 0 and the drift over the study exceeds twice the day-to-day noise;
+   95% interval that excludes 0 and the drift of the gradual course over the study exceeds
+   twice the day-to-day noise;
 4. otherwise no clear change.
 The words are "resembles": with one person's data these are descriptions, not diagnoses or
 predictions (Boettiger & Hastings 2012, J R Soc Interface 9:2527-2539, on error rates).
@@ -32,6 +36,7 @@ import math
 from collections.abc import Mapping
 
 import numpy as np
+import pandas as pd
 from scipy import stats
 
 from springback.metrics.results import Estimate, Family
@@ -46,6 +51,8 @@ NONE = "no clear change"
 PATTERNS = (GRADUAL, SHIFT_SLOWING, SHIFT_NO_SLOWING, SWITCHING, NONE)
 MIN_SWITCHES = 4
 MIN_ALTERNATING = 3
+STAIRCASE_SHARE = 0.5
+"""A largest step below this share of its same-direction run reads as a drift, not a jump."""
 """Large day-level steps alternating in direction that read as switching (with two peaks)."""
 CAVEAT = ("This says which pattern the numbers resemble most. It is not a diagnosis and does "
           "not predict what will happen.")
@@ -78,16 +85,45 @@ def _slowing(warnings: Family | None, alpha: float) -> tuple[bool, list[str]]:
 
 def _trend(days: np.ndarray, y: np.ndarray, level: np.ndarray, n_cp: int, s: float
            ) -> dict[str, float | bool]:
-    """Compare a straight line with the step model and give the Theil-Sen drift."""
-    slope, _, lo, hi = stats.theilslopes(y, days, alpha=0.95)
-    drift = float(slope * (days[-1] - days[0]))
-    fit = np.polyval(np.polyfit(days, y, 1), days)
+    """Compare a gradual course (line or broken line) with the step model of PELT."""
+    _, _, lo, hi = stats.theilslopes(y, days, alpha=0.95)
     n = len(y)
     scale = s * s if s > 0 else float(np.var(y)) or 1.0
-    cost_line = float(np.sum((y - fit) ** 2)) / scale + math.log(n)
+    line = np.polyval(np.polyfit(days, y, 1), days)
+    cost_line = float(np.sum((y - line) ** 2)) / scale + math.log(n)
+    fit, cost_gradual = line, cost_line
+    for knot in days[2:n - 2]:
+        # A broken line (one knot, BIC: slope, bend and knot) for drifts that start mid-study.
+        design = np.column_stack([np.ones(n), days, np.maximum(days - knot, 0.0)])
+        coef, *_ = np.linalg.lstsq(design, y, rcond=None)
+        cost = float(np.sum((y - design @ coef) ** 2)) / scale + 3 * math.log(n)
+        if cost < cost_gradual:
+            fit, cost_gradual = design @ coef, cost
     cost_step = float(np.sum((y - level) ** 2)) / scale + 2 * n_cp * math.log(n)
-    return {"drift": drift, "slope_excludes_zero": bool(lo > 0 or hi < 0),
-            "line_better": cost_line <= cost_step}
+    return {"drift": float(fit[-1] - fit[0]), "slope_excludes_zero": bool(lo > 0 or hi < 0),
+            "line_better": cost_gradual <= cost_step}
+
+
+def _staircase(cps: pd.DataFrame) -> tuple[bool, str]:
+    """Whether the largest shift is one of a run of same-direction steps it does not dominate."""
+    if cps.empty:
+        return False, ""
+    sizes = cps["size"].to_numpy(float)
+    k = int(np.argmax(np.abs(sizes)))
+    sign = np.sign(sizes[k])
+    a = k
+    while a > 0 and np.sign(sizes[a - 1]) == sign:
+        a -= 1
+    b = k
+    while b < sizes.size - 1 and np.sign(sizes[b + 1]) == sign:
+        b += 1
+    total = float(np.sum(sizes[a:b + 1]))
+    share = abs(sizes[k]) / abs(total)
+    if b == a or share >= STAIRCASE_SHARE:
+        return False, ""
+    span = (cps["study_day"].iloc[b] - cps["study_day"].iloc[a]).days
+    return True, (f"the change came as {b - a + 1} steps in the same direction over {span} "
+                  f"days, the largest only {share:.0%} of the total")
 
 
 def pattern_family(families: Mapping[str, Family], settings: StudySettings) -> Family:
@@ -107,6 +143,7 @@ def pattern_family(families: Mapping[str, Family], settings: StudySettings) -> F
     days = ((daily["study_day"] - daily["study_day"].iloc[0]).dt.days).to_numpy(dtype=float)
     y, level = daily["mean"].to_numpy(float), daily["level"].to_numpy(float)
     trend = _trend(days, y, level, len(cps), s)
+    stairs, stairs_text = _staircase(cps)
     slowing, slow_seen = _slowing(warnings, alpha)
     valleys, switches = _value(land, "landscape_valleys"), _value(land, "switches")
     bc, dip_p = _value(land, "bimodality_coefficient"), _value(land, "dip_p")
@@ -138,7 +175,7 @@ def pattern_family(families: Mapping[str, Family], settings: StudySettings) -> F
     ev[SHIFT_NO_SLOWING] += slow_seen
     ev[GRADUAL].append(f"the steady trend over the study amounts to {trend['drift']:+.1f} points "
                        f"(day-to-day noise about {s:.1f})")
-    ev[GRADUAL].append("a straight line describes the daily averages "
+    ev[GRADUAL].append("a steady (straight or bent) line describes the daily averages "
                        f"{'better than' if trend['line_better'] else 'less well than'} steps")
 
     dirs = list(big["direction"])
@@ -148,12 +185,16 @@ def pattern_family(families: Mapping[str, Family], settings: StudySettings) -> F
     if alternating:
         ev[SWITCHING].append(f"the daily averages went back and forth in {len(dirs)} large "
                              "steps of alternating direction")
+    if stairs:
+        ev[GRADUAL].append(stairs_text)
+        ev[SHIFT_SLOWING].append(stairs_text)
+        ev[SHIFT_NO_SLOWING].append(stairs_text)
     if (valleys == 2 and (switches or 0) >= MIN_SWITCHES) or (alternating and two_peaked):
         resembles = SWITCHING
         change = ["fewer switches, or a second resting place that disappears at other "
                   "smoothing, would weaken this reading",
                   "a run of weeks in one state only would suggest a lasting shift instead"]
-    elif len(big) > 0 and not trend["line_better"]:
+    elif len(big) > 0 and not trend["line_better"] and not stairs:
         resembles = SHIFT_SLOWING if slowing else SHIFT_NO_SLOWING
         change = ["more weeks after the shift would show whether the new level holds",
                   "if the level drifts back, the change was a passing episode"]
