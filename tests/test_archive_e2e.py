@@ -99,6 +99,17 @@ def test_verify_rebuild(built: tuple[Path, float], tmp_path: Path) -> None:
     assert f"{archive.builds(project)[0]}/out/metrics.csv" in found
 
 
+def _change_one_answer(project: Path, participant: str) -> None:
+    """Change the first 'down' rating of a participant by one scale point."""
+    data = project / "data" / "momentary.csv"
+    lines = data.read_text(encoding="utf-8").splitlines(keepends=True)
+    row = next(i for i, x in enumerate(lines) if x.startswith(participant + ","))
+    cells = lines[row].rstrip("\n").split(",")
+    cells[3] = "7" if cells[3] != "7" else "6"
+    lines[row] = ",".join(cells) + "\n"
+    data.write_text("".join(lines), encoding="utf-8")
+
+
 def test_gate_across_rebuilds(built: tuple[Path, float], tmp_path: Path) -> None:
     """Check the held booklet across release, approval, a data change and a rebuild."""
     project = _copy(built[0], tmp_path / "study")
@@ -111,13 +122,7 @@ def test_gate_across_rebuilds(built: tuple[Path, float], tmp_path: Path) -> None
     review.approve(project, "P08", "Dr. Fictional Reviewer")
     assert review.release(project).released == ("P01", "P08")
     # Change one of P08's answers: the booklet's fingerprint changes, the approval lapses.
-    data = project / "data" / "momentary.csv"
-    lines = data.read_text(encoding="utf-8").splitlines(keepends=True)
-    row = next(i for i, x in enumerate(lines) if x.startswith("P08,"))
-    cells = lines[row].rstrip("\n").split(",")
-    cells[3] = "7" if cells[3] != "7" else "6"
-    lines[row] = ",".join(cells) + "\n"
-    data.write_text("".join(lines), encoding="utf-8")
+    _change_one_answer(project, "P08")
     run_build(project)
     assert not (project / "out" / "release").exists()
     assert review.release(project).released == ("P01",)
@@ -138,21 +143,40 @@ def _consistent(project: Path) -> None:
         assert m.what == "not recorded in the audit log", m.message()  # logged by the next build
 
 
-@pytest.mark.parametrize("seed", [1, 2, 3])
-def test_killed_build_leaves_a_consistent_state(built: tuple[Path, float], tmp_path: Path,
-                                                seed: int) -> None:
-    """Check that SIGKILL at a random moment leaves a consistent state and the next build works."""
-    project = _copy(built[0], tmp_path / "study")
-    delay = np.random.default_rng(seed).uniform(0.3, 1.1) * (built[1] + 2.0)
+def _kill_at_random(project: Path, seed: int, whole_build: float, writing_only: bool) -> None:
+    """Start a build in its own process group and SIGKILL it at a seeded random moment.
+
+    `writing_only` waits until the build starts writing (its hidden staging folder appears)
+    and kills within the next half second, where a careless writer would leave half a folder.
+    """
+    rng = np.random.default_rng(seed)
     script = "import sys; from springback.build import build; build(sys.argv[1], jobs=1)"
     proc = subprocess.Popen([sys.executable, "-c", script, str(project)],
                             start_new_session=True, stdout=subprocess.DEVNULL,
                             stderr=subprocess.DEVNULL)
     try:
+        if writing_only:
+            deadline = time.monotonic() + 10 * whole_build + 60
+            while not list(project.glob(".out.partial-*")) and proc.poll() is None:
+                assert time.monotonic() < deadline, "the build never started writing"
+                time.sleep(0.002)
+            delay = rng.uniform(0.0, 0.5)
+        else:
+            delay = rng.uniform(0.3, 1.1) * (whole_build + 2.0)
         proc.wait(timeout=delay)
     except subprocess.TimeoutExpired:
         os.killpg(proc.pid, signal.SIGKILL)
         proc.wait()
+
+
+@pytest.mark.parametrize(("seed", "writing_only"), [(1, False), (2, False), (3, True),
+                                                    (4, True)])
+def test_killed_build_leaves_a_consistent_state(built: tuple[Path, float], tmp_path: Path,
+                                                seed: int, writing_only: bool) -> None:
+    """Check that SIGKILL at a random moment leaves a consistent state and the next build works."""
+    project = _copy(built[0], tmp_path / "study")
+    _change_one_answer(project, "P01")  # so the killed build writes something new
+    _kill_at_random(project, seed, built[1], writing_only)
     _consistent(project)
     run_build(project)
     assert archive.verify(project) == []
