@@ -167,8 +167,7 @@ def robust_valleys(
     u: np.ndarray, grid: np.ndarray, x: np.ndarray, min_depth: float = MIN_DEPTH,
     min_share: float = MIN_SHARE, keep_at_most: int | None = None,
 ) -> tuple[list[int], list[float], list[float], list[int]]:
-    """Merge shallow or sparsely visited valleys, shallowest first; return minima, depths,
-    shares and barriers."""
+    """Merge shallow or rarely visited valleys, shallowest first; return minima and their facts."""
     minima = [int(m) for m in local_minima(u)]
     if not minima:
         minima = [int(np.argmin(u))]

@@ -137,8 +137,7 @@ def flicker_surrogates(
 def flicker_trend(
     labels: np.ndarray, window: int, n_surrogates: int, rng: np.random.Generator
 ) -> tuple[float, float | None, np.ndarray]:
-    """Return Kendall tau of rolling switch counts, its surrogate p (None if too few stays),
-    and the counts."""
+    """Return Kendall tau of rolling switch counts, its surrogate p (or None) and the counts."""
     counts = rolling_counts(switch_indicator(labels), window)[0]
     tau = float(kendall_tau_rows(counts[None, :].astype(float))[0])
     n_switches = int(switch_indicator(labels).sum())
