@@ -15,6 +15,8 @@ import pandas as pd
 import pytest
 
 from springback.charts import Chart, make_charts
+from springback.charts.common import Inputs
+from springback.charts.mood import mood_chart
 from springback.charts.svg import WIDTH, finish_svg
 from springback.metrics.results import Estimate, Family, ParticipantResults
 from springback.model import ParticipantData
@@ -174,9 +176,12 @@ def test_svg_has_title_and_desc_as_direct_children(charts, key):
     root = ET.fromstring(chart.svg)
     assert root.tag == f"{SVG}svg" and root.get("role") == "img"
     children = list(root)
-    assert children[0].tag == f"{SVG}title" and children[0].text == chart.title
+    # The title carries the whole alternative (WeasyPrint's PDF /Alt is the <title> alone).
+    assert children[0].tag == f"{SVG}title"
+    assert children[0].text == f"{chart.title}: {chart.description}"
     assert children[1].tag == f"{SVG}desc" and children[1].text == chart.description
-    assert root.get("aria-labelledby").split() == [children[0].get("id"), children[1].get("id")]
+    assert root.get("aria-labelledby") == children[0].get("id")
+    assert len(chart.description) > 40
     assert float(root.get("width")) <= WIDTH + 1
 
 
@@ -191,6 +196,18 @@ def test_ids_are_unique_across_one_participants_charts(charts):
             assert ref in own, f"{chart.key}: dangling url(#{ref})"
     assert len(ids) == len(set(ids))
     assert any(i.startswith("sb-mood-") for i in ids)
+
+
+def test_svg_is_plain_svg_to_an_html_parser(charts):
+    """Check that an HTML5 parser sees an <svg> in the SVG namespace with unprefixed children."""
+    import tinyhtml5
+
+    for chart in charts.values():
+        assert chart.svg.startswith("<svg ") and "ns0:" not in chart.svg
+        doc = tinyhtml5.parse(f"<!doctype html><html><body>{chart.svg}</body></html>")
+        body = doc.find("{http://www.w3.org/1999/xhtml}body")
+        assert [el.tag for el in body] == [f"{SVG}svg"]
+        assert body[0][0].tag == f"{SVG}title"
 
 
 def test_no_external_references_or_scripts(charts):
@@ -321,14 +338,14 @@ def test_grid_writes_tau_in_cells(charts):
 def test_charts_are_translated_through_gettext(study):
     """Check that axis titles, labels and tables go through the gettext callable."""
     data, results, settings = study
-    marked = make_charts(replace(data, language="nl"), results, settings, "nl",
-                         lambda s: "«" + s + "»")
-    assert "«Date»" in marked["mood"].table.columns
-    assert "«Date»" in marked["mood"].svg
-    assert marked["mood"].title == "«Your mood over time»"
-    assert "somberheid" in marked["mood"].svg
+    marked = mood_chart(Inputs(replace(data, language="nl"), results, settings, "nl",
+                               lambda s: "«" + s + "»"))
+    assert "«Date»" in marked.table.columns
+    assert "«Date»" in marked.svg
+    assert marked.title == "«Your mood over time»"
+    assert "somberheid" in marked.svg
     # numbers follow the language: Dutch decimal comma
-    assert re.search(r"\d,\d", marked["mood"].description)
+    assert re.search(r"\d,\d", marked.description)
 
 
 def test_missing_families_and_estimates_drop_charts_quietly(study):
@@ -365,9 +382,9 @@ def test_finish_svg_renames_ids_and_references():
     root = ET.fromstring(out)
     assert root.find(f"{SVG}defs/{SVG}clipPath").get("id") == "sb-questionnaire_phq-9-1"
     assert root.find(f"{SVG}g").get("clip-path") == "url(#sb-questionnaire_phq-9-1)"
-    assert root.find(f"{SVG}g/{SVG}use").get("{http://www.w3.org/1999/xlink}href") == (
-        "#sb-questionnaire_phq-9-1")
-    assert root.find(f"{SVG}title").text == "T & t" and "D &lt; d" in out
+    assert root.find(f"{SVG}g/{SVG}use").get("href") == "#sb-questionnaire_phq-9-1"
+    assert "xlink:" not in out
+    assert root.find(f"{SVG}title").text == "T & t: D < d" and "D &lt; d" in out
 
 
 def test_many_shifts_are_summarised(study):
@@ -380,8 +397,8 @@ def test_many_shifts_are_summarised(study):
     fams = dict(results.families)
     fams["shifts"] = replace(fams["shifts"], tables={**fams["shifts"].tables,
                                                      "change_points": points})
-    chart = make_charts(data, replace(results, families=fams), settings, "en",
-                        lambda s: s)["mood"]
+    chart = mood_chart(Inputs(data, replace(results, families=fams), settings, "en",
+                              lambda s: s))
     assert "shift 4 times: 2 times to feeling worse and 2 times to feeling better" in (
         chart.description)
     assert "The largest shift was around 1 April." in chart.description
@@ -394,3 +411,34 @@ def test_load_path_joins_weekly_averages_for_long_studies(charts):
     assert ">weekly averages, joined in time order<" in charts["load"].svg
     assert len(charts["load"].table) == DAYS
     assert "start, 16 March" in charts["load"].svg
+
+
+def test_weasyprint_draws_the_svg_as_a_figure_with_alt_text(charts):
+    """Check in a real PDF/UA render that each inlined chart becomes a Figure with /Alt.
+
+    (An early version serialised <ns0:svg>, which XML parsers accept but HTML parsers take for
+    an unknown element: WeasyPrint then printed the chart's text instead of drawing it.)
+    """
+    import io
+
+    import pikepdf
+    from weasyprint import HTML
+
+    chosen = [charts["grid"], charts["questionnaire_phq9"]]
+    body = "".join(f"<figure><div>{c.svg}</div><figcaption>{c.title}</figcaption></figure>"
+                   for c in chosen)
+    html = (f"<!doctype html><html lang='en'><head><title>t</title></head>"
+            f"<body><h1>Charts</h1>{body}</body></html>")
+    pdf = pikepdf.open(io.BytesIO(HTML(string=html).write_pdf(pdf_variant="pdf/ua-1")))
+    alts: list[str] = []
+
+    def walk(node: object) -> None:
+        if isinstance(node, pikepdf.Dictionary):
+            if node.get("/S") == pikepdf.Name("/Figure"):
+                alts.append(str(node.get("/Alt", "")))
+            kids = node.get("/K")
+            for kid in kids if isinstance(kids, pikepdf.Array) else [kids]:
+                walk(kid)
+
+    walk(pdf.Root.StructTreeRoot)
+    assert alts == [f"{c.title}: {c.description}" for c in chosen]

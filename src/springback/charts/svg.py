@@ -20,8 +20,8 @@ from springback.palette import CHART, FONT_FAMILY
 
 SVG_NS = "http://www.w3.org/2000/svg"
 XLINK_NS = "http://www.w3.org/1999/xlink"
-ET.register_namespace("", SVG_NS)
-ET.register_namespace("xlink", XLINK_NS)
+# No ET.register_namespace here: that registry is process-wide, and a default SVG namespace
+# registered in it stops WeasyPrint from drawing inline SVG at all.
 
 WIDTH = 640
 """Outer width of every chart in CSS pixels: one A4 text column at 96 px per inch."""
@@ -101,6 +101,13 @@ def _prefix(key: str) -> str:
     return "sb-" + re.sub(r"[^A-Za-z0-9_-]", "-", key)
 
 
+def alt_text(title: str, description: str) -> str:
+    """The full text alternative of a chart: its title, then the description."""
+    if not description:
+        return title
+    return f"{title.rstrip('.:')}: {description}"
+
+
 def finish_svg(raw: str, key: str, title: str, description: str) -> str:
     """Add <title>/<desc>, role and aria-labelledby, and prefix every id with the chart key."""
     root = ET.fromstring(raw)
@@ -123,14 +130,24 @@ def finish_svg(raw: str, key: str, title: str, description: str) -> str:
                     element.set(name, pattern.sub(swap, value))
                 elif name in ("href", f"{{{XLINK_NS}}}href") and value.startswith("#"):
                     element.set(name, "#" + renamed.get(value[1:], value[1:]))
+    for element in root.iter():
+        # Plain tag names with one xmlns on the root serialise without ns0: prefixes; SVG 2
+        # takes a plain href, which HTML parsers know (an xlink prefix they might not).
+        element.tag = element.tag.removeprefix(f"{{{SVG_NS}}}")
+        link = element.attrib.pop(f"{{{XLINK_NS}}}href", None)
+        if link is not None:
+            element.set("href", link)
     title_id, desc_id = f"{prefix}-title", f"{prefix}-desc"
-    title_el = ET.Element(f"{{{SVG_NS}}}title", {"id": title_id})
-    title_el.text = title
-    desc_el = ET.Element(f"{{{SVG_NS}}}desc", {"id": desc_id})
+    # WeasyPrint gives the PDF figure only the <title> as /Alt, so the title carries the
+    # whole text alternative; the accessible name points at it alone, so nothing is read twice.
+    title_el = ET.Element("title", {"id": title_id})
+    title_el.text = alt_text(title, description)
+    desc_el = ET.Element("desc", {"id": desc_id})
     desc_el.text = description
     root.insert(0, desc_el)
     root.insert(0, title_el)
     root.set("role", "img")
-    root.set("aria-labelledby", f"{title_id} {desc_id}")
+    root.set("aria-labelledby", title_id)
     root.attrib.pop("class", None)
+    root.set("xmlns", SVG_NS)
     return ET.tostring(root, encoding="unicode")
