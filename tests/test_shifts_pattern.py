@@ -120,3 +120,20 @@ def test_staircase_of_steps_reads_as_gradual() -> None:
     fam = pattern_family({"shifts": shift_family(prepare(participant(hours, values), s), s),
                           "landscape": _landscape(1, None)}, s)
     assert fam.params["resembles"] == GRADUAL
+
+
+def test_codes_carry_numbers_for_translation() -> None:
+    """Check every evidence item has a code with an English phrase and the same English text."""
+    from springback.metrics.pattern import PHRASES
+
+    fam = pattern_family({"shifts": _shifts("step"), "landscape": _landscape(1, None),
+                          "warnings": _warnings(0.6, 0.01)}, settings())
+    codes = fam.params["evidence_codes"]
+    assert set(codes) == set(PATTERNS)
+    for pattern, items in codes.items():
+        assert [PHRASES[i["code"]].format(**i) for i in items] == \
+            fam.params["evidence_by_pattern"][pattern]
+    shift = next(i for i in codes[SHIFT_SLOWING] if i["code"] == "shift_worse")
+    assert isinstance(shift["size"], float) and len(shift["date"]) == 10
+    assert [PHRASES[c] for c in fam.params["what_would_change_codes"]] == \
+        fam.params["what_would_change"]
