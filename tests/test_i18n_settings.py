@@ -2,9 +2,18 @@
 
 from __future__ import annotations
 
+import configparser
+from pathlib import Path
 from typing import Any
 
-from springback.i18n import settings_text_problems
+import pandas as pd
+
+from springback.i18n_check import (
+    JINJA_OPTIONS,
+    check_languages,
+    settings_text_problems,
+    template_problems,
+)
 from springback.settings import from_mapping
 
 
@@ -76,3 +85,51 @@ def test_answers_checked_and_band_labels() -> None:
 def test_unknown_languages_are_left_to_the_catalogue_check() -> None:
     """Check that an unknown language gives no label problems (catalogue_problems reports it)."""
     assert settings_text_problems(_settings(), [("fr", "north")]) == []
+
+
+def test_study_template_text_without_translation(tmp_path: Path) -> None:
+    """Check that an override's own wording is an error for Dutch booklets, with its line."""
+    folder = tmp_path / "templates" / "sections"
+    folder.mkdir(parents=True)
+    (folder / "reflect.html").write_text(
+        "<p>{% trans %}Your mood booklet{% endtrans %}</p>\n"
+        "<p>{% trans %}Ask our nurse about this page.{% endtrans %}</p>\n",
+        encoding="utf-8",
+    )
+    problems = template_problems(tmp_path / "templates", ["nl", "en"])
+    assert [(p.where, p.row, p.code) for p in problems] == [
+        ("templates/sections/reflect.html", 2, "template-untranslated")
+    ]
+    assert "no translation in Dutch (nl)" in problems[0].what
+    assert "'Ask our nurse about this page.'" in problems[0].what
+    assert template_problems(tmp_path / "templates", ["en"]) == []
+
+
+def test_unreadable_study_template_is_reported(tmp_path: Path) -> None:
+    """Check that a template syntax error is one problem with its line, not a traceback."""
+    (tmp_path / "templates").mkdir()
+    (tmp_path / "templates" / "base.html").write_text("<p>\n{% trans %}Hi{% endif %}\n",
+                                                     encoding="utf-8")
+    (problem,) = template_problems(tmp_path / "templates", ["de"])
+    assert (problem.code, problem.row) == ("template-unreadable", 2)
+
+
+def test_check_languages_counts_only_participants_who_get_a_booklet(tmp_path: Path) -> None:
+    """Check that withdrawn and no-feedback participants' languages and regions are ignored."""
+    roster = pd.DataFrame({
+        "participant": ["A", "B", "C"], "language": ["en", "de", "de"],
+        "consent": ["yes", "withdrawn", "yes"], "feedback": [True, True, False],
+        "therapist": [False, False, False], "region": ["north", "south", "south"],
+    })
+    problems = check_languages(_settings(), roster, tmp_path)
+    assert [p.code for p in problems] == []
+    roster.loc[1, "consent"] = "yes"
+    codes = sorted(p.code for p in check_languages(_settings(), roster, tmp_path))
+    assert codes == ["label-missing", "referral-missing"]
+
+
+def test_jinja_options_match_babel_cfg() -> None:
+    """Check that the study-template check reads templates exactly as `babel.cfg` says."""
+    cfg = configparser.ConfigParser()
+    cfg.read(Path(__file__).resolve().parents[1] / "babel.cfg")
+    assert dict(cfg["jinja2: templates/**.html"]) == JINJA_OPTIONS

@@ -12,7 +12,6 @@ from __future__ import annotations
 import datetime as dt
 import gettext
 import math
-from collections.abc import Iterable
 from dataclasses import dataclass
 from decimal import ROUND_HALF_UP, Decimal
 from functools import cache
@@ -28,7 +27,7 @@ from babel import numbers as babel_numbers
 from babel import units as babel_units
 from babel.messages.pofile import read_po
 
-from springback.errors import Problem, SpringbackError, error, warning
+from springback.errors import Problem, SpringbackError, error
 
 LANGUAGES = ("en", "nl", "de")
 """Languages a booklet can be made in; English is the source language."""
@@ -328,74 +327,6 @@ def catalogue_problems(
     return problems
 
 
-
-def settings_text_problems(settings: Any, used: Iterable[tuple[str, str]]) -> list[Problem]:
-    """Check the study's own texts per booklet language: labels, referrals, answer checks.
-
-    `used` holds the (language, region) pairs of the participants who get a booklet. A text
-    given in some languages but not in one that is used would make a mixed booklet: error.
-    """
-    # Unknown languages are `catalogue_problems`' to report; one message per mistake.
-    used = sorted({(lang, region) for lang, region in used if lang in LANGUAGES})
-    languages = sorted({language for language, _ in used})
-    where = "study.toml: "
-    problems: list[Problem] = []
-    tables = (("items", settings.items), ("composites", settings.composites),
-              ("questionnaires", settings.questionnaires))
-    for kind, table in tables:
-        for name, spec in table.items():
-            missing = [lang for lang in languages if not spec.label.get(lang)]
-            if spec.label and missing:
-                problems.append(_missing_text(
-                    f"{where}{kind}.{name}.label", f"the label of '{name}'", missing,
-                    sorted(spec.label), "label-missing"))
-    checked = settings.study.answers_checked
-    missing = [lang for lang in languages if not checked.get(lang)]
-    if checked and missing:
-        problems.append(_missing_text(f"{where}study.answers_checked",
-                                      "who checks the answers", missing, sorted(checked),
-                                      "answers-checked-missing"))
-    for language, region in used:
-        if settings.referral_for(region, language) is not None:
-            continue
-        elsewhere = sorted(
-            {r.language for r in settings.referral if r.region in (region, "default")}
-        )
-        make = error if elsewhere else warning
-        problems.append(make(
-            f"{where}referral",
-            f"no referral text for region '{region}' in {language_name(language)} ({language}); "
-            "these booklets would show general advice instead of local services",
-            expected=f"a [[referral]] table with region = \"{region}\" (or \"default\") and "
-            f"language = \"{language}\"",
-            found="texts in " + ", ".join(elsewhere) if elsewhere else "no referral texts",
-            fix="add the referral table with the real local services",
-            code="referral-missing",
-        ))
-    if any(lang != SOURCE_LANGUAGE for lang in languages):
-        for name, spec in settings.questionnaires.items():
-            if spec.bands:
-                problems.append(warning(
-                    f"{where}questionnaires.{name}.bands",
-                    "band labels have one text for every language, so they are shown as "
-                    "written in every booklet",
-                    fix="write band labels that read well in all the study's languages",
-                    code="band-labels-one-language",
-                ))
-    return problems
-
-
-def _missing_text(where: str, what: str, missing: list[str], given: list[str],
-                  code: str) -> Problem:
-    names = ", ".join(f"{language_name(lang)} ({lang})" for lang in missing)
-    return error(
-        where,
-        f"{what} has no text in {names}, so those booklets would mix languages",
-        expected="a text for each language participants read",
-        found="texts in " + ", ".join(given),
-        fix="add " + ", ".join(f'{lang} = "..."' for lang in missing),
-        code=code,
-    )
 
 # -- Catalogue upkeep (implemented in springback.catalogues, which needs a source checkout) ----
 
