@@ -6,6 +6,7 @@ import itertools
 from html.parser import HTMLParser
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from babel.numbers import parse_decimal
 
@@ -21,7 +22,7 @@ from _render_samples import (
     sample_settings,
 )
 from springback import render
-from springback.render.context import PARTICIPANT_SECTIONS, THERAPIST_SECTIONS
+from springback.render.context import PARTICIPANT_SECTIONS, THERAPIST_SECTIONS, inline_svg
 
 
 class Page(HTMLParser):
@@ -257,3 +258,37 @@ def test_overview_lists_every_participant_with_reason() -> None:
     assert "withdrew consent" in text and "not enough data" in text
     assert "did not want feedback" in text and not page.tags("script")
     assert len(page.tags("h1")) == 1
+
+
+def test_long_chart_tables_move_to_the_print_appendix() -> None:
+    """Check that a long data table stays in <details> on screen and is repeated in the appendix."""
+    long_chart = sample_chart("mood")
+    rows = {"Day": [f"{d} March" for d in range(1, 31)], "mood": ["3.0"] * 30}
+    long_chart = type(long_chart)(long_chart.key, long_chart.title, long_chart.description,
+                                  long_chart.svg, pd.DataFrame(rows), "Daily mood")
+    charts = {"mood": long_chart, "calendar": sample_chart("calendar"),
+              "grid": type(long_chart)("grid", "Grid", "A grid.", long_chart.svg,
+                                       pd.DataFrame(rows), "Grid numbers")}
+    page = parse(render_booklet("participant", charts=charts))
+    details = page.tags("details")
+    assert [d["class"] for d in details] == ["chart-data", "chart-data long-table"]
+    appendix = [a for a in page.tags("section") if a.get("id") == "s-appendix"]
+    assert appendix and "print-only" in appendix[0]["class"]
+    # the grid belongs to the therapist edition only, so its table is not in this appendix
+    captions = [t for t in page.text_parts if t in ("Daily mood", "Grid numbers")]
+    assert captions == ["Daily mood", "Daily mood"]
+
+
+def test_prefixed_svg_is_made_readable_for_html() -> None:
+    """Check that an SVG serialised with a namespace prefix becomes plain inline SVG."""
+    ns = "http://www.w3.org/2000/svg"
+    prefixed = (f'<ns0:svg xmlns:ns0="{ns}" role="img"><ns0:title>t</ns0:title>'
+                '<ns0:path d="M0 0" /><ns0:path d="M1 1" /></ns0:svg>')
+    fixed = inline_svg(prefixed)
+    page = parse(f"<div>{fixed}</div>")
+    assert [t for t, _ in page.elements] == ["div", "svg", "title", "path", "path"]
+    assert page.tags("svg")[0]["xmlns"] == ns
+    plain = f'<svg xmlns="{ns}"><path d="M0 0"/></svg>'
+    assert inline_svg(plain) == plain
+    with pytest.raises(ValueError, match="must be an SVG image"):
+        inline_svg('<html xmlns="http://www.w3.org/1999/xhtml"/>')

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import xml.etree.ElementTree as ET
 from dataclasses import dataclass
 from typing import Any, Literal, Protocol, TypedDict
 
@@ -29,6 +30,17 @@ THERAPIST_SECTIONS = (
 )
 """Section partials of the therapist edition, in order."""
 
+SECTION_CHARTS = {
+    "participation": ("calendar",), "mood": ("mood",), "bouncing_back": ("recovery",),
+    "change": ("warnings",), "sensitivity": ("grid",), "landscape": ("landscape", "load"),
+    "questionnaires": ("questionnaire_",),
+}
+"""Charts each section shows (a key ending in '_' stands for every key it starts)."""
+
+LONG_TABLE_ROWS = 16
+"""Data tables longer than this cannot sit on the page of their chart; in print they move to
+an appendix at the end of the booklet (on screen they stay in their <details>)."""
+
 
 class FlagLike(Protocol):
     """What a safety flag offers (springback.safety.Flag has exactly these attributes)."""
@@ -43,6 +55,18 @@ class FlagLike(Protocol):
 
 class ChartLike(Protocol):
     """What a chart record offers (springback.charts.Chart)."""
+
+    key: str
+    title: str
+    description: str
+    svg: str
+    table: pd.DataFrame
+    table_caption: str
+
+
+@dataclass(frozen=True)
+class ChartView:
+    """A chart as the templates embed it (same fields as springback.charts.Chart)."""
 
     key: str
     title: str
@@ -104,7 +128,8 @@ class BookletContext(TypedDict):
     refer: bool
     review_state: str
     referral: Referral | None
-    charts: dict[str, ChartLike]
+    charts: dict[str, ChartView]
+    long_tables: list[str]
     pattern: dict[str, Any]
     alpha: float
     large_print: bool
@@ -132,13 +157,14 @@ def build_context(
     own_flags = [f for f in flags if f.participant == data.participant]
     refer = any(f.action == "refer" for f in own_flags)
     variable = results.variable or settings.about
+    sections = _sections(settings, edition, refer)
     desc = _params(results, "descriptives")
     low, high = _scale(settings, variable)
     first, last = _period(data)
     return BookletContext(
         edition=edition,
         language=language,
-        sections=_sections(settings, edition, refer),
+        sections=sections,
         study_title=settings.study.title,
         study_team=settings.study.team,
         contact_name=settings.study.contact.name,
@@ -170,13 +196,58 @@ def build_context(
         refer=refer,
         review_state=review_state,
         referral=settings.referral_for(data.region, language),
-        charts=dict(charts),
+        charts={key: _chart_view(chart) for key, chart in charts.items()},
+        long_tables=_long_tables(sections, charts),
         pattern=_params(results, "pattern"),
         alpha=float(_params(results, "warnings").get("alpha", settings.metrics.alpha)),
         large_print=settings.booklet.large_print,
         paper=settings.booklet.paper,
         palette_css=_palette_css(),
     )
+
+
+SVG_NS = "http://www.w3.org/2000/svg"
+XLINK_NS = "http://www.w3.org/1999/xlink"
+
+
+def _chart_view(chart: ChartLike) -> ChartView:
+    """The chart with SVG markup an HTML parser reads as SVG."""
+    return ChartView(chart.key, chart.title, chart.description, inline_svg(chart.svg),
+                     chart.table, chart.table_caption)
+
+
+def inline_svg(svg: str) -> str:
+    """Return the SVG without namespace prefixes on its elements (`<svg>`, not `<ns0:svg>`).
+
+    HTML parsers know SVG only by the plain element names; a prefixed `<ns0:svg>` becomes a
+    pile of unknown, endlessly nested inline elements (no picture, and layout recursion in
+    WeasyPrint). ElementTree writes such prefixes whenever another library has re-registered
+    the empty prefix, so the markup is normalised here, where it enters the HTML.
+    """
+    if svg.lstrip().startswith("<svg"):
+        return svg
+    root = ET.fromstring(svg)
+    if root.tag != f"{{{SVG_NS}}}svg":
+        raise ValueError(f"a chart must be an SVG image, found <{root.tag}>")
+    for element in root.iter():
+        if isinstance(element.tag, str):
+            element.tag = element.tag.removeprefix(f"{{{SVG_NS}}}")
+        for name in [n for n in element.attrib if n == f"{{{XLINK_NS}}}href"]:
+            element.set("href", element.attrib.pop(name))  # SVG 2 reads plain href
+    root.set("xmlns", SVG_NS)
+    return ET.tostring(root, encoding="unicode")
+
+
+def _long_tables(sections: list[str], charts: dict[str, ChartLike]) -> list[str]:
+    """Keys of the shown charts whose data tables go to the print appendix, in reading order."""
+    keys = []
+    for section in sections:
+        for wanted in SECTION_CHARTS.get(section, ()):
+            for key in sorted(charts):
+                matches = key.startswith(wanted) if wanted.endswith("_") else key == wanted
+                if matches and len(charts[key].table) > LONG_TABLE_ROWS:
+                    keys.append(key)
+    return keys
 
 
 def _sections(settings: StudySettings, edition: Edition, refer: bool) -> list[str]:

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
 from weasyprint import HTML, URLFetcher
@@ -20,8 +19,5 @@ def html_to_pdf(html: str, base_url: Path | str) -> bytes:
     """Write the HTML as a PDF/UA-1 document (title and language from the HTML)."""
     # Fonts arrive as data URLs inside the HTML, so base_url only matters for a project's own
     # template additions; it resolves relative file references, never network ones.
-    # WeasyPrint lays out nested boxes (inline SVG charts inside figures inside sections)
-    # recursively; Python's default limit of 1000 frames is too low for a booklet.
-    sys.setrecursionlimit(max(sys.getrecursionlimit(), 20_000))
     document = HTML(string=html, base_url=str(base_url), url_fetcher=local_fetcher())
     return document.write_pdf(pdf_variant="pdf/ua-1")
