@@ -242,29 +242,53 @@ def test_user_strings_are_escaped(charts):
     assert "<script>alert(1)</script>" in set(charts["mood"].table["Events"])
 
 
+def _over_white(colour: str, alpha: float) -> str:
+    """Composite a colour at some opacity onto the white chart background (WCAG note)."""
+    rgb = [int(colour[i:i + 2], 16) for i in (1, 3, 5)]
+    mixed = [round(alpha * c + (1 - alpha) * 255) for c in rgb]
+    return "#" + "".join(f"{c:02X}" for c in mixed)
+
+
 def test_every_colour_in_the_svgs_meets_contrast(charts):
     """Check text fills against 4.5:1 and strokes/fills of marks against 3:1 on white.
 
-    Light area fills (band, terrain, calendar and grid cells) are backgrounds: their text is
-    checked against them in tests/test_contrast.py, and their edges are drawn in 3:1 colours.
+    Opacity is composited onto the background first (METHODS.md section 8). Light area fills
+    (band, terrain, calendar and grid cells) are backgrounds: their text is checked against
+    them in tests/test_contrast.py, and their edges are drawn in 3:1 colours.
     """
-    backgrounds = {c.upper() for c in (CHART.background, CHART.band, CHART.terrain)}
     from springback.palette import BAND_FILLS, CALENDAR_RAMP, DIVERGING
+
+    backgrounds = {c.upper() for c in (CHART.background, CHART.band, CHART.terrain)}
     backgrounds |= {c.upper() for c in (*BAND_FILLS, *CALENDAR_RAMP, *DIVERGING)}
+    checked = 0
+
+    def visit(el: ET.Element, inherited: float, key: str) -> None:
+        nonlocal checked
+        alpha = inherited * float(el.get("opacity", 1))
+        tag = el.tag.removeprefix(SVG)
+        for attr in ("fill", "stroke"):
+            colour = (el.get(attr) or "").upper()
+            if not re.fullmatch(r"#[0-9A-F]{6}", colour):
+                continue
+            own = alpha * float(el.get(f"{attr}-opacity", 1))
+            if own == 0:
+                continue
+            if colour in backgrounds and tag != "text":
+                continue
+            seen = _over_white(colour, own)
+            checked += 1
+            if tag == "text":
+                assert any(contrast_ratio(colour, b) >= TEXT_MIN for b in backgrounds), key
+                assert own == 1, f"{key}: translucent text"
+            else:
+                assert contrast_ratio(seen, CHART.background) >= GRAPHIC_MIN, (
+                    f"{key}: {tag} {attr} {colour} at opacity {own}")
+        for child in el:
+            visit(child, alpha, key)
+
     for chart in charts.values():
-        root = ET.fromstring(chart.svg)
-        for el in root.iter():
-            tag = el.tag.removeprefix(SVG)
-            for attr in ("fill", "stroke"):
-                colour = (el.get(attr) or "").upper()
-                if not re.fullmatch(r"#[0-9A-F]{6}", colour):
-                    continue
-                if tag == "text":
-                    if not any(contrast_ratio(colour, b) >= TEXT_MIN for b in backgrounds):
-                        pytest.fail(f"{chart.key}: text {colour}")
-                elif colour not in backgrounds:
-                    ratio = contrast_ratio(colour, CHART.background)
-                    assert ratio >= GRAPHIC_MIN, f"{chart.key}: {tag} {attr} {colour}"
+        visit(ET.fromstring(chart.svg), 1.0, chart.key)
+    assert checked > 100
 
 
 def test_text_uses_the_booklet_font(charts):

@@ -58,6 +58,8 @@ THEME: dict[str, Any] = {
     "title": {"color": CHART.ink, "fontSize": FONT_SIZE, "fontWeight": "normal",
               "font": FONT_FAMILY, "anchor": "start"},
     "text": {"color": CHART.ink, "fontSize": FONT_SIZE - 1, "font": FONT_FAMILY},
+    # Vega-Lite draws points at 70% opacity by default, which would lighten them below 3:1.
+    "point": {"opacity": 1}, "circle": {"opacity": 1}, "square": {"opacity": 1},
 }
 
 
