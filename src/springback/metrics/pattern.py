@@ -219,7 +219,8 @@ def pattern_family(families: Mapping[str, Family], settings: StudySettings) -> F
     if alternating:
         sw.append({"code": "alternating", "n": len(dirs)})
     shift_ev: list[dict[str, Any]] = []
-    for row in big.itertuples():
+    largest_first = big.iloc[np.argsort(-np.abs(big["size"].to_numpy(float)), kind="stable")]
+    for row in largest_first.itertuples():
         shift_ev.append({"code": f"shift_{row.direction}", "size": abs(row.size),
                          "date": row.study_day.date().isoformat(), "factor": SWING_FACTOR})
         if row.questionnaire_nearby:
