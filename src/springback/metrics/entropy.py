@@ -133,8 +133,7 @@ def complexity_family(series: Series, participant: str, settings: StudySettings)
     """Compute rolling permutation entropy and its trend test for one participant."""
     m = settings.metrics
     order, delay = m.entropy_order, m.entropy_delay
-    x = series.value
-    local_time = series.local_time
+    x, local_time = series.value, series.local_time
     span = (order - 1) * delay + 1
     params = {"order": order, "delay": delay, "window": m.window, "surrogates": m.surrogates,
               "surrogate_kind": "AR(1), rank-matched to the answers", "test": "two-sided",
@@ -154,10 +153,10 @@ def complexity_family(series: Series, participant: str, settings: StudySettings)
         )
     codes = pattern_codes(x, order, delay)[mask]
     ends = np.flatnonzero(mask)[window - 1:] + span - 1
-    series = rolling_entropy(codes, order, window)[0]
-    tau = float(kendall_tau_rows(series[None, :])[0])
+    rolling = rolling_entropy(codes, order, window)[0]
+    tau = float(kendall_tau_rows(rolling[None, :])[0])
     table = pd.DataFrame({"local_time": local_time.iloc[ends].reset_index(drop=True),
-                          "entropy": series})
+                          "entropy": rolling})
     note = (f"Kendall tau of rolling permutation entropy (order {order}, delay {delay}, "
             f"windows of {window} patterns)")
     if not math.isfinite(tau):
@@ -182,5 +181,5 @@ def complexity_family(series: Series, participant: str, settings: StudySettings)
                                   note="two-sided, from rank-matched AR(1) surrogates"),
         },
         tables={"rolling": table},
-        params=params | {"window_patterns": window, "mean_entropy": float(series.mean())},
+        params=params | {"window_patterns": window, "mean_entropy": float(rolling.mean())},
     )
