@@ -129,7 +129,7 @@ def fit_pooled(hours: np.ndarray, dev: np.ndarray) -> tuple[float, float, float,
     """Fit dev = A e^{-k h} to all aligned points; return A, k and k's 95% interval."""
     a0 = float(np.median(dev[hours == 0])) if np.any(hours == 0) else float(dev.max())
     (a, k), cov = optimize.curve_fit(lambda h, a, k: a * np.exp(-k * h), hours, dev,
-                                     p0=(a0, 0.3), maxfev=5000)
+                                     p0=(a0, 0.3), maxfev=5000, xtol=1e-12, ftol=1e-12)
     se = math.sqrt(cov[1, 1]) if np.isfinite(cov[1, 1]) else float("nan")
     q = stats.t.ppf(0.975, max(len(hours) - 2, 1))
     return float(a), float(k), k - q * se, k + q * se
@@ -206,6 +206,10 @@ def _pooled_estimate(aligned: pd.DataFrame, n_ep: int,
     if not (math.isfinite(k) and k > 0 and a > 0):
         return Estimate.missing("no return towards the usual level was seen after upsets",
                                 n=n_ep), empty
+    if math.log(2) / k > h.max():
+        return Estimate.missing(
+            f"the fitted return is slower than the {h.max():.1f} h the episodes were followed, "
+            "so no half-life can be read from the data", n=n_ep), empty
     grid = np.linspace(0.0, float(h.max()), 50)
     fit = pd.DataFrame({"hours": grid, "deviation": a * np.exp(-k * grid)})
     lower = float(math.log(2) / k_hi) if k_hi > 0 and math.isfinite(k_hi) else None

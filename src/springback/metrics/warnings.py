@@ -17,7 +17,9 @@ in time series illustrated using simulated ecological data", PLoS ONE 7:e41010; 
 5. Significance by surrogates only (the textbook Kendall p-value is invalid for overlapping
    windows; METHODS.md §2): half AR(1)-fitted, half Fourier phase-randomised surrogates of the
    detrended series run through steps 2-4; p = (1 + #{tau* >= tau}) / (B + 1) over all B
-   surrogates of both kinds (each kind's own p is kept in the parameters).
+   surrogates of both kinds (each kind's own p is kept in the parameters). Surrogate running
+   sums are kept in single precision: it moves a surrogate's tau by a pair or two at most and
+   halves the memory traffic.
    Item correlations use multivariate phase surrogates only (shared phases keep the items'
    cross-correlation; Prichard & Theiler 1994).
 6. Sensitivity: the same test over every window share x bandwidth in the settings.
@@ -98,7 +100,7 @@ def _detrended(series: Series, method: str, bandwidth: float | None, n_sur: int,
     sur = np.vstack([ar1_surrogates(resid, n_ar, rng), phase_surrogates(resid, n_sur - n_ar, rng)])
     kind = np.repeat([0, 1], [n_ar, n_sur - n_ar])
     return _Detrended(bandwidth, resid, rl.prefix_sums(resid, series.admissible, True),
-                      rl.prefix_sums(sur.T, series.admissible), kind)
+                      rl.prefix_sums(sur.T, series.admissible, dtype=np.float32), kind)
 
 
 def _cell(series: Series, det: _Detrended, share: float, min_prompts: int) -> _Cell:
@@ -145,7 +147,7 @@ def _crosscorr(series: Series, method: str, bandwidth: float | None, cell: _Cell
     tau = float(kendall_tau_columns(rl.window_crosscorr(
         resid, starts[cell.tested], ends[cell.tested]))[0])
     rng = participant_rng(seed, pid, f"warnings/items/{method}/{bandwidth}")
-    sur = phase_surrogates_multi(resid, n_sur, rng).transpose(1, 0, 2)
+    sur = phase_surrogates_multi(resid, n_sur, rng).transpose(1, 2, 0).astype(np.float32)
     null = kendall_tau_columns(rl.window_crosscorr(sur, starts[cell.tested], ends[cell.tested]))
     return rolling, tau, surrogate_pvalue(tau, null), ""
 
