@@ -7,7 +7,7 @@ import tempfile
 from pathlib import Path
 
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from fixtures.intake_project import MOMENTARY, ROSTER, make_project
@@ -48,21 +48,33 @@ def _run(files: dict[str, str | bytes | None]) -> None:
 
 @FUZZ
 @given(data=st.binary(max_size=300))
+@example(data=b"\x01\r\x01")  # a bare carriage return once broke the header check
+@example(data=b"\xff\xfe")  # a UTF-16 byte-order mark and nothing else
+@example(data=b"participant\rtimestamp\r")  # old Mac line ends
 def test_random_bytes(data: bytes) -> None:
     """Check that random bytes as the momentary file give problems, not a traceback."""
     _run({"data/momentary.csv": data})
 
 
+HEADERS = {
+    "data/momentary.csv": ["participant", "timestamp", "sad", "calm"],
+    "data/participants.csv": ["participant", "language", "consent", "feedback"],
+    "data/events.csv": ["participant", "timestamp", "kind", "intensity"],
+    "data/questionnaires.csv": ["participant", "timestamp", "questionnaire", "score"],
+}
+
+
 @FUZZ
 @given(rows=st.lists(st.lists(CELLS, min_size=1, max_size=6), max_size=6),
        delimiter=st.sampled_from([",", ";", "\t", "|", " ", ":"]),
-       quote=st.booleans())
-def test_random_delimited_tables(rows: list[list[str]], delimiter: str, quote: bool) -> None:
-    """Check that tables of odd cells with any delimiter give clean problems."""
-    header = delimiter.join(["participant", "timestamp", "sad", "calm"])
+       quote=st.booleans(), target=st.sampled_from(sorted(HEADERS)))
+def test_random_delimited_tables(rows: list[list[str]], delimiter: str, quote: bool,
+                                 target: str) -> None:
+    """Check that tables of odd cells with any delimiter, in any file, give clean problems."""
+    header = delimiter.join(HEADERS[target])
     cell = (lambda c: f'"{c}"') if quote else (lambda c: c)
     body = "\n".join(delimiter.join(cell(c) for c in row) for row in rows)
-    _run({"data/momentary.csv": header + "\n" + body + "\n"})
+    _run({target: header + "\n" + body + "\n"})
 
 
 @FUZZ

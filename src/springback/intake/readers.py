@@ -105,7 +105,12 @@ def _read_csv(path: Path, where: str, notes: list[Problem]) -> pd.DataFrame:
             expected=f"the same number of '{_name(delimiter)}'-separated fields on every line",
             fix="look at the line named (an unclosed quote or an extra separator is usual)",
             code="unreadable")]) from None
-    header = next(csv.reader(io.StringIO(text.lstrip("\r\n")), delimiter=delimiter), [])
+    # pandas renames repeated headers (sad, sad.1), so the raw header line is checked too.
+    try:
+        header = next(csv.reader(io.StringIO(text.lstrip("\r\n"), newline=""),
+                                 delimiter=delimiter), [])
+    except csv.Error:
+        header = []
     names = [h.strip() for h in header]
     if len(names) == frame.shape[1]:
         _check_duplicate_names(names, where)
@@ -135,7 +140,8 @@ def _decode(data: bytes, where: str, notes: list[Problem]) -> str:
 
 def sniff_delimiter(text: str) -> str:
     """Pick the delimiter that splits the header line into the most fields (comma on ties)."""
-    first = text.lstrip("\r\n").split("\n", 1)[0]
+    lines = text.lstrip("\r\n")[:65536].splitlines()
+    first = lines[0] if lines else ""
     best, most = ",", 1
     for d in DELIMITERS:
         try:
@@ -149,12 +155,15 @@ def sniff_delimiter(text: str) -> str:
 
 def _long_line(text: str, delimiter: str) -> str:
     """Name the first line with more fields than the header (only called when one exists)."""
-    reader = csv.reader(io.StringIO(text.lstrip("\r\n")), delimiter=delimiter)
-    width = len(next(reader, []))
-    for fields in reader:
-        if len(fields) > width:
-            return (f"line {reader.line_num} has {len(fields)} fields but the header "
-                    f"has {width}")
+    reader = csv.reader(io.StringIO(text.lstrip("\r\n"), newline=""), delimiter=delimiter)
+    try:
+        width = len(next(reader, []))
+        for fields in reader:
+            if len(fields) > width:
+                return (f"line {reader.line_num} has {len(fields)} fields but the header "
+                        f"has {width}")
+    except csv.Error:
+        pass
     return "a line has more fields than the header"
 
 
