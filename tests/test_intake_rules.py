@@ -13,7 +13,7 @@ import pytest
 from rich.console import Console
 
 from fixtures.intake_project import BASE_TOML, MOMENTARY, ROSTER, make_project
-from springback.errors import DataError
+from springback.errors import DataError, SettingsError
 from springback.intake import check_study, load_study, quality_table
 from springback.model import (
     EVENT_COLUMNS,
@@ -168,6 +168,9 @@ def test_strict_makes_warnings_fatal(tmp_path: Path) -> None:
         load_study(root, strict=True)
     assert [p.code for p in caught.value.problems] == ["no-data"]
     assert not check_study(root, strict=True).ok and check_study(root).ok
+    typo = make_project(tmp_path / "typo", extra_toml='[booklet]\nabuot = "x"\n')
+    with pytest.raises(SettingsError):  # only a settings warning: a settings error in strict
+        load_study(typo, strict=True)
 
 
 def test_events_marked_upsetting_by_kind_and_intensity(tmp_path: Path) -> None:

@@ -49,17 +49,18 @@ class CheckReport:
 
 def load_study(project: Path, *, strict: bool = False) -> Study:
     """Read and check a project folder; raise with every problem if any is an error."""
-    study, problems, settings_only = _load(Path(project))
+    study, problems = _load(Path(project))
     fatal = any(p.is_error for p in problems) or (strict and problems)
     if fatal or study is None:
-        raise (SettingsError if settings_only else DataError)(problems)
+        from_settings = all(p.where.startswith(SETTINGS_FILE) for p in problems)
+        raise (SettingsError if from_settings else DataError)(problems)
     return study
 
 
 def check_study(project: Path, *, strict: bool = False) -> CheckReport:
     """Check a project folder and return every problem found; never raises for user mistakes."""
     try:
-        study, problems, _ = _load(Path(project))
+        study, problems = _load(Path(project))
     except SettingsError as exc:
         return CheckReport(tuple(exc.problems), None, strict)
     if any(p.is_error for p in problems):
@@ -99,8 +100,8 @@ def _path(project: Path, path: Path) -> Path:
     return path if path.is_absolute() else project / path
 
 
-def _load(project: Path) -> tuple[Study | None, list[Problem], bool]:
-    """Load everything; the problems found; whether only settings problems stopped it."""
+def _load(project: Path) -> tuple[Study | None, list[Problem]]:
+    """Load everything; return the study (None if it cannot be built) and every problem."""
     settings, settings_problems = load_settings(project)
     sink = Sink(settings.data.on_bad_rows)
     sink.add(settings_problems)
@@ -139,7 +140,7 @@ def _load(project: Path) -> tuple[Study | None, list[Problem], bool]:
     scores = read_questionnaires(questionnaire_table, settings, sink) \
         if questionnaire_table else None
     if roster is None or prompts is None or momentary_table is None:
-        return None, sink.problems, False
+        return None, sink.problems
     consenting = set(roster.loc[roster["consent"] == "yes", "participant"])
     withdrawn = set(roster.loc[roster["consent"] == "withdrawn", "participant"])
     listed = set(roster["participant"])
@@ -169,7 +170,7 @@ def _load(project: Path) -> tuple[Study | None, list[Problem], bool]:
         warnings=tuple(p for p in sink.problems if not p.is_error),
         input_files=tuple(read),
     )
-    return study, sink.problems, False
+    return study, sink.problems
 
 
 def _schedule(prompts: Prompts, settings: StudySettings) -> pd.Series | None:
