@@ -14,7 +14,7 @@ from fixtures.intake_project import MOMENTARY, ROSTER, make_project
 from springback.errors import SpringbackError
 from springback.intake import check_study, load_study
 
-FUZZ = settings(max_examples=20, deadline=None, derandomize=True,
+FUZZ = settings(max_examples=20, deadline=None, derandomize=True, database=None,
                 suppress_health_check=[HealthCheck.too_slow])
 
 CELLS = st.one_of(
