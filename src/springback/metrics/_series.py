@@ -93,7 +93,9 @@ def prepare(data: ParticipantData, settings: StudySettings, variable: str | None
     frame = data.momentary
     present = [c for c in (variable, *names) if c in frame.columns]
     _reject_non_finite(frame, present)
-    frame = frame.sort_values("time", kind="stable")
+    # The source row breaks ties between equal times, so the input's row order never matters.
+    keys = ["time", "source_row"] if "source_row" in frame.columns else ["time"]
+    frame = frame.sort_values(keys, kind="stable")
     value = frame[variable].to_numpy(dtype=float, na_value=np.nan)
     keep = np.isfinite(value)
     frame = frame.loc[keep]

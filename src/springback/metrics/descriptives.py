@@ -118,10 +118,9 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
                              "relative to the scale is undefined", n=n))
     else:
         why = f"needs at least 2 answered prompts; there were {n}"
-        for name in ("mean", "sd", "relative_variability"):
+        est["mean"] = Estimate(float(x[0]), n=1) if n == 1 else Estimate.missing(why, n=n)
+        for name in ("sd", "relative_variability"):
             est[name] = Estimate.missing(why, n=n)
-    if n == 1:
-        est["mean"] = Estimate(float(x[0]), n=1)
     diffs, gaps = successive_differences(series)
     pairs = len(diffs)
     rule = f"pairs on the same study day at most {m.max_gap_hours:g} h apart"

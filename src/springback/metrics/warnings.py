@@ -23,6 +23,8 @@ in time series illustrated using simulated ecological data", PLoS ONE 7:e41010; 
    Item correlations use multivariate phase surrogates only (shared phases keep the items'
    cross-correlation; Prichard & Theiler 1994).
 6. Sensitivity: the same test over every window share x bandwidth in the settings.
+   `warning_robustness` is the share of those settings in which carry-over or variance rose
+   significantly (p < alpha); `warning_robustness_inertia` and `_variance` give each alone.
 """
 
 from __future__ import annotations
