@@ -198,3 +198,26 @@ def test_too_short_series_gives_reasons():
     fam = early_warnings(prepare(participant(hours, np.sin(hours)), settings), settings, "p09")
     est = fam.estimates["warning_tau_inertia"]
     assert est.value is None and "at least 40 answers" in est.note
+
+
+@pytest.mark.parametrize("method", ["linear", "none"])
+def test_other_detrending_runs_one_grid_row_per_window(method):
+    """Check linear and no detrending give one grid row per window share, no bandwidth."""
+    rng = np.random.default_rng(12)
+    hours = prompt_hours(30, 5, rng)
+    x = simulate_ou(hours, 0.3, 1.0, 3.0, rng) + hours / 24 * 0.05
+    settings = settings_for(surrogates=19, detrend=method, window=0.45)
+    fam = early_warnings(prepare(participant(hours, x, rng=rng), settings), settings, "p10")
+    grid = fam.tables["grid"]
+    assert len(grid) == 5 and grid["bandwidth_days"].isna().all()
+    assert fam.params["bandwidth_days"] is None
+    assert fam.estimates["warning_tau_variance"].ok
+    # The main window (0.45) is not in the grid, so it is computed on its own.
+    assert 0.45 not in grid["window"].tolist()
+    # Linear detrending leaves residuals without a straight-line trend (OLS residuals are
+    # orthogonal to time); no detrending only centres the series.
+    resid = rl.detrend(hours, x, method, None)
+    if method == "linear":
+        assert abs(np.polyfit(hours, resid, 1)[0]) < 1e-12
+    else:
+        np.testing.assert_allclose(resid, x - x.mean())
