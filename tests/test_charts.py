@@ -183,6 +183,9 @@ def test_svg_has_title_and_desc_as_direct_children(charts, key):
     assert root.get("aria-labelledby") == children[0].get("id")
     assert len(chart.description) > 40
     assert float(root.get("width")) <= WIDTH + 1
+    # Only the root carries a role or ARIA (axe: nested graphics roles need their own names).
+    inner = [el for el in root.iter() if el is not root]
+    assert not any(n == "role" or n.startswith("aria-") for el in inner for n in el.attrib)
 
 
 def test_ids_are_unique_across_one_participants_charts(charts):

@@ -133,6 +133,10 @@ def finish_svg(raw: str, key: str, title: str, description: str) -> str:
                 elif name in ("href", f"{{{XLINK_NS}}}href") and value.startswith("#"):
                     element.set(name, "#" + renamed.get(value[1:], value[1:]))
     for element in root.iter():
+        # Vega marks its groups with graphics roles and English role descriptions; inside an
+        # image they are noise (axe: svg-img-alt), and the root's own name says everything.
+        for name in [n for n in element.attrib if n == "role" or n.startswith("aria-")]:
+            del element.attrib[name]
         # Plain tag names with one xmlns on the root serialise without ns0: prefixes; SVG 2
         # takes a plain href, which HTML parsers know (an xlink prefix they might not).
         element.tag = element.tag.removeprefix(f"{{{SVG_NS}}}")
