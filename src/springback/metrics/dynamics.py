@@ -12,6 +12,9 @@ Var(e) = sigma^2 (1 - e^{-2 kappa dt}), sigma^2 the stationary variance (e.g. Ga
 why the real intervals matter). kappa, mu and sigma^2 are fitted by maximum likelihood over the
 admissible pairs (conditional on each pair's first answer); the interval for kappa comes from
 the profile likelihood (chi-square, 1 df). Half-life = ln 2 / kappa.
+
+Minimum data: `metrics.min_pairs` admissible pairs (default 30), a reporting minimum that is a
+design choice (METHODS.md §1 edge cases), not a published rule.
 """
 
 from __future__ import annotations

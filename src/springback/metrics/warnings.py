@@ -25,6 +25,9 @@ in time series illustrated using simulated ecological data", PLoS ONE 7:e41010; 
 6. Sensitivity: the same test over every window share x bandwidth in the settings.
    `warning_robustness` is the share of those settings in which carry-over or variance rose
    significantly (p < alpha); `warning_robustness_inertia` and `_variance` give each alone.
+
+Minimum data: windows of at least `min_window_prompts` answers (default 20) and at least
+MIN_TREND_WINDOWS usable windows; both are design choices, not published rules.
 """
 
 from __future__ import annotations
