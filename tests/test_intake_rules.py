@@ -308,3 +308,19 @@ def test_long_layout_repeats_and_unknown_items(tmp_path: Path) -> None:
     assert study.momentary["sad"].iloc[0] == 3.0 and math.isnan(study.momentary["sad"].iloc[1])
     assert study.momentary["calm"].tolist() == [5.0, 2.0, 6.0]
     assert list(study.set_aside["row"]) == [4, 5, 6]
+
+
+def test_unopenable_file_is_reported(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Check that a file the system refuses to open gives a problem, not a traceback."""
+    root = make_project(tmp_path / "study")
+    real = Path.read_bytes
+
+    def refuse(self: Path) -> bytes:
+        if self.name == "momentary.csv":
+            raise PermissionError(13, "Permission denied")
+        return real(self)
+
+    monkeypatch.setattr(Path, "read_bytes", refuse)
+    assert [p.message() for p in check_study(root).problems] == [
+        "data/momentary.csv: the file cannot be opened: Permission denied. Fix: check that "
+        "you may read it and that no other program locks it"]

@@ -63,10 +63,16 @@ def read_table(path: Path, where: str, *, sheet: str | None = None) -> Table:
                                code="empty-file")])
     notes: list[Problem] = []
     labels: dict[str, dict[Any, str]] = {}
-    if kind == "CSV":
-        frame = _read_csv(path, where, notes)
-    else:
-        frame, labels = _read_binary(path, where, kind, sheet)
+    try:
+        if kind == "CSV":
+            frame = _read_csv(path, where, notes)
+        else:
+            frame, labels = _read_binary(path, where, kind, sheet)
+    except OSError as exc:
+        raise DataError([error(
+            where, f"the file cannot be opened: {exc.strerror or exc}",
+            fix="check that you may read it and that no other program locks it",
+            code="unreadable")]) from None
     frame.columns = [str(c).strip() for c in frame.columns]
     _check_header(frame, where)
     return Table(where, path, frame.reset_index(drop=True), labels, tuple(notes))
