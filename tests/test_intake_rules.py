@@ -324,3 +324,12 @@ def test_unopenable_file_is_reported(tmp_path: Path, monkeypatch: pytest.MonkeyP
     assert [p.message() for p in check_study(root).problems] == [
         "data/momentary.csv: the file cannot be opened: Permission denied. Fix: check that "
         "you may read it and that no other program locks it"]
+
+
+def test_named_optional_file_missing_is_a_warning(tmp_path: Path) -> None:
+    """Check that an events file named in study.toml but absent warns; at the default, silence."""
+    named = make_project(tmp_path / "named", extra_toml='[data]\nevents = "data/evnts.csv"\n')
+    assert [p.message() for p in check_study(named).problems] == [
+        "data/evnts.csv: the events file is missing; the study goes on without events. "
+        "Fix: correct events under [data], or remove the line"]
+    assert check_study(make_project(tmp_path / "default")).problems == ()

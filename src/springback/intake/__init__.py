@@ -112,8 +112,13 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
         if path is None:
             return None
         full = _path(project, path)
-        optional = key in ("events", "questionnaires") and key not in data.model_fields_set
-        if optional and not full.exists():
+        if key in ("events", "questionnaires") and not full.exists():
+            # Optional files: silently skipped at their default place, but a path the study
+            # names itself that leads nowhere is worth a word (it may be a typo).
+            if key in data.model_fields_set:
+                sink.add(warning(path.as_posix(), f"the {key} file is missing; the study "
+                                 f"goes on without {key}", fix=f"correct {key} under [data], "
+                                 "or remove the line", code="missing-optional-file"))
             return None
         try:
             got = read_table(full, path.as_posix(), sheet=data.sheet)
