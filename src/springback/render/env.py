@@ -83,7 +83,8 @@ def _cell_filter(
         if isinstance(value, int) or (isinstance(value, float) and float(value).is_integer()):
             return env.filters["number"](value, 0)
         if isinstance(value, float):
-            return env.filters["number"](value, 2)
+            # small values (p-values, shares) keep a third decimal so they never read as 0
+            return env.filters["number"](value, 3 if abs(value) < 0.1 else 2)
         if hasattr(value, "item"):  # numpy scalars
             return cell(value.item())
         return str(value)
