@@ -270,6 +270,8 @@ def send(project: Path, *, dry_run: bool = False, eml_dir: Path | None = None,
         ) if todo else ({}, (), None)
         run = _Run(dirs.root, settings, dry_run, eml_dir, context, environ, progress)
         outcomes += run.go(todo, phrases)
+    order = {(m.participant, m.edition): i for i, m in enumerate(items)}
+    outcomes.sort(key=lambda o: order[(o.participant, o.edition)])
     return SendReport(the_plan.build, dry_run, tuple(outcomes), refused, new, written,
                       eml_dir if dry_run else None)
 
