@@ -122,3 +122,12 @@ def test_subjects_hide_ids_and_can_be_dropped(tmp_path: Path) -> None:
     assert audit.drop_subject(archive, "P07") == token
     assert "P07" not in (archive / audit.SUBJECTS).read_text(encoding="utf-8")
     assert audit.subject(archive, "P07", create=True) != token
+
+
+@pytest.mark.parametrize("name", [audit.LOG, audit.HEAD])
+def test_deleted_log_or_head_is_caught(tmp_path: Path, name: str) -> None:
+    """Check that removing the whole log, or its head record, is reported."""
+    archive = _log(tmp_path, 2)
+    (archive / name).unlink()
+    problems = audit.check_chain(archive)
+    assert [p.file for p in problems] == ["archive/audit.head.json"]
