@@ -120,3 +120,30 @@ def test_example_project_loads_without_errors() -> None:
     assert report.study is not None
     assert len(report.study.momentary) > 0
     assert {f: hashlib.sha256(f.read_bytes()).hexdigest() for f in files} == before
+
+
+@pytest.mark.parametrize("fmt", ["xlsx", "parquet", "sav"])
+def test_example_in_other_formats_loads_identically(example_copy: Path, fmt: str) -> None:
+    """Check that the example's data written as XLSX, Parquet or SAV load to the CSV's frames."""
+    import pyreadstat
+
+    root = example_copy
+    toml = (root / "study.toml").read_text(encoding="utf-8")
+    for name in ("momentary", "participants"):
+        frame = pd.read_csv(root / "data" / f"{name}.csv", dtype={"participant": str})
+        target = root / "data" / f"{name}.{fmt}"
+        if fmt == "xlsx":
+            frame.to_excel(target, index=False)
+        elif fmt == "parquet":
+            frame.to_parquet(target, index=False)
+        else:
+            pyreadstat.write_sav(frame, str(target))
+        (root / "data" / f"{name}.csv").unlink()
+        assert f'"data/{name}.csv"' in toml
+        toml = toml.replace(f'"data/{name}.csv"', f'"data/{name}.{fmt}"')
+    (root / "study.toml").write_text(toml, encoding="utf-8")
+    other, csv = load_study(root), load_study(EXAMPLE)
+    for name in ("momentary", "roster", "events", "questionnaires", "quality", "set_aside"):
+        pd.testing.assert_frame_equal(getattr(other, name).drop(columns="file", errors="ignore"),
+                                      getattr(csv, name).drop(columns="file", errors="ignore"),
+                                      obj=name)
