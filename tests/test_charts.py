@@ -469,3 +469,40 @@ def test_weasyprint_draws_the_svg_as_a_figure_with_alt_text(charts):
 
     walk(pdf.Root.StructTreeRoot)
     assert alts == [f"{c.title}: {c.description}" for c in chosen]
+
+
+def test_a_thin_participant_gets_sensible_charts():
+    """Check two days of answers, no events, one questionnaire score and better-is-higher."""
+    settings = StudySettings.model_validate({
+        "study": {"timezone": ZONE},
+        "items": {"calm": {"scale": [0, 10]}},
+        "composites": {"wellbeing": {"items": ["calm"], "higher_is": "better"}},
+        "questionnaires": {"phq9": {"range": [0, 27], "bands": [[0, "minimal"], [5, "mild"]]}},
+    })
+    times = pd.to_datetime(["2026-05-04 09:00", "2026-05-04 20:00", "2026-05-05 13:00"]
+                           ).tz_localize(ZONE)
+    series = pd.DataFrame({"local_time": times, "value": [6.0, 7.0, 5.0]})
+    daily = pd.DataFrame({"study_day": pd.to_datetime(["2026-05-04", "2026-05-05"]),
+                          "mean": [6.5, 5.0], "sd": [0.7, np.nan], "n": [2, 1],
+                          "scheduled": [np.nan, np.nan]})
+    families = {
+        "descriptives": Family(tables={"series": series, "daily": daily},
+                               params={"typical_low": np.nan, "typical_high": np.nan}),
+        "questionnaires": Family(
+            estimates={"reliable_change_phq9": Estimate.missing("one score only")},
+            tables={"scores_phq9": pd.DataFrame({"local_time": times[:1], "score": [4.0],
+                                                 "band": ["minimal"]})}),
+    }
+    results = ParticipantResults("p02", "wellbeing", families, enough_data=False, reason="few")
+    empty = pd.DataFrame()
+    data = ParticipantData("p02", "nl", "default", "yes", True, False, empty, empty, empty,
+                           empty, empty)
+    charts = make_charts(data, results, settings, "nl", lambda s: s)
+    assert set(charts) == {"mood", "calendar", "questionnaire_phq9"}
+    mood = charts["mood"]
+    assert "higher means better" in mood.svg
+    assert "typical range" not in mood.description and "Events" not in mood.description
+    assert charts["calendar"].description == (
+        "You answered 3 prompts over 2 days. You answered on every day.")
+    assert ">2<" in charts["calendar"].svg  # answered only: no prompts-per-day known
+    assert "once, on 4 mei: score 4 (minimal)" in charts["questionnaire_phq9"].description

@@ -70,6 +70,9 @@ def mood_chart(ctx: Inputs) -> Chart | None:
     n_events = 0
     events = _events(ctx)
     if events is not None:
+        first, last = x["scale"]["domain"]
+        events = events[(events["t"] >= first) & (events["t"] < last)]
+    if events is not None and len(events):
         n_events = len(events)
         kinds = list(dict.fromkeys(sorted(events["kind"])))
         shapes = dict(zip(kinds, EVENT_SHAPES, strict=False))
@@ -150,13 +153,17 @@ def _events(ctx: Inputs) -> pd.DataFrame | None:
     events = ctx.data.events
     if events is None or len(events) == 0 or "local_time" not in events.columns:
         return None
-    kinds = events["kind"].astype(str).fillna("")
+    kinds = events["kind"].astype(object).where(events["kind"].notna(), "").astype(str)
+    kinds = kinds.where(kinds.str.strip() != "", _("other events"))
     order = kinds.value_counts().sort_index().sort_values(ascending=False, kind="stable")
     keep = set(order.index[: len(EVENT_SHAPES) - 1]) if len(order) > len(EVENT_SHAPES) else None
     if keep is not None:
         kinds = kinds.where(kinds.isin(keep), _("other events"))
+    # Study days start at day_start (e.g. 04:00): a 02:00 event belongs to the day before.
+    hours, minutes = (int(p) for p in ctx.settings.study.day_start.split(":"))
+    shifted = ctx.wall_clock(events["local_time"]) - pd.Timedelta(hours=hours, minutes=minutes)
     return pd.DataFrame({"t": ctx.ms(events["local_time"]), "kind": kinds.to_numpy(),
-                         "day": ctx.wall_clock(events["local_time"]).dt.normalize()})
+                         "day": shifted.dt.normalize()})
 
 
 def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
@@ -305,24 +312,29 @@ def _calendar_description(ctx: Inputs, cells: pd.DataFrame) -> str:
     n_days = len(cells)
     answered = int(cells["answered"].sum())
     none = int((cells["answered"] == 0).sum())
+    parts = []
     if bool(cells["known"].all()):
         sent = int(cells["sent"].sum())
         full = int((cells["answered"] >= cells["sent"]).sum())
-        text = _("You answered {answered} of {sent} prompts ({share}) over {days} days.").format(
-            answered=answered, sent=sent, share=ctx.percent(answered / sent if sent else 0.0),
-            days=n_days)
-        text += " " + _("On {full} days you answered every prompt; on {none} days none.").format(
-            full=full, none=none)
-        return text
-    return _("You answered {answered} prompts over {days} days; on {none} days none.").format(
-        answered=answered, days=n_days, none=none)
+        parts.append(_("You answered {answered} of {sent} prompts ({share}) over {days} "
+                       "days.").format(answered=answered, sent=sent, days=n_days,
+                                       share=ctx.percent(answered / sent if sent else 0.0)))
+        parts.append(_("On {full} of these days you answered every prompt.").format(full=full))
+    else:
+        parts.append(_("You answered {answered} prompts over {days} days.").format(
+            answered=answered, days=n_days))
+    if none:
+        parts.append(_("On {none} days you answered none.").format(none=none))
+    else:
+        parts.append(_("You answered on every day."))
+    return " ".join(parts)
 
 
 def _calendar_table(ctx: Inputs, cells: pd.DataFrame, day_names: list[str]) -> pd.DataFrame:
     _ = ctx.gettext
     wide = cells.pivot(index="week", columns="wd", values="label")
     wide = wide.reindex(index=list(dict.fromkeys(cells["week"])), columns=range(7))
-    table = wide.fillna("").rename(columns=dict(enumerate(day_names)))
+    table = wide.astype(object).fillna("").rename(columns=dict(enumerate(day_names)))
     table.columns = [str(c) for c in table.columns]
     table.index.name = None
     return table.reset_index(names=_("Week starting"))
