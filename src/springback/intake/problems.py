@@ -78,8 +78,7 @@ def rows_list(rows: Sequence[int], limit: int = 6) -> str:
     rows = [int(r) for r in rows]
     if len(rows) == 1:
         return f"row {rows[0]}"
-    shown = ", ".join(str(r) for r in rows[: limit])
     if len(rows) > limit:
-        return f"rows {shown} and {len(rows) - limit} more"
+        return f"rows {', '.join(str(r) for r in rows[:limit])} and {len(rows) - limit} more"
     head, last = ", ".join(str(r) for r in rows[:-1]), rows[-1]
     return f"rows {head} and {last}"
