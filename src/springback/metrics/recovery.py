@@ -18,6 +18,7 @@ is the Kaplan & Meier 1958 product-limit median, which treats censored episodes 
 from __future__ import annotations
 
 import math
+import warnings
 
 import numpy as np
 import pandas as pd
@@ -200,12 +201,20 @@ def _pooled_estimate(aligned: pd.DataFrame, n_ep: int,
     if np.ptp(h) == 0:
         return Estimate.missing("no answers followed the upsets on the same day", n=n_ep), empty
     try:
-        a, k, k_lo, k_hi = fit_pooled(h, d)
+        with warnings.catch_warnings():
+            # An undefined covariance means no usable interval: treat it as a failed fit.
+            warnings.simplefilter("error", optimize.OptimizeWarning)
+            a, k, k_lo, k_hi = fit_pooled(h, d)
     except (RuntimeError, ValueError, optimize.OptimizeWarning):
         return Estimate.missing("the recovery curve could not be fitted", n=n_ep), empty
     if not (math.isfinite(k) and k > 0 and a > 0):
         return Estimate.missing("no return towards the usual level was seen after upsets",
                                 n=n_ep), empty
+    first = float(h[h > 0].min())
+    if math.log(2) / k < first / 2:
+        return Estimate.missing(
+            "ratings were back to usual faster than the time between prompts can show "
+            f"(first answer after an upset came after {first:.1f} h)", n=n_ep), empty
     if math.log(2) / k > h.max():
         return Estimate.missing(
             f"the fitted return is slower than the {h.max():.1f} h the episodes were followed, "
