@@ -221,3 +221,15 @@ def test_other_detrending_runs_one_grid_row_per_window(method):
         assert abs(np.polyfit(hours, resid, 1)[0]) < 1e-12
     else:
         np.testing.assert_allclose(resid, x - x.mean())
+
+
+def test_crosscorr_leaves_out_items_that_do_not_vary():
+    """Check a constant item is left out of the mean item correlation instead of spoiling it."""
+    rng = np.random.default_rng(13)
+    base = rng.normal(size=(60, 1))
+    items = np.hstack([base + 0.3 * rng.normal(size=(60, 1)), base, np.full((60, 1), 1.0)])
+    got = rl.window_crosscorr(items, np.array([0, 20]), np.array([39, 59]))[:, 0]
+    want = [stats.pearsonr(items[s:e + 1, 0], items[s:e + 1, 1]).statistic
+            for s, e in ((0, 39), (20, 59))]
+    np.testing.assert_allclose(got, want, rtol=1e-9)
+    assert np.isnan(rl.window_crosscorr(np.ones((30, 2)), np.array([0]), np.array([29]))[0, 0])

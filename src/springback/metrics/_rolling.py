@@ -139,7 +139,7 @@ def window_stats(p: Prefix, starts: np.ndarray, ends: np.ndarray) -> dict[str, n
 
 
 def window_crosscorr(items: np.ndarray, starts: np.ndarray, ends: np.ndarray) -> np.ndarray:
-    """Mean pairwise Pearson correlation between items in each window.
+    """Mean pairwise Pearson correlation between items in each window (defined pairs only).
 
     items: (n, q) for one series of q items, or (n, q, m) for m series; returns (windows, m).
     """
@@ -155,8 +155,12 @@ def window_crosscorr(items: np.ndarray, starts: np.ndarray, ends: np.ndarray) ->
     mean, sq, cross = win[:, :q], win[:, q:2 * q], win[:, 2 * q:]
     var = sq - mean * mean
     total = np.zeros((len(ends), items.shape[2]))
+    defined = np.zeros(total.shape)
     with np.errstate(invalid="ignore", divide="ignore"):
         for k, (i, j) in enumerate(pairs):
-            cov = cross[:, k] - mean[:, i] * mean[:, j]
-            total += cov / np.sqrt(var[:, i] * var[:, j])
-    return total / len(pairs)
+            r = (cross[:, k] - mean[:, i] * mean[:, j]) / np.sqrt(var[:, i] * var[:, j])
+            # An item that did not vary in a window has no correlation there: leave it out.
+            ok = np.isfinite(r) & (var[:, i] > 0) & (var[:, j] > 0)
+            total += np.where(ok, r, 0.0)
+            defined += ok
+        return np.where(defined > 0, total / defined, np.nan)

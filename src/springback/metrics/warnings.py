@@ -121,7 +121,8 @@ def _cell(series: Series, det: _Detrended, share: float, min_prompts: int) -> _C
     if len(used) < MIN_TREND_WINDOWS:
         return _Cell(share, det.bandwidth, len(ends), skipped, used=used, observed=obs,
                      reason=f"only {len(used)} of {len(ends)} rolling windows held at least "
-                            f"{min_prompts} answers; a trend needs {MIN_TREND_WINDOWS}")
+                            f"{min_prompts} answers (and 3 consecutive pairs); a trend needs "
+                            f"{MIN_TREND_WINDOWS}")
     tested = used[_thin(len(used))]
     sur = rl.window_stats(det.surrogates, starts[tested], ends[tested])
     tau, p, p_kind = {}, {}, {}
@@ -149,11 +150,14 @@ def _crosscorr(series: Series, method: str, bandwidth: float | None, cell: _Cell
     rolling = rl.window_crosscorr(resid, starts[cell.used], ends[cell.used])[:, 0]
     if len(cell.tested) == 0:
         return rolling, math.nan, math.nan, cell.reason
-    tau = float(kendall_tau_columns(rl.window_crosscorr(
-        resid, starts[cell.tested], ends[cell.tested]))[0])
+    observed = rl.window_crosscorr(resid, starts[cell.tested], ends[cell.tested])[:, 0]
+    keep = cell.tested[np.isfinite(observed)]
+    if len(keep) < MIN_TREND_WINDOWS:
+        return rolling, math.nan, math.nan, "the items did not vary enough within the windows"
+    tau = float(kendall_tau_columns(observed[np.isfinite(observed)])[0])
     rng = participant_rng(seed, pid, f"warnings/items/{method}/{bandwidth}")
     sur = phase_surrogates_multi(resid, n_sur, rng).transpose(1, 2, 0).astype(np.float32)
-    null = kendall_tau_columns(rl.window_crosscorr(sur, starts[cell.tested], ends[cell.tested]))
+    null = kendall_tau_columns(rl.window_crosscorr(sur, starts[keep], ends[keep]))
     return rolling, tau, surrogate_pvalue(tau, null), ""
 
 
