@@ -117,6 +117,15 @@ def test_fill_names_the_setting_of_a_bad_text(template: str, message: str) -> No
     assert str(info.value).startswith(message)
 
 
+def test_every_text_is_checked_before_anything_is_sent() -> None:
+    """Check that a bad placeholder in any language's text is found up front."""
+    mail.check_texts(settings())
+    bad = settings(therapist_body={"de": "Heft von {teilnehmer}"})
+    with pytest.raises(DeliveryError, match=r"^study\.toml: delivery\.therapist_body\.de: "
+                                            r"unknown placeholder \{teilnehmer\}"):
+        mail.check_texts(bad)
+
+
 def test_compose_builds_one_message_with_the_pdf() -> None:
     """Check headers, the filled text and the single PDF attachment."""
     msg = mail.compose(settings(), to="p01@example.net", language="nl", edition="participant",

@@ -247,6 +247,19 @@ def test_withdrawal_after_release_stops_sending(project: Path, server: Server) -
     assert ("p02@example.net", "booklet-v1.pdf") not in arrivals(server)
 
 
+def test_therapist_copy_needs_the_roster_to_say_yes_now(project: Path, server: Server) -> None:
+    """Check that a therapist copy is refused once the roster no longer says the person agreed."""
+    roster = project / "data" / "participants.csv"
+    roster.write_text(roster.read_text(encoding="utf-8").replace(
+        "P01,en,yes,yes,yes,north", "P01,en,yes,yes,no,north"), encoding="utf-8")
+    report = run(project)
+    assert ("P01", "therapist copy: the roster does not say the participant agreed") \
+        in report.refused
+    assert [(o.participant, o.edition) for o in report.outcomes] == [
+        ("P01", "participant"), ("P02", "participant")]
+    assert not [to for to, _ in arrivals(server) if to.startswith("dr.")]
+
+
 def test_a_changed_release_copy_is_refused(project: Path, server: Server) -> None:
     """Check that a file in out/release/ that differs from the archive is not sent."""
     target = project / "out" / "release" / "P02" / "participant.pdf"

@@ -214,6 +214,14 @@ def _history(archive: Path) -> dict[tuple[str, str, str], str]:
     return {k: ("attempt" if v == "unknown" else v) for k, v in out.items()}
 
 
+def _operator() -> str:
+    """The login name of whoever runs the sending (for the log)."""
+    try:
+        return getpass.getuser()
+    except (OSError, KeyError):  # no user name in this environment (some containers)
+        return "unknown"
+
+
 def _filename(item: Planned) -> str:
     if item.edition == "participant":
         return f"booklet-v{item.version}.pdf"
@@ -231,6 +239,7 @@ def send(project: Path, *, dry_run: bool = False, eml_dir: Path | None = None,
     if not EMAIL.fullmatch(parseaddr(settings.delivery.sender)[1]):
         raise DeliveryError("study.toml: delivery.sender must be the study's own address, "
                             "like 'Mood study <moodstudy@your-institution.example>'")
+    mail.check_texts(settings)
     if dry_run:
         eml_dir = check_private_place(dirs.root, settings, eml_dir or Path("outbox"),
                                       "the folder for .eml files")
@@ -292,7 +301,7 @@ class _Run:
         append(project_dirs(self.root).archive, "send", {
             "subject": token, "edition": item.edition, "recipient": item.edition,
             "version": item.version, "booklet_sha256": item.booklet_sha256,
-            "by": getpass.getuser(), **fields})
+            "by": _operator(), **fields})
 
     def go(self, todo: list[tuple[Planned, str, str]], phrases: dict[str, str]) -> list[Outcome]:
         outcomes: list[Outcome] = []

@@ -7,6 +7,7 @@ Public functions:
     protect_pdf(pdf: bytes, passphrase: str) -> bytes          # AES-256 (PDF 2.0 security, R=6)
     message_texts(settings, language, edition) -> tuple[str, str]   # subject and body templates
     fill(template: str, values: dict[str, str], where: str) -> str  # {placeholder} filling
+    check_texts(settings) -> None                   # every text of [delivery] fills cleanly
     compose(settings, *, to, language, edition, participant, version, attachment, filename)
         -> EmailMessage
     smtp_config(settings, root, environ=os.environ, context=None) -> SmtpConfig
@@ -129,6 +130,17 @@ def fill(template: str, values: Mapping[str, str], where: str) -> str:
         raise DeliveryError(f"{where}: unknown placeholder {{{unknown[0]}}}; the texts may use "
                             + ", ".join(f"{{{p}}}" for p in PLACEHOLDERS))
     return template.format_map(dict(values))
+
+
+def check_texts(settings: StudySettings) -> None:
+    """Fill every subject and message text once, so a mistake stops the run before any sending."""
+    values = text_values(settings, "P00", "1")
+    d = settings.delivery
+    for key, texts in (("subject", d.subject), ("body", d.body),
+                       ("therapist_subject", d.therapist_subject),
+                       ("therapist_body", d.therapist_body)):
+        for language, text in sorted(texts.items()):
+            fill(text, values, f"study.toml: delivery.{key}.{language}")
 
 
 def _contact_line(settings: StudySettings) -> str:
