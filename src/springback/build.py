@@ -95,14 +95,17 @@ def templates_hash(files: Iterable[Path]) -> str:
     return h.hexdigest()
 
 
-def fingerprint(data: ParticipantData, settings_digest: str, templates_digest: str) -> str:
-    """SHA-256 over one participant's data slice, the settings, the templates and the tool."""
+def fingerprint(
+    data: ParticipantData, settings_digest: str, templates_digest: str, period_end: Any = None
+) -> str:
+    """SHA-256 over one participant's data slice, the settings, the templates, the tool and
+    the study's end (silence rules look back from it)."""
     h = hashlib.sha256()
     for part in (data.momentary, data.events, data.questionnaires):
         h.update(frame_bytes(part))
     roster = f"{data.participant}|{data.language}|{data.region}|{data.consent}|"
     roster += f"{data.feedback}|{data.therapist}"
-    for text in (roster, settings_digest, templates_digest, __version__):
+    for text in (roster, settings_digest, templates_digest, __version__, str(period_end)):
         h.update(text.encode("utf-8") + b"\0")
     return h.hexdigest()
 
@@ -131,6 +134,8 @@ class Job:
     fingerprint: str
     version: int
     built_at: datetime
+    period_end: pd.Timestamp | None = None
+    """The study's last prompt or score: silence rules look back from here."""
 
 
 def run_job(job: Job) -> ParticipantOutcome:
@@ -159,7 +164,7 @@ def _run_job(job: Job) -> ParticipantOutcome:
     if data.consent != "yes":
         return ParticipantOutcome(status="withdrawn", reason="consent withdrawn", **base)
     results = metrics.compute(data, settings)
-    flags = safety.evaluate(data, results, settings)
+    flags = safety.evaluate(data, results, settings, period_end=job.period_end)
     state = review_state(job.project, pid, job.fingerprint, flags)
     common = dict(
         metrics_rows=metrics.results_rows(results),
@@ -253,6 +258,7 @@ def build(
     from springback.fsutil import BuildLock
     from springback.preflight import require_buildable
     from springback.runner import run_jobs
+    from springback.safety import study_end
 
     project = Path(project).resolve()
     study = intake.load_study(project)
@@ -266,12 +272,13 @@ def build(
         tmpl = template_files(project)
         s_hash, t_hash = settings_hash(settings), templates_hash(tmpl)
         previous = None if force else Previous.load(project)
+        end = study_end(study)
         jobs_list, reused = [], {}
         for pid in selected:
             data = study.slice(pid)
-            fp = fingerprint(data, s_hash, t_hash)
+            fp = fingerprint(data, s_hash, t_hash, end)
             version = archive.booklet_version(project, pid, fp)
-            job = Job(project, data, settings, fp, version, started)
+            job = Job(project, data, settings, fp, version, started, end)
             again = previous.outcome(job) if previous else None
             if again is not None:
                 reused[pid] = again
