@@ -14,7 +14,7 @@ import pytest
 from _delivery_server import PASSWORD, USER, smtp_server
 from springback import delivery_mail as mail
 from springback.errors import DeliveryError
-from springback.settings import from_mapping
+from springback.settings import from_mapping, load_settings
 
 RAW = {"items": {"sad": {"scale": [1, 7]}},
        "study": {"title": "Harbour Diary", "team": "Harbour Lab",
@@ -237,3 +237,24 @@ def test_transmit_tells_refused_from_unknown(tmp_path: Path) -> None:
         with pytest.raises(smtplib.SMTPServerDisconnected):
             smtp.noop()
         assert srv.recorder.received == []
+
+
+def test_example_delivery_section_works_when_uncommented(tmp_path: Path) -> None:
+    """Check that the commented [delivery] example in the example study is valid as written."""
+    example = Path(__file__).resolve().parents[1] / "example_project" / "study.toml"
+    text = example.read_text(encoding="utf-8")
+    head, _, section = text.partition("# [delivery]\n")
+    assert section, "the example study.toml lost its commented [delivery] section"
+    lines = ["[delivery]", *(line.removeprefix("#").removeprefix(" ")
+                             for line in section.splitlines())]
+    (tmp_path / "study.toml").write_text(head + "\n".join(lines) + "\n", encoding="utf-8")
+    s, _ = load_settings(tmp_path)
+    mail.check_texts(s)
+    assert s.delivery.contacts_file == Path("../private/contacts.csv")
+    for language, start in (("nl", "Beste deelnemer,"),
+                            ("de", "Liebe Teilnehmerin, lieber Teilnehmer,")):
+        msg = mail.compose(s, to="p@example.net", language=language, edition="participant",
+                           participant="P02", version="1", attachment=b"%PDF", filename="b.pdf")
+        body = msg.get_body().get_content()
+        assert body.startswith(start) and "Tidewater Mood Diary" in body
+        assert "{" not in body and "{" not in msg["Subject"]
