@@ -506,3 +506,26 @@ def test_a_thin_participant_gets_sensible_charts():
         "You answered 3 prompts over 2 days. You answered on every day.")
     assert ">2<" in charts["calendar"].svg  # answered only: no prompts-per-day known
     assert "once, on 4 mei: score 4 (minimal)" in charts["questionnaire_phq9"].description
+
+
+def test_big_designs_still_fit_an_a4_column(study):
+    """Check a 40-week calendar and a 7-window grid stay within the page column."""
+    from springback.charts.change import grid_chart
+    from springback.charts.mood import calendar_chart
+
+    data, results, settings = study
+    days = pd.date_range("2026-01-05", periods=280, freq="D")
+    daily = pd.DataFrame({"study_day": days, "mean": 3.0, "sd": 0.5, "n": 4, "scheduled": 5.0})
+    grid = pd.DataFrame([{"window": w, "bandwidth_days": b, "tau_inertia": 0.1,
+                          "p_inertia": 0.5, "tau_variance": -0.1, "p_variance": 0.5}
+                         for w in (0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8) for b in (3.0, 7.0)])
+    fams = dict(results.families)
+    fams["descriptives"] = replace(fams["descriptives"], tables={
+        **fams["descriptives"].tables, "daily": daily})
+    fams["warnings"] = replace(fams["warnings"], tables={"grid": grid})
+    ctx = Inputs(data, replace(results, families=fams), settings, "en", lambda s: s)
+    for chart in (calendar_chart(ctx), grid_chart(ctx)):
+        root = ET.fromstring(chart.svg)
+        assert float(root.get("width")) <= WIDTH + 1, chart.key
+        assert float(root.get("height")) <= 900, chart.key
+    assert len(calendar_chart(ctx).table) == 40

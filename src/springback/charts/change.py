@@ -241,8 +241,11 @@ def grid_chart(ctx: Inputs) -> Chart | None:
     bands = sorted(grid["bandwidth_days"].unique())
     window_names = {w: ctx.percent(float(w)) for w in windows}
     band_names = {b: ctx.num(float(b), 0 if float(b).is_integer() else 1) for b in bands}
-    panels = []
+    panels: list[dict[str, Any]] = []
     names = {"inertia": _("Carry-over"), "variance": _("Variance")}
+    # Two panels side by side while five windows fit; more windows stack them.
+    side_by_side = len(windows) <= 5
+    cell_w = 46 if side_by_side else min(46, (PLOT_WIDTH - 40) // len(windows))
     for which in ("inertia", "variance"):
         tau, p = grid[f"tau_{which}"].astype(float), grid[f"p_{which}"].astype(float)
         fills = [_tau_fill(v) for v in tau]
@@ -256,10 +259,11 @@ def grid_chart(ctx: Inputs) -> Chart | None:
         x = {"field": "w", "type": "ordinal", "sort": list(window_names.values()),
              "axis": {"title": _("Window (share of prompts)"), "labelAngle": 0}}
         y = {"field": "b", "type": "ordinal", "sort": list(band_names.values()),
-             "axis": {"title": _("Smoothing (days)") if not panels else None}}
+             "axis": {"title": _("Smoothing (days)") if not (panels and side_by_side)
+                      else None}}
         panels.append({
             "title": names[which], "data": {"values": records(cells)},
-            "width": 46 * len(windows), "height": 30 * len(bands),
+            "width": cell_w * len(windows), "height": 30 * len(bands),
             "layer": [
                 {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},
                  "encoding": {"x": x, "y": y,
@@ -269,7 +273,7 @@ def grid_chart(ctx: Inputs) -> Chart | None:
                               "fill": {"field": "ink", "type": "nominal", "scale": None}}},
             ],
         })
-    spec = {"hconcat": panels, "spacing": 24}
+    spec = {"hconcat" if side_by_side else "vconcat": panels, "spacing": 24}
     title = _("How much the trends depend on the analysis choices")
     description = _grid_description(ctx, grid, alpha)
     return Chart("grid", title, description,

@@ -25,6 +25,8 @@ EVENT_SHAPES = ("triangle-down", "diamond", "square", "cross", "triangle-up")
 """One shape per event kind (answers are circles); further kinds share the last shape."""
 HEIGHT = 260
 MAX_SHIFT_LABELS = 3
+CALENDAR_MAX_HEIGHT = 640
+"""Tallest calendar in px (about two thirds of an A4 page at the column width)."""
 
 
 def mood_chart(ctx: Inputs) -> Chart | None:
@@ -242,7 +244,10 @@ def calendar_chart(ctx: Inputs) -> Chart | None:
     weekdays = babel.dates.get_day_names("abbreviated", locale=ctx.locale)
     day_names = [weekdays[i] for i in range(7)]
     week_names = list(dict.fromkeys(cells["week"]))
-    cell_w, cell_h = 72, 32
+    # Long studies get flatter rows so the calendar stays on one page; below 28 px a row has
+    # no room for the day of the month as well (the week's start date is on the axis).
+    cell_w, cell_h = 72, min(32, max(18, CALENDAR_MAX_HEIGHT // len(week_names)))
+    roomy = cell_h >= 28
     x = {"field": "weekday", "type": "ordinal", "sort": day_names,
          "scale": {"domain": day_names, "paddingInner": 0.06},
          "axis": {"title": None, "orient": "top", "labelAngle": 0, "domain": False,
@@ -257,15 +262,18 @@ def calendar_chart(ctx: Inputs) -> Chart | None:
             {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},
              "encoding": {"x": x, "y": y, "fill": {"field": "fill", "type": "nominal",
                                                    "scale": None}}},
-            {"mark": {"type": "text", "fontSize": 14, "fontWeight": "bold", "dx": 8, "dy": 2},
+            {"mark": {"type": "text", "fontSize": 14 if roomy else 12, "fontWeight": "bold",
+                      "dx": 8 if roomy else 0, "dy": 2 if roomy else 0},
              "encoding": {"x": x, "y": y, "text": {"field": "label"},
-                          "fill": {"field": "ink", "type": "nominal", "scale": None}}},
-            {"mark": {"type": "text", "fontSize": 11, "align": "left", "baseline": "top",
-                      "dx": -cell_w / 2 + 5, "dy": -cell_h / 2 + 3},
-             "encoding": {"x": x, "y": y, "text": {"field": "dom"},
                           "fill": {"field": "ink", "type": "nominal", "scale": None}}},
         ],
     }
+    if roomy:
+        spec["layer"].append(
+            {"mark": {"type": "text", "fontSize": 11, "align": "left", "baseline": "top",
+                      "dx": -cell_w / 2 + 5, "dy": -cell_h / 2 + 3},
+             "encoding": {"x": x, "y": y, "text": {"field": "dom"},
+                          "fill": {"field": "ink", "type": "nominal", "scale": None}}})
     title = _("Which prompts you answered")
     description = _calendar_description(ctx, cells)
     table = _calendar_table(ctx, cells, day_names)
