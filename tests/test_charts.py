@@ -529,3 +529,15 @@ def test_big_designs_still_fit_an_a4_column(study):
         assert float(root.get("width")) <= WIDTH + 1, chart.key
         assert float(root.get("height")) <= 900, chart.key
     assert len(calendar_chart(ctx).table) == 40
+
+
+def test_a_translation_with_broken_placeholders_falls_back_to_english(study):
+    """Check that a catalogue entry with a mistyped {placeholder} cannot stop a booklet."""
+    data, results, settings = study
+
+    def sloppy(message: str) -> str:
+        return message.replace("{low}", "{lwo}").replace("Date", "Datum")
+
+    chart = make_charts(data, results, settings, "de", sloppy)["mood"]
+    assert chart.description.startswith("Your answers ranged from ")
+    assert "Datum" in chart.table.columns

@@ -9,7 +9,7 @@ from __future__ import annotations
 from collections.abc import Callable
 
 from springback.charts.change import grid_chart, recovery_chart, warnings_chart
-from springback.charts.common import Chart, Inputs
+from springback.charts.common import Chart, Inputs, checked_gettext
 from springback.charts.mood import calendar_chart, mood_chart
 from springback.charts.states import landscape_chart, load_chart, questionnaire_charts
 from springback.metrics.results import ParticipantResults
@@ -27,7 +27,7 @@ def make_charts(
     gettext: Callable[[str], str],
 ) -> dict[str, Chart]:
     """Build every chart that has data, keyed 'mood', 'calendar', ..., 'questionnaire_<q>'."""
-    ctx = Inputs(data, results, settings, language, gettext)
+    ctx = Inputs(data, results, settings, language, checked_gettext(gettext))
     charts: dict[str, Chart] = {}
     for build in (mood_chart, calendar_chart, recovery_chart, warnings_chart):
         chart = build(ctx)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import string
 from collections.abc import Callable
 from dataclasses import dataclass
 from functools import cached_property
@@ -175,6 +176,27 @@ class Inputs:
         """
         wall = self.wall_clock(times)
         return (wall.astype("datetime64[ms]").astype("int64")).to_numpy()
+
+
+def _fields(text: str) -> set[str] | None:
+    """The {placeholders} of a message, or None when it is not a valid format string."""
+    try:
+        return {name for _, name, _, _ in string.Formatter().parse(text) if name is not None}
+    except ValueError:
+        return None
+
+
+def checked_gettext(gettext: Callable[[str], str]) -> Callable[[str], str]:
+    """Wrap gettext so a translation with other {placeholders} than its source falls back.
+
+    A mistyped placeholder in a catalogue would otherwise stop a whole booklet with a
+    KeyError; the English sentence is the better failure.
+    """
+    def lookup(message: str) -> str:
+        translated = gettext(message)
+        return translated if _fields(translated) == _fields(message) else message
+
+    return lookup
 
 
 def _as_date(when: Any) -> Any:
