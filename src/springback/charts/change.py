@@ -33,6 +33,8 @@ def recovery_chart(ctx: Inputs) -> Chart | None:
     if aligned is None or episodes is None:
         return None
     aligned = aligned.dropna(subset=["hours", "deviation"])
+    if aligned.empty:
+        return None
     censored = dict(zip(episodes["episode"], episodes["censored"].astype(bool), strict=True))
     back, not_back = _("got back to usual"), _("not back before night or the end")
     lines = aligned.assign(status=[not_back if censored.get(e, False) else back

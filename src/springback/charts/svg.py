@@ -20,8 +20,9 @@ from springback.palette import CHART, FONT_FAMILY
 
 SVG_NS = "http://www.w3.org/2000/svg"
 XLINK_NS = "http://www.w3.org/1999/xlink"
-# No ET.register_namespace here: that registry is process-wide, and a default SVG namespace
-# registered in it stops WeasyPrint from drawing inline SVG at all.
+# ElementTree cannot be told to write SVG as the default namespace (it would write <ns0:svg>,
+# which HTML parsers, WeasyPrint's included, do not take for SVG); `finish_svg` therefore
+# strips the namespace from every tag and puts one xmlns on the root.
 
 WIDTH = 640
 """Outer width of every chart in CSS pixels: one A4 text column at 96 px per inch."""
