@@ -34,7 +34,7 @@ def compute(data: ParticipantData, settings: StudySettings) -> ParticipantResult
         f"{series.n} answered prompts; a booklet needs at least {settings.booklet.min_prompts}")
     families: dict[str, Family] = {}
     families["descriptives"] = descriptives.describe(series, data, settings)
-    families["dynamics"] = dynamics.carry_over(series, settings)
+    families["dynamics"] = dynamics.carry_over(series, settings, data.participant)
     families["recovery"] = recovery.bounce_back(series, data, settings)
     families["warnings"] = warnings.early_warnings(series, settings, data.participant)
     families["questionnaires"] = questionnaires.questionnaire_family(data.questionnaires, settings)

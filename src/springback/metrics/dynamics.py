@@ -1,7 +1,11 @@
 """Carry-over ("inertia") and the continuous-time recovery rate on irregular prompt times.
 
 Inertia: the lag-1 autocorrelation as Pearson's r on admissible pairs (two answers on the same
-study day at most `max_gap_hours` apart; never across a night), with a Fisher-z interval.
+study day at most `max_gap_hours` apart; never across a night), with a percentile interval from
+a bootstrap that resamples whole study days (pairs within a day are dependent, days nearly
+independent; Künsch 1989, "The jackknife and the bootstrap for general stationary
+observations", Ann Stat 17:1217-1241, on resampling blocks). The Fisher-z interval assumes
+independent pairs and was 25% too narrow at high carry-over in simulations.
 Kuppens, Allen & Sheeber 2010, "Emotional inertia and psychological maladjustment",
 Psychological Science 21:984-991 (the concept); METHODS.md §1 estimator (a).
 
@@ -27,8 +31,11 @@ from scipy import optimize, stats
 
 from springback.metrics._series import Series
 from springback.metrics.results import Estimate, Family
+from springback.metrics.surrogates import participant_rng
 from springback.settings import StudySettings
 
+BOOTSTRAP_RESAMPLES = 2000
+"""Day-block bootstrap resamples for the inertia interval (design choice; cheap: one matmul)."""
 LOG_KAPPA_BOUNDS = (math.log(1e-3), math.log(50.0))
 """Rates searched, per hour: half-lives from about 50 seconds to about four weeks."""
 CONFIDENCE = 0.95
@@ -43,13 +50,29 @@ def pearson(a: np.ndarray, b: np.ndarray) -> float:
     return float(da @ db / denom) if denom > 0 else float("nan")
 
 
-def fisher_interval(r: float, n: int, confidence: float = CONFIDENCE) -> tuple[float, float]:
-    """Fisher z interval for a correlation from n pairs (Fisher 1921)."""
-    if n <= 3 or not abs(r) < 1:
-        return float("nan"), float("nan")
-    z = math.atanh(r)
-    half = stats.norm.ppf(0.5 + confidence / 2) / math.sqrt(n - 3)
-    return math.tanh(z - half), math.tanh(z + half)
+def day_bootstrap_interval(x0: np.ndarray, x1: np.ndarray, day: np.ndarray,
+                           rng: np.random.Generator, resamples: int = BOOTSTRAP_RESAMPLES,
+                           confidence: float = CONFIDENCE) -> tuple[float, float]:
+    """Percentile interval of the pair correlation, resampling whole days with replacement.
+
+    Each day's pair sums are added once; a resample is a vector of day counts, so all
+    resamples are one (resamples x days) @ (days x 6) product.
+    """
+    _, which = np.unique(day, return_inverse=True)
+    parts = np.column_stack([np.ones_like(x0), x0, x1, x0 * x0, x1 * x1, x0 * x1])
+    sums = np.zeros((which.max() + 1, 6))
+    np.add.at(sums, which, parts)
+    n_days = len(sums)
+    picks = rng.integers(0, n_days, (resamples, n_days))
+    offsets = (np.arange(resamples) * n_days)[:, None]
+    counts = np.bincount((picks + offsets).ravel(), minlength=resamples * n_days).reshape(
+        resamples, n_days)
+    n, sa, sb, saa, sbb, sab = (counts @ sums).T
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r = (sab - sa * sb / n) / np.sqrt((saa - sa * sa / n) * (sbb - sb * sb / n))
+    tail = (1 - confidence) / 2 * 100
+    lo, hi = np.nanpercentile(r, [tail, 100 - tail])
+    return float(lo), float(hi)
 
 
 def ou_profile_loglik(log_kappa: float, x0: np.ndarray, x1: np.ndarray,
@@ -102,7 +125,7 @@ def fit_ou(x0: np.ndarray, x1: np.ndarray, dt: np.ndarray) -> dict[str, float]:
             "sigma2": sigma2, "loglik": loglik, "at_edge": float(at_edge)}
 
 
-def carry_over(series: Series, settings: StudySettings) -> Family:
+def carry_over(series: Series, settings: StudySettings, participant: str = "") -> Family:
     """Compute inertia (lag-1 r on admissible pairs) and the OU recovery rate and half-life."""
     m = settings.metrics
     ok = series.admissible
@@ -116,7 +139,8 @@ def carry_over(series: Series, settings: StudySettings) -> Family:
     est: dict[str, Estimate] = {"n_pairs": Estimate(float(n_pairs), n=n_pairs, note=rule)}
     params = {"max_gap_hours": m.max_gap_hours, "min_pairs": m.min_pairs, "pair_rule": rule,
               "inertia_estimator": "Pearson correlation on admissible pairs",
-              "inertia_interval": "Fisher z, 95%",
+              "inertia_interval": "95% percentile bootstrap over study days "
+                                  f"({BOOTSTRAP_RESAMPLES} resamples)",
               "rate_estimator": "Ornstein-Uhlenbeck maximum likelihood on irregular times",
               "rate_interval": "profile likelihood, 95%"}
     if n_pairs < m.min_pairs:
@@ -130,7 +154,8 @@ def carry_over(series: Series, settings: StudySettings) -> Family:
         for name in ("inertia", "recovery_rate_per_hour", "half_life_hours"):
             est[name] = Estimate.missing(why, n=n_pairs)
         return Family(estimates=est, tables={"pairs": pairs}, params=params)
-    lo, hi = fisher_interval(r, n_pairs)
+    rng = participant_rng(m.seed, participant, "inertia/bootstrap")
+    lo, hi = day_bootstrap_interval(x0, x1, series.day_index[:-1][ok], rng)
     est["inertia"] = Estimate(r, lo, hi, n=n_pairs,
                               note=f"lag-1 correlation over {rule}; median gap "
                                    f"{np.median(dt):.1f} h")
