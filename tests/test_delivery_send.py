@@ -23,6 +23,7 @@ from click.testing import CliRunner
 from _delivery_server import PASSWORD, USER, Server, smtp_server
 from conftest import copy_example
 from springback import delivery
+from springback.archive import verify
 from springback.audit import read_entries, subject
 from springback.cli import main
 from springback.errors import DeliveryError
@@ -155,6 +156,7 @@ def test_each_released_booklet_reaches_only_its_owner(project: Path, server: Ser
     assert first["booklet_sha256"] == manifest_files["out/booklets/P01/participant.pdf"]
     assert first["response"] == "250 2.0.0 Ok: queued as Q0001"
     assert first["time"].endswith("Z") and len(first["attachment_sha256"]) == 64
+    assert verify(project) == []  # the send entries keep the log's hash chain intact
 
 
 def test_a_rerun_sends_nothing_again(project: Path, server: Server) -> None:
@@ -288,6 +290,8 @@ def test_dry_run_writes_messages_outside_out_and_sends_nothing(project: Path,
     """Check .eml files in <project>/outbox/, nothing sent or logged, out/ refused for them."""
     with pytest.raises(DeliveryError, match="lies inside out/"):
         run(project, dry_run=True, eml_dir=project / "out" / "outbox")
+    with pytest.raises(DeliveryError, match="participant 'P99' is not in the latest build"):
+        run(project, dry_run=True, participants=["P99"])
     report = run(project, dry_run=True)
     assert report.eml_dir == project / "outbox"
     assert sorted(p.name for p in (project / "outbox").iterdir()) == [
