@@ -17,12 +17,13 @@ out/ and archive/, and are never written to any file there: the audit log's `sen
 the participant by their log token and the booklet by its hashes.
 
 Sending at most once. Before a message goes to the server a `send` entry with state 'attempt'
-is appended; after the server's answer, one with state 'sent' or 'refused' and the reply. A
-rerun skips every booklet with a 'sent' entry. If the process dies between the two entries,
-the server may or may not have accepted the message, so the booklet is 'unconfirmed': it is
-not sent again until a person has checked (the server's log, or asked the recipient) and reruns
-with `resend_unconfirmed`. We chose a possibly missing message, which the team notices in the
-report, over a possibly doubled one.
+is appended; after the server's answer, one with state 'sent' or 'refused' and the reply (or
+'unknown' when the connection broke while the message was on its way). A rerun skips every
+booklet with a 'sent' entry and sends again those refused. If the process dies between the two
+entries, or the state is 'unknown', the server may or may not have accepted the message, so
+the booklet is 'unconfirmed': it is not sent again until a person has checked (the server's
+log, or asked the recipient) and reruns with `resend_unconfirmed`. We chose a possibly missing
+message, which the team notices in the report, over a possibly doubled one.
 """
 
 from __future__ import annotations
