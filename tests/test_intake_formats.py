@@ -185,3 +185,14 @@ def test_corrupt_binary_files_are_reported(tmp_path: Path) -> None:
         (problem,) = report.problems
         assert problem.code == "unreadable"
         assert problem.what.startswith(f"the file cannot be read as {kind}: ")
+
+
+def test_parquet_zone_aware_times(tmp_path: Path, reference: Study) -> None:
+    """Check that zone-aware timestamps in Parquet keep their instant (any zone, here UTC)."""
+    aware = MOMENTARY.copy()
+    aware["timestamp"] = reference.momentary.set_index("source_row")["time"].reindex(
+        range(2, 2 + len(MOMENTARY))).to_numpy()
+    root = tmp_path / "study"
+    (root / "data").mkdir(parents=True)
+    aware.to_parquet(root / "data" / "momentary.parquet", index=False)
+    _same(reference, load_study(_project(root, ext="parquet")))
