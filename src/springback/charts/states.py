@@ -67,7 +67,7 @@ def _questionnaire_chart(ctx: Inputs, q: str) -> Chart | None:
     name = (spec_q.label.get(ctx.language) or spec_q.label.get("en") or q) if spec_q else q
     (low, high), bands = _bands(ctx, q)
     y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
-         "axis": {"title": _("{name} score").format(name=name)}}
+         "axis": {"title": _("Score")}}
     points = pd.DataFrame({"t": ctx.ms(scores["local_time"]), "v": scores["score"]})
     x = time_axis(ctx, _("Date"), points["t"].to_numpy(), pad_days=1)
     margin = int(min(170, 12 + CHAR_WIDTH * max((len(b[2]) for b in bands), default=0)))
