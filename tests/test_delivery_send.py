@@ -224,6 +224,21 @@ def test_server_refusal_midway_is_retried_once(project: Path, server: Server) ->
     assert arrivals(server) == EXPECTED
 
 
+def test_connection_lost_during_a_message_stops_the_run_safely(project: Path,
+                                                               server: Server) -> None:
+    """Check that a drop mid-message leaves it unconfirmed and the rest for the next run."""
+    server.recorder.drop_in_data = True
+    first = run(project)
+    assert [o.state for o in first.outcomes] == ["unconfirmed", "not attempted",
+                                                 "not attempted"]
+    assert [e["state"] for e in sends(project)] == ["attempt", "unknown"]
+    server.recorder.drop_in_data = False
+    second = run(project)
+    assert [o.state for o in second.outcomes] == ["unconfirmed", "sent", "sent"]
+    assert arrivals(server) == {k: v for k, v in EXPECTED.items()
+                                if k[0] != "p01@example.net"}
+
+
 def test_held_booklet_goes_only_after_approval(project: Path, server: Server) -> None:
     """Check that P08 is refused while held and sent once approved and released."""
     from springback.review import approve, release
