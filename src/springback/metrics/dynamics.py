@@ -17,6 +17,10 @@ why the real intervals matter). kappa, mu and sigma^2 are fitted by maximum like
 admissible pairs (conditional on each pair's first answer); the interval for kappa comes from
 the profile likelihood (chi-square, 1 df). Half-life = ln 2 / kappa.
 
+Both are computed on the deviations from the slow trend removed as for the early-warning
+indicators (`metrics.detrend`, `bandwidth_days`; 'none' keeps the raw ratings), so a gradual
+change of level is not read as slow recovery.
+
 Minimum data: `metrics.min_pairs` admissible pairs (default 30), a reporting minimum that is a
 design choice (METHODS.md §1 edge cases), not a published rule.
 """
@@ -29,6 +33,7 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
+from springback.metrics import _rolling as rl
 from springback.metrics._series import Series
 from springback.metrics.results import Estimate, Family
 from springback.metrics.surrogates import participant_rng
@@ -129,20 +134,27 @@ def carry_over(series: Series, settings: StudySettings, participant: str = "") -
     """Compute inertia (lag-1 r on admissible pairs) and the OU recovery rate and half-life."""
     m = settings.metrics
     ok = series.admissible
-    x0, x1 = series.value[:-1][ok], series.value[1:][ok]
+    # Carry-over is measured around the person's slowly moving level (the same detrending as
+    # the early-warning indicators): a gradual worsening is not slow recovery.
+    kernel = m.bandwidth_days * 24.0 if m.detrend == "gaussian" else None
+    resid = rl.detrend(series.hours, series.value, m.detrend, kernel) if series.n else \
+        series.value
+    x0, x1 = resid[:-1][ok], resid[1:][ok]
     dt = series.gaps[ok]
     n_pairs = len(dt)
     rule = f"pairs on the same study day at most {m.max_gap_hours:g} h apart"
     pairs = pd.DataFrame({"local_time": series.local_time.iloc[:-1][ok].reset_index(drop=True)
                           if series.n else series.local_time,
-                          "value": x0, "next_value": x1, "gap_hours": dt})
+                          "value": series.value[:-1][ok], "next_value": series.value[1:][ok],
+                          "gap_hours": dt, "deviation": x0, "next_deviation": x1})
     est: dict[str, Estimate] = {"n_pairs": Estimate(float(n_pairs), n=n_pairs, note=rule)}
     params = {"max_gap_hours": m.max_gap_hours, "min_pairs": m.min_pairs, "pair_rule": rule,
               "inertia_estimator": "Pearson correlation on admissible pairs",
               "inertia_interval": "95% percentile bootstrap over study days "
                                   f"({BOOTSTRAP_RESAMPLES} resamples)",
               "rate_estimator": "Ornstein-Uhlenbeck maximum likelihood on irregular times",
-              "rate_interval": "profile likelihood, 95%"}
+              "rate_interval": "profile likelihood, 95%",
+              "detrend": m.detrend, "bandwidth_days": m.bandwidth_days if kernel else None}
     if n_pairs < m.min_pairs:
         why = f"needs at least {m.min_pairs} consecutive pairs ({rule}); there were {n_pairs}"
         for name in ("inertia", "recovery_rate_per_hour", "half_life_hours"):
@@ -160,7 +172,7 @@ def carry_over(series: Series, settings: StudySettings, participant: str = "") -
                               note=f"lag-1 correlation over {rule}; median gap "
                                    f"{np.median(dt):.1f} h")
     fit = fit_ou(x0, x1, dt)
-    params.update(ou_mean=fit["mu"], ou_stationary_variance=fit["sigma2"])
+    params.update(ou_mean_deviation=fit["mu"], ou_stationary_variance=fit["sigma2"])
     if fit["at_edge"]:
         why = ("no measurable carry-over at these prompt intervals" if
                fit["kappa"] > 1 else "no return towards the usual level was seen")
