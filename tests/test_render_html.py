@@ -292,3 +292,30 @@ def test_prefixed_svg_is_made_readable_for_html() -> None:
     assert inline_svg(plain) == plain
     with pytest.raises(ValueError, match="must be an SVG image"):
         inline_svg('<html xmlns="http://www.w3.org/1999/xhtml"/>')
+
+
+def test_many_change_points_are_summarised() -> None:
+    """Check that more than three change points give one summary, not a paragraph each."""
+    data = sample_data()
+    results = sample_results(data)
+    days = pd.to_datetime(["2026-03-04", "2026-03-08", "2026-03-12", "2026-03-15", "2026-03-19"])
+    points = pd.DataFrame({"study_day": days, "direction": ["worse", "better"] * 2 + ["worse"],
+                           "size": [0.8, -0.6, 1.4, -0.9, 0.7], "method": "PELT",
+                           "exceeds_swings": True})
+    shifts = results.families["shifts"]
+    families = {**results.families,
+                "shifts": type(shifts)(estimates=shifts.estimates,
+                                       tables={"change_points": points})}
+    results = type(results)(results.participant, results.variable, families, True)
+    text = " ".join(parse(render_booklet("participant", data=data, results=results)).text.split())
+    assert "Your mood clearly changed 5 times during the study." in text
+    assert "It changed 3 times for the worse and twice for the better." in text
+    assert "The biggest change was around 12 March 2026, for the worse." in text
+    assert "Around 4 March 2026" not in text
+
+
+def test_results_are_never_called_abnormal(editions) -> None:
+    """Check that results are told against the person's own range, never as 'abnormal'."""
+    for html in editions.values():
+        text = parse(html).text.lower()
+        assert "abnormal" not in text and "typical range" in text
