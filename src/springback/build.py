@@ -83,8 +83,16 @@ def frame_bytes(df: pd.DataFrame) -> bytes:
     return buf.getvalue().encode("utf-8")
 
 
+BOOKLET_NEUTRAL_SETTINGS = ("delivery", "archive", "output")
+"""Settings sections that cannot change a booklet's content: editing them keeps its version."""
+
+
 def settings_hash(settings: StudySettings) -> str:
-    text = json.dumps(normalised(settings), sort_keys=True, ensure_ascii=False)
+    """SHA-256 of the settings a booklet depends on (normalised, key-sorted)."""
+    plain = normalised(settings)
+    for key in BOOKLET_NEUTRAL_SETTINGS:
+        plain.pop(key, None)
+    text = json.dumps(plain, sort_keys=True, ensure_ascii=False)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
