@@ -232,6 +232,11 @@ class Questionnaire(Section):
         0, ge=0, description="Items that may be missing; the total is prorated (mean x k)."
     )
     label: Text = Field(default_factory=dict, description="Name per language.")
+    band_labels: dict[str, list[str]] = Field(
+        default_factory=dict,
+        description="Band names per language, in the order of `bands` (e.g. nl = [\"minimaal\", "
+        "...]); bands without a translation show the label given in `bands`.",
+    )
     sudden_min_change: float | None = Field(
         None,
         description="Sudden gains/losses: smallest change between two scores (default: the "
@@ -424,6 +429,15 @@ class StudySettings(Section):
         labels = spec.label if spec else {}
         return labels.get(language) or labels.get("en") or variable.replace("_", " ")
 
+    def band_label(self, questionnaire: str, label: str, language: str) -> str:
+        """A questionnaire band's name in a language (the `bands` label when untranslated)."""
+        q = self.questionnaires[questionnaire]
+        names = q.band_labels.get(language, [])
+        for (_, name), translated in zip(q.bands, names, strict=False):
+            if name == label:
+                return translated
+        return label
+
     def referral_for(self, region: str, language: str) -> Referral | None:
         """The referral text for a region and language, falling back to region 'default'."""
         for wanted in (region, "default"):
@@ -563,6 +577,15 @@ def cross_checks(s: StudySettings) -> list[Problem]:
                       fix="list bands from the lowest score upwards, each [lower bound, label]",
                       code="bands-not-increasing")
             )
+        for language, names in q.band_labels.items():
+            if len(names) != len(q.bands):
+                out.append(
+                    error(where + f"questionnaires.{name}.band_labels.{language}",
+                          "there must be one band name per band",
+                          expected=f"{len(q.bands)} names", found=f"{len(names)}",
+                          fix="list a name for every band, in the order of `bands`",
+                          code="band-labels-count")
+                )
         if q.bands and not (q.range[0] <= bounds[0] <= q.range[1]):
             out.append(
                 error(where + f"questionnaires.{name}.bands",
