@@ -20,7 +20,7 @@ EVIL = "<script>alert(1)</script>"
 
 ZONE = "Europe/Amsterdam"
 BUILT = dt.datetime(2026, 3, 25, 9, 30, tzinfo=dt.UTC)
-CHART_KEYS = ("mood", "calendar", "recovery", "warnings", "grid", "landscape",
+CHART_KEYS = ("mood", "calendar", "recovery", "warnings", "grid", "landscape", "load",
               "questionnaire_phq9")
 
 

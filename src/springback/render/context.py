@@ -31,8 +31,8 @@ THERAPIST_SECTIONS = (
 """Section partials of the therapist edition, in order."""
 
 SECTION_CHARTS = {
-    "participation": ("calendar",), "mood": ("mood",), "bouncing_back": ("recovery",),
-    "change": ("warnings",), "sensitivity": ("grid",), "landscape": ("landscape", "load"),
+    "participation": ("calendar",), "mood": ("mood",), "bouncing_back": ("recovery", "load"),
+    "change": ("warnings",), "sensitivity": ("grid",), "landscape": ("landscape",),
     "questionnaires": ("questionnaire_",),
 }
 """Charts each section shows (a key ending in '_' stands for every key it starts)."""
