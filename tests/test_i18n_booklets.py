@@ -25,41 +25,54 @@ def _foreign_months(language: str) -> set[str]:
     return english - set(get_month_names("wide", locale=LOCALES[language]).values())
 
 
-class _AllText(HTMLParser):
-    """Every text a reader or screen reader meets: content, chart titles, alt and labels."""
+_VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source",
+         "track", "wbr"}
 
-    def __init__(self) -> None:
+
+class _AllText(HTMLParser):
+    """Every text a reader or screen reader meets: content, chart titles, alt and labels.
+
+    Text inside an element whose `lang` differs from the page's (say, a reference list marked
+    lang="en" in a German booklet) is declared as another language, so screen readers read it
+    right; with `marked_foreign=False` it is left out.
+    """
+
+    def __init__(self, marked_foreign: bool = True) -> None:
         super().__init__(convert_charrefs=True)
         self.parts: list[str] = []
         self.lang = ""
-        self._skip = 0
+        self.marked_foreign = marked_foreign
+        self._open: list[tuple[str, bool]] = []  # (tag, text inside is skipped)
+
+    def _skipping(self) -> bool:
+        return bool(self._open) and self._open[-1][1]
 
     def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        found = dict(attrs)
         if tag == "html":
-            self.lang = dict(attrs).get("lang") or ""
-        if tag in ("script", "style"):
-            self._skip += 1
-        for key, value in attrs:
-            if key in ("alt", "title", "aria-label") and value:
-                self.parts.append(value)
+            self.lang = found.get("lang") or ""
+        foreign = bool(found.get("lang")) and found.get("lang") != self.lang
+        skip = self._skipping() or tag in ("script", "style") or (
+            foreign and not self.marked_foreign)
+        if not skip:
+            self.parts += [v for k, v in attrs if k in ("alt", "title", "aria-label") and v]
+        if tag not in _VOID:
+            self._open.append((tag, skip))
 
     def handle_endtag(self, tag: str) -> None:
-        if tag in ("script", "style") and self._skip:
-            self._skip -= 1
+        if any(t == tag for t, _ in self._open):
+            while self._open and self._open.pop()[0] != tag:
+                pass
 
     def handle_data(self, data: str) -> None:
-        if not self._skip:
+        if not self._skipping():
             self.parts.append(data)
 
 
-REFERENCES = re.compile(r'<(ul|ol) class="references">.*?</\1>', re.S)
-
-
-def _read(path: Path, references: bool = True) -> _AllText:
-    """Parse a booklet; without `references`, reference lists (kept in English) are left out."""
-    html = path.read_text(encoding="utf-8")
-    parser = _AllText()
-    parser.feed(html if references else REFERENCES.sub("", html))
+def _read(path: Path, marked_foreign: bool = True) -> _AllText:
+    """Parse a booklet, with or without the parts marked as written in another language."""
+    parser = _AllText(marked_foreign)
+    parser.feed(path.read_text(encoding="utf-8"))
     return parser
 
 
@@ -116,7 +129,7 @@ def test_no_untranslated_english_in_dutch_and_german_booklets(booklets: list) ->
         if language == SOURCE_LANGUAGE:
             continue
         catalogue = translations(language)
-        text = " ".join(" ".join(_read(path).parts).split())
+        text = " ".join(" ".join(_read(path, marked_foreign=False).parts).split())
         for msgid, fragment in fragments:
             # Names and symbols kept in the translation are not leaks.
             if fragment in catalogue.gettext(msgid):
@@ -155,7 +168,7 @@ def test_no_english_sentences_in_dutch_and_german_booklets(booklets: list) -> No
     for _, language, path in booklets:
         if language != SOURCE_LANGUAGE:
             leaks += [f"{path.parent.name}/{path.name}: {text[:120]!r}"
-                      for text in _english_sentences(_read(path, references=False).parts)]
+                      for text in _english_sentences(_read(path, marked_foreign=False).parts)]
     assert leaks == []
 
 
@@ -180,19 +193,20 @@ def test_participant_edition_is_plain(booklets: list, language: str) -> None:
 
 
 def test_dates_and_numbers_follow_the_locale(booklets: list) -> None:
-    """Check for local month names, decimal commas in nl/de prose and no 12-hour clock."""
+    """Check for local month names, decimal commas in nl/de text and no 12-hour clock.
+
+    Parts marked as another language (lang="en" notes) keep that language's conventions.
+    """
     wrong = []
     for _, language, path in booklets:
-        prose = text_of_html(path.read_text(encoding="utf-8"))
-        everything = " ".join(" ".join(_read(path).parts).split())
+        text = " ".join(" ".join(_read(path, marked_foreign=False).parts).split())
         patterns = [r"\d\s?(AM|PM|a\.m\.|p\.m\.)"]
         if language != SOURCE_LANGUAGE:
             patterns += [rf"\b{m}\b" for m in sorted(_foreign_months(language))]
             # A decimal point between digits (not a version 0.1.0 nor a German date 03.03.26)
             patterns.append(r"(?<![\d.])\d+\.\d(?![\d.])")
-        for i, pattern in enumerate(patterns):
-            text = everything if i == 0 else prose
+        for pattern in patterns:
             for m in re.finditer(pattern, text):
-                context = " ".join(text[max(0, m.start() - 50): m.end() + 20].split())
+                context = text[max(0, m.start() - 50): m.end() + 20]
                 wrong.append(f"{path.parent.name}/{path.name}: {context!r}")
     assert wrong == []
