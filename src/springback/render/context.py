@@ -10,6 +10,7 @@ from typing import Any, Literal, Protocol, TypedDict
 
 import pandas as pd
 
+from springback import palette
 from springback.metrics.results import Estimate, ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import Referral, StudySettings
@@ -202,7 +203,7 @@ def build_context(
         alpha=float(_params(results, "warnings").get("alpha", settings.metrics.alpha)),
         large_print=settings.booklet.large_print,
         paper=settings.booklet.paper,
-        palette_css=_palette_css(),
+        palette_css=palette.css_variables(),
     )
 
 
@@ -356,9 +357,3 @@ def _questionnaires(
         )
     return views
 
-
-def _palette_css() -> str:
-    """CSS custom properties of the shared palette (springback.palette, shared with charts)."""
-    from springback import palette
-
-    return palette.css_variables()

@@ -8,6 +8,7 @@ from typing import Any
 
 import jinja2
 
+from springback import palette
 from springback.render.context import EDITIONS, BookletContext
 from springback.settings import StudySettings
 
@@ -44,11 +45,6 @@ def render_overview(
         built_at=built_at,
         large_print=False,
         paper=settings.booklet.paper,
-        palette_css=_palette_css(),
+        palette_css=palette.css_variables(),
     )
 
-
-def _palette_css() -> str:
-    from springback import palette
-
-    return palette.css_variables()
