@@ -541,3 +541,25 @@ def test_a_translation_with_broken_placeholders_falls_back_to_english(study):
     chart = make_charts(data, results, settings, "de", sloppy)["mood"]
     assert chart.description.startswith("Your answers ranged from ")
     assert "Datum" in chart.table.columns
+
+
+def test_clip_path_ids_from_vl_convert_become_stable_and_namespaced():
+    """Check that vl-convert's process-wide clip counters cannot reach the booklet.
+
+    Two conversions of the same clipped spec get different raw ids (clip1, clip2); after
+    `to_svg` both are identical and the ids carry the chart key.
+    """
+    import vl_convert
+
+    from springback.charts.svg import to_svg
+
+    spec = {"data": {"values": [{"x": 1, "y": 2}, {"x": 3, "y": 9}]},
+            "mark": {"type": "line", "clip": True}, "width": 100, "height": 50,
+            "encoding": {"x": {"field": "x", "type": "quantitative",
+                               "scale": {"domain": [0, 2]}},
+                         "y": {"field": "y", "type": "quantitative"}}}
+    raw = [vl_convert.vegalite_to_svg(spec) for _ in range(2)]
+    assert re.findall(r'id="([^"]+)"', raw[0]) != re.findall(r'id="([^"]+)"', raw[1])
+    first, second = (to_svg(spec, "trend", "T", "D", "en") for _ in range(2))
+    assert first == second
+    assert 'clip-path="url(#sb-trend-1)"' in first and 'id="sb-trend-1"' in first
