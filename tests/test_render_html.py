@@ -319,3 +319,17 @@ def test_results_are_never_called_abnormal(editions) -> None:
     for html in editions.values():
         text = parse(html).text.lower()
         assert "abnormal" not in text and "typical range" in text
+
+
+def test_editions_are_checked() -> None:
+    """Check that an unknown edition, or a context of the other edition, is refused."""
+    data = sample_data()
+    kwargs = dict(settings=sample_settings(), data=data, results=sample_results(data), flags=[],
+                  review_state="not needed", charts={}, language="en", version=1,
+                  built_at=BUILT, tool_version="0.1.0")
+    with pytest.raises(ValueError, match="edition must be one of"):
+        render.build_context(edition="summary", **kwargs)
+    context = render.build_context(edition="participant", **kwargs)
+    env = render.make_environment(None, "en")
+    with pytest.raises(ValueError, match="built for the participant edition"):
+        render.render_edition(env, context, "therapist")
