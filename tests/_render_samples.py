@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 from dataclasses import dataclass, replace
+from functools import cache
 from pathlib import Path
 from typing import Any
 
@@ -212,6 +213,12 @@ class SampleFlag:
     detail: str
 
 
+@cache
+def _environment(project_templates: Path | None) -> Any:
+    """One environment per template folder, so templates compile once per test session."""
+    return render.make_environment(project_templates, "en", timezone=ZONE)
+
+
 def render_booklet(edition: str, *, settings: StudySettings | None = None,
                    data: ParticipantData | None = None,
                    results: ParticipantResults | None = None, flags: tuple[Any, ...] = (),
@@ -223,7 +230,7 @@ def render_booklet(edition: str, *, settings: StudySettings | None = None,
     data = data or sample_data()
     results = results or sample_results(data)
     charts = {k: sample_chart(k) for k in CHART_KEYS} if charts is None else charts
-    env = render.make_environment(project_templates, "en", timezone=ZONE)
+    env = _environment(project_templates)
     ctx = render.build_context(
         settings=settings, data=data, results=results, flags=list(flags),
         review_state=review_state, charts=charts, edition=edition, language="en", version=3,
