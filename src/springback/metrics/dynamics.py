@@ -9,13 +9,23 @@ independent pairs and was 25% too narrow at high carry-over in simulations.
 Kuppens, Allen & Sheeber 2010, "Emotional inertia and psychological maladjustment",
 Psychological Science 21:984-991 (the concept); METHODS.md §1 estimator (a).
 
-Recovery rate: an Ornstein-Uhlenbeck process dX = -kappa (X - mu) dt + s dW sampled at
-irregular times has the exact transition X_j - mu = e^{-kappa dt}(X_i - mu) + e with
-Var(e) = sigma^2 (1 - e^{-2 kappa dt}), sigma^2 the stationary variance (e.g. Gardiner 2009,
-"Stochastic methods", §3.8.4; de Haan-Rietdijk et al. 2017, Frontiers in Psychology 8:1849 on
-why the real intervals matter). kappa, mu and sigma^2 are fitted by maximum likelihood over the
-admissible pairs (conditional on each pair's first answer); the interval for kappa comes from
-the profile likelihood (chi-square, 1 df). Half-life = ln 2 / kappa.
+Recovery rate: mood x(t) is an Ornstein-Uhlenbeck process dx = -kappa (x - mu) dt + s dW
+(Uhlenbeck & Ornstein 1930, "On the theory of the Brownian motion", Phys Rev 36:823, from
+memory) with stationary variance s2, and each answer is y = x + e with answer noise
+e ~ N(0, r2) (item noise in the composite). Over a gap dt the exact transition is
+x_j - mu = phi (x_i - mu) + w, phi = exp(-kappa dt), Var(w) = s2 (1 - phi^2) (Gardiner 2009,
+"Stochastic methods", §3.8.4). The exact likelihood of this state-space model on the real
+intervals comes from a Kalman filter by the prediction-error decomposition (Harvey 1989,
+"Forecasting, structural time series models and the Kalman filter", ch. 3, from memory); each
+run of admissible prompts starts from the stationary distribution, so nights are not bridged.
+mu and s2 are concentrated out in closed form; kappa and the noise ratio r2/s2 are found by
+Nelder-Mead from two starts; the interval for kappa is from the profile likelihood (chi-square,
+1 df). Half-life = ln 2 / kappa. Without the noise term, answer noise looks like fast
+recovery and half-lives come out too short (Oravecz, Tuerlinckx & Vandekerckhove 2011,
+"A hierarchical latent stochastic differential equation model for affective dynamics",
+Psychological Methods 16:468-490, OU with measurement error for ESM, from memory).
+When most of the variation is noise, or the rate runs to a search bound, the rate is not
+identified at these prompt intervals and is reported missing with the reason.
 
 Both are computed on the deviations from the slow trend removed as for the early-warning
 indicators (`metrics.detrend`, `bandwidth_days`; 'none' keeps the raw ratings), so a gradual
@@ -43,6 +53,11 @@ BOOTSTRAP_RESAMPLES = 2000
 """Day-block bootstrap resamples for the inertia interval (design choice; cheap: one matmul)."""
 LOG_KAPPA_BOUNDS = (math.log(1e-3), math.log(50.0))
 """Rates searched, per hour: half-lives from about 50 seconds to about four weeks."""
+LOG_RATIO_BOUNDS = (math.log(1e-4), math.log(20.0))
+"""Noise-to-signal variance ratios r2/s2 searched: noise shares from 0.01% to 95%."""
+MAX_NOISE_SHARE = 0.6
+"""Above this share of noise in the answers' variance the rate is not reported (design choice:
+the noise and a fast rate then trade off along a flat likelihood ridge in simulations)."""
 CONFIDENCE = 0.95
 
 
@@ -130,6 +145,133 @@ def fit_ou(x0: np.ndarray, x1: np.ndarray, dt: np.ndarray) -> dict[str, float]:
             "sigma2": sigma2, "loglik": loglik, "at_edge": float(at_edge)}
 
 
+def segments(hours: np.ndarray, y: np.ndarray, admissible: np.ndarray
+             ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Lay runs of admissible prompts out as rows, longest first: values, gaps, run lengths.
+
+    A run ends where a pair is not admissible (night, new study day, gap > max_gap_hours);
+    runs of one prompt carry no information on the rate and are left out. Longest first, the
+    runs still going at step k are the first rows, so the filter slices instead of masking.
+    """
+    if len(y) == 0:
+        return np.zeros((0, 0)), np.zeros((0, 0)), np.zeros(0, dtype=int)
+    seg = np.concatenate([[0], np.cumsum(~admissible)])
+    length = np.bincount(seg)
+    start = np.concatenate([[0], np.cumsum(length)[:-1]])
+    pos = np.arange(len(y)) - start[seg]
+    keep = length[seg] >= 2
+    runs = np.flatnonzero(length >= 2)
+    order = runs[np.argsort(-length[runs], kind="stable")]
+    row_of = np.empty(len(length), dtype=int)
+    row_of[order] = np.arange(len(order))
+    shape = (len(order), int(length[order].max()) if len(order) else 0)
+    values, gaps = np.zeros(shape), np.zeros(shape)
+    r, c = row_of[seg[keep]], pos[keep]
+    values[r, c] = y[keep]
+    gaps[r, c] = np.concatenate([[0.0], np.diff(hours)])[keep] * (c > 0)
+    return values, gaps, length[order]
+
+
+def _innovations(kappa: float, ratio: float, values: np.ndarray, gaps: np.ndarray,
+                 lengths: np.ndarray) -> tuple[float, float, float, float, int]:
+    """Run the Kalman filter of the scaled OU-plus-noise model over all runs at once.
+
+    The state is scaled by the stationary variance s2 and the noise variance is ratio * s2, so
+    the filter depends on (kappa, ratio) only. It is run on the data and on a constant 1 with a
+    zero mean: the innovations for mean mu are v_y - mu v_1 (both linear in the data with the
+    same gains), which profiles mu out by generalised least squares. Returns sum log f,
+    sum v_y^2/f, sum v_y v_1/f, sum v_1^2/f and the number of observations, f the scaled
+    innovation variance (Harvey 1989, prediction-error decomposition, from memory).
+    """
+    active = (lengths[None, :] > np.arange(values.shape[1])[:, None]).sum(axis=1)
+    a_y, a_1 = np.zeros(len(lengths)), np.zeros(len(lengths))
+    p = np.ones(len(lengths))
+    logf = yy = y1 = ones = 0.0
+    for k, n_k in enumerate(active):
+        a_y, a_1, p = a_y[:n_k], a_1[:n_k], p[:n_k]
+        if k:
+            phi = np.exp(-kappa * gaps[:n_k, k])
+            a_y, a_1 = phi * a_y, phi * a_1
+            p = phi * phi * p + (1.0 - phi * phi)
+        f = p + ratio
+        v_y, v_1 = values[:n_k, k] - a_y, 1.0 - a_1
+        w = 1.0 / f
+        logf -= float(np.log(w).sum())
+        wy, w1 = w * v_y, w * v_1
+        yy, y1, ones = yy + float(wy @ v_y), y1 + float(wy @ v_1), ones + float(w1 @ v_1)
+        a_y, a_1 = a_y + p * wy, a_1 + p * w1
+        p = p * ratio * w
+    return logf, yy, y1, ones, int(lengths.sum())
+
+
+def ou_noise_loglik(values: np.ndarray, gaps: np.ndarray, lengths: np.ndarray, kappa: float,
+                    mu: float, s2: float, r2: float) -> float:
+    """Exact Gaussian log-likelihood of OU (rate kappa, mean mu, variance s2) seen with noise r2.
+
+    Each run starts from the stationary distribution, so nights are never bridged.
+    """
+    logf, yy, y1, ones, n = _innovations(kappa, r2 / s2, values, gaps, lengths)
+    ssq = yy - 2.0 * mu * y1 + mu * mu * ones
+    return -0.5 * (n * math.log(2 * math.pi * s2) + logf + ssq / s2)
+
+
+def _concentrated(theta: np.ndarray, values: np.ndarray, gaps: np.ndarray,
+                  lengths: np.ndarray) -> tuple[float, float, float]:
+    """Log-likelihood at (log kappa, log noise ratio) with mu and s2 at their ML values."""
+    logf, yy, y1, ones, n = _innovations(math.exp(theta[0]), math.exp(theta[1]), values, gaps,
+                                         lengths)
+    mu = y1 / ones if ones > 0 else 0.0
+    s2 = (yy - mu * y1) / n
+    if not s2 > 0:
+        return float("-inf"), mu, s2
+    return -0.5 * (n * (math.log(2 * math.pi * s2) + 1.0) + logf), mu, s2
+
+def fit_ou_noise(values: np.ndarray, gaps: np.ndarray, lengths: np.ndarray,
+                 start_kappa: float) -> dict[str, float]:
+    """Fit OU plus answer noise by exact maximum likelihood; kappa with a profile interval."""
+    def neg(theta: np.ndarray) -> float:
+        ll = _concentrated(theta, values, gaps, lengths)[0]
+        return -ll if math.isfinite(ll) else 1e300
+
+    bounds = [LOG_KAPPA_BOUNDS, LOG_RATIO_BOUNDS]
+    lk0 = float(np.clip(math.log(start_kappa), *LOG_KAPPA_BOUNDS))
+    # The pure-OU rate is too fast when there is noise, so the second start is slower and
+    # noisier; the better of the two optima is kept.
+    starts = [(lk0, math.log(0.05)),
+              (max(lk0 + math.log(0.6), LOG_KAPPA_BOUNDS[0]), math.log(0.5))]
+    # Nelder-Mead rather than L-BFGS-B: same optimum, but L-BFGS-B's per-iteration BLAS calls
+    # cost about 5 ms each on a busy two-core machine (measured), Nelder-Mead 10 ms in all.
+    best = min((optimize.minimize(neg, np.array(s0), method="Nelder-Mead", bounds=bounds,
+                                  options={"xatol": 1e-4, "fatol": 1e-6})
+                for s0 in starts), key=lambda res: res.fun)
+    theta = best.x
+    loglik, mu, s2 = _concentrated(theta, values, gaps, lengths)
+
+    def profile(lk: float) -> float:
+        inner = optimize.minimize_scalar(lambda lr: neg(np.array([lk, lr])),
+                                         bounds=LOG_RATIO_BOUNDS, method="bounded",
+                                         options={"xatol": 1e-2})
+        return -min(float(inner.fun), neg(np.array([lk, LOG_RATIO_BOUNDS[0]])))
+
+    drop = stats.chi2.ppf(CONFIDENCE, 1) / 2.0
+    lo, hi = LOG_KAPPA_BOUNDS
+    at_edge = theta[0] <= lo + 1e-3 or theta[0] >= hi - 1e-3
+    lower = upper = float("nan")
+    if not at_edge:
+        def excess(lk: float) -> float:
+            return profile(lk) - (loglik - drop)
+
+        if excess(lo) < 0:
+            lower = math.exp(optimize.brentq(excess, lo, theta[0], xtol=1e-3))
+        if excess(hi) < 0:
+            upper = math.exp(optimize.brentq(excess, theta[0], hi, xtol=1e-3))
+    ratio = math.exp(theta[1])
+    return {"kappa": math.exp(theta[0]), "lower": lower, "upper": upper, "mu": mu, "s2": s2,
+            "r2": ratio * s2, "noise_share": ratio / (1.0 + ratio), "loglik": loglik,
+            "at_edge": float(at_edge),
+            "noise_at_edge": float(theta[1] >= LOG_RATIO_BOUNDS[1] - 1e-3)}
+
+
 def carry_over(series: Series, settings: StudySettings, participant: str = "") -> Family:
     """Compute inertia (lag-1 r on admissible pairs) and the OU recovery rate and half-life."""
     m = settings.metrics
@@ -152,8 +294,10 @@ def carry_over(series: Series, settings: StudySettings, participant: str = "") -
               "inertia_estimator": "Pearson correlation on admissible pairs",
               "inertia_interval": "95% percentile bootstrap over study days "
                                   f"({BOOTSTRAP_RESAMPLES} resamples)",
-              "rate_estimator": "Ornstein-Uhlenbeck maximum likelihood on irregular times",
+              "rate_estimator": "Ornstein-Uhlenbeck with answer noise, exact maximum "
+                                "likelihood by Kalman filter on irregular times",
               "rate_interval": "profile likelihood, 95%",
+              "max_noise_share": MAX_NOISE_SHARE,
               "detrend": m.detrend, "bandwidth_days": m.bandwidth_days if kernel else None}
     if n_pairs < m.min_pairs:
         why = f"needs at least {m.min_pairs} consecutive pairs ({rule}); there were {n_pairs}"
@@ -171,22 +315,42 @@ def carry_over(series: Series, settings: StudySettings, participant: str = "") -
     est["inertia"] = Estimate(r, lo, hi, n=n_pairs,
                               note=f"lag-1 correlation over {rule}; median gap "
                                    f"{np.median(dt):.1f} h")
-    fit = fit_ou(x0, x1, dt)
-    params.update(ou_mean_deviation=fit["mu"], ou_stationary_variance=fit["sigma2"])
-    if fit["at_edge"]:
-        why = ("no measurable carry-over at these prompt intervals" if
-               fit["kappa"] > 1 else "no return towards the usual level was seen")
+    # The pure-OU fit on the pairs gives the starting rate and the comparison in params.
+    pure = fit_ou(x0, x1, dt)
+    values, gaps, lengths = segments(series.hours, resid, ok)
+    fit = fit_ou_noise(values, gaps, lengths, pure["kappa"])
+    params.update(ou_mean_deviation=fit["mu"], ou_stationary_variance=fit["s2"],
+                  ou_noise_variance=fit["r2"], noise_share=fit["noise_share"],
+                  n_runs=int(values.shape[0]),
+                  half_life_without_noise_term=math.log(2) / pure["kappa"])
+    why = _unidentified(fit)
+    if why:
         est["recovery_rate_per_hour"] = Estimate.missing(why, n=n_pairs)
         est["half_life_hours"] = Estimate.missing(why, n=n_pairs)
     else:
         k, k_lo, k_hi = fit["kappa"], fit["lower"], fit["upper"]
-        note = "Ornstein-Uhlenbeck fit by maximum likelihood on the real intervals"
+        note = ("Ornstein-Uhlenbeck fit with answer noise by maximum likelihood on the real "
+                f"intervals; noise share {fit['noise_share']:.0%}")
         est["recovery_rate_per_hour"] = Estimate(
             k, _finite(k_lo), _finite(k_hi), n=n_pairs, note=note)
         est["half_life_hours"] = Estimate(
             math.log(2) / k, _finite(math.log(2) / k_hi), _finite(math.log(2) / k_lo),
             n=n_pairs, note=note + "; half-life = ln 2 / rate")
     return Family(estimates=est, tables={"pairs": pairs}, params=params)
+
+
+def _unidentified(fit: dict[str, float]) -> str:
+    """Plain reason why the fitted rate cannot be reported, or '' when it can."""
+    # A rate at a search bound, or a profile interval running into one, means the data are
+    # as likely under "no carry-over" (white noise at these intervals) or "no return".
+    if (fit["at_edge"] and fit["kappa"] > 1) or not math.isfinite(fit["upper"]):
+        return "no measurable carry-over at these prompt intervals"
+    if fit["at_edge"] or not math.isfinite(fit["lower"]):
+        return "no return towards the usual level was seen"
+    if fit["noise_at_edge"] or fit["noise_share"] > MAX_NOISE_SHARE:
+        return (f"about {fit['noise_share']:.0%} of the variation between answers looks like "
+                "answer noise, so how fast mood settles cannot be told apart from it")
+    return ""
 
 
 def _finite(value: float) -> float | None:
