@@ -242,7 +242,7 @@ def fit_ou_noise(values: np.ndarray, gaps: np.ndarray, lengths: np.ndarray,
     # Nelder-Mead rather than L-BFGS-B: same optimum, but L-BFGS-B's per-iteration BLAS calls
     # cost about 5 ms each on a busy two-core machine (measured), Nelder-Mead 10 ms in all.
     best = min((optimize.minimize(neg, np.array(s0), method="Nelder-Mead", bounds=bounds,
-                                  options={"xatol": 1e-4, "fatol": 1e-6})
+                                  options={"xatol": 1e-8, "fatol": 1e-10})
                 for s0 in starts), key=lambda res: res.fun)
     theta = best.x
     loglik, mu, s2 = _concentrated(theta, values, gaps, lengths)
