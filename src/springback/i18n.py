@@ -327,7 +327,6 @@ def catalogue_problems(
     return problems
 
 
-
 # -- Catalogue upkeep (implemented in springback.catalogues, which needs a source checkout) ----
 
 
