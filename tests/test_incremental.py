@@ -35,6 +35,12 @@ def test_rebuild_reuses_only_unchanged_participants(
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "1767225600")
     first = build(example_copy, participants=CHOSEN, jobs=1)
     assert not any(o.reused for o in first.outcomes)
+    # Files were written to disk as each participant finished; the report holds no bytes.
+    assert not any(o.files for o in first.outcomes)
+    built = [o for o in first.outcomes if o.status == "built"]
+    assert built
+    for o in built:
+        assert o.stored and all((first.out_dir / rel).is_file() for rel in o.stored)
     before = {p: p.read_bytes() for p in sorted(first.out_dir.rglob("*")) if p.is_file()}
 
     second = build(example_copy, participants=CHOSEN, jobs=1)

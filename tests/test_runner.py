@@ -7,6 +7,7 @@ from pathlib import Path
 
 import pytest
 
+from springback import runner
 from springback.build import build
 from springback.runner import run_jobs
 
@@ -22,6 +23,61 @@ def test_pool_returns_results_in_job_order() -> None:
     jobs = list(range(12))
     assert run_jobs(jobs, _square, jobs_n=2) == [x * x for x in jobs]
     assert run_jobs(jobs, _square, jobs_n=1) == [x * x for x in jobs]
+
+
+_WARMED: list[str] = []
+
+
+def _warm() -> None:
+    _WARMED.append("warm")
+
+
+def _warm_count(x: int) -> tuple[int, int]:
+    """The job's number and how often this worker process ran the initializer."""
+    return x, len(_WARMED)
+
+
+def test_pool_runs_the_initializer_once_per_worker() -> None:
+    """Check every spawn worker ran the initializer exactly once, before its first job."""
+    out = run_jobs(range(8), _warm_count, jobs_n=2, initializer=_warm, total=8)
+    assert [x for x, _ in out] == list(range(8))
+    assert {warmed for _, warmed in out} == {1}
+
+
+def _staged(x: int) -> int:
+    runner.stage("computing")
+    runner.stage("rendering")
+    return x
+
+
+def test_in_process_run_reports_stages_and_passes_each_result_on() -> None:
+    """Check in-process jobs report their stages, results pass on_result as they arrive, and
+    the finishing label comes from the result."""
+    heard: list[tuple[str, str]] = []
+    passed: list[int] = []
+
+    def keep(r: int) -> int:
+        passed.append(r)
+        return -r
+
+    out = run_jobs(
+        (x for x in (1, 2)), _staged, jobs_n=1, progress=lambda p, s: heard.append((p, s)),
+        name=str, on_result=keep, finished=lambda r: "failed" if r == -2 else "done",
+    )
+    assert out == [-1, -2] and passed == [1, 2]
+    assert heard == [("1", "computing"), ("1", "rendering"), ("1", "done"),
+                     ("2", "computing"), ("2", "rendering"), ("2", "failed")]
+    runner.stage("outside a job")  # heard by nobody, and no error
+
+
+def test_pool_reports_queued_then_finished_for_every_job() -> None:
+    """Check a pool reports each job queued and then finished (workers cannot report mid-job)."""
+    heard: list[tuple[str, str]] = []
+    run_jobs(list(range(5)), _staged, jobs_n=2, name=str,
+             progress=lambda p, s: heard.append((p, s)))
+    for x in map(str, range(5)):
+        mine = [s for p, s in heard if p == x]
+        assert mine == ["queued", "done"]
 
 
 def _digest(folder: Path) -> dict[str, str]:
@@ -51,5 +107,6 @@ def test_dask_cluster_build_equals_local_build(
         remote = build(other, participants=chosen, backend="dask",
                        scheduler=cluster.scheduler_address)
     assert [o.status for o in local.outcomes] == [o.status for o in remote.outcomes]
+    assert not any(o.files for o in remote.outcomes)  # streamed to disk as they arrived
     a, b = _digest(local.out_dir / "booklets"), _digest(remote.out_dir / "booklets")
     assert a and a == b

@@ -18,6 +18,7 @@ from typing import Any
 import pandas as pd
 
 from springback import __version__
+from springback.build_output import Previous, archive_staged, stage_files, write_files
 from springback.model import ParticipantData, Study
 from springback.settings import StudySettings, normalised
 
@@ -47,6 +48,13 @@ class ParticipantOutcome:
     flags: list[dict[str, Any]] = field(default_factory=list)
     reused: bool = False
     """True when nothing this participant's booklet depends on changed since the last build."""
+    stored: tuple[str, ...] = ()
+    """Files already written to the build's staging folder (paths relative to out/)."""
+
+    @property
+    def outputs(self) -> list[str]:
+        """Every output file of this participant, staged or still in memory."""
+        return sorted({*self.stored, *self.files})
 
 
 @dataclass(frozen=True)
@@ -63,13 +71,32 @@ class BuildReport:
         return [o for o in self.outcomes if o.status == "failed"]
 
     def counts(self) -> dict[str, int]:
-        out: dict[str, int] = {}
+        """Participants per summary line (see OUTCOME_LABELS), in that order, zeros left out."""
+        out = dict.fromkeys(OUTCOME_LABELS, 0)
         for o in self.outcomes:
-            key = "held" if o.status == "built" and o.review_state == "held" else o.status
-            if o.reused:
-                key = f"unchanged ({key})"
-            out[key] = out.get(key, 0) + 1
-        return out
+            out[summary_key(o)] += 1
+        return {k: n for k, n in out.items() if n}
+
+
+OUTCOME_LABELS = {
+    "built": "built",
+    "held": "built, held for review",
+    "unchanged": "skipped: unchanged since the last build",
+    "withdrawn": "withdrawn (no booklet)",
+    "no feedback": "no feedback wanted (no booklet)",
+    "not enough data": "not enough data (no booklet)",
+    "failed": "failed",
+}
+"""Summary lines of a build, in the order they are shown."""
+
+
+def summary_key(o: ParticipantOutcome) -> str:
+    """The summary line an outcome counts under."""
+    if o.reused:
+        return "unchanged"
+    if o.status == "built" and o.review_state == "held":
+        return "held"
+    return o.status if o.status in OUTCOME_LABELS else "failed"
 
 
 # ---------------------------------------------------------------------------------------
@@ -118,6 +145,13 @@ def fingerprint(
     return h.hexdigest()
 
 
+def catalogue_files() -> list[Path]:
+    """The compiled message catalogues: a changed translation changes the booklets too."""
+    from springback.i18n import LOCALE_DIR
+
+    return sorted(Path(LOCALE_DIR).rglob("*.mo"))
+
+
 def template_files(project: Path) -> list[Path]:
     """Every template file that can be used: packaged ones and the project's overrides."""
     from springback.render.env import template_search_path
@@ -130,6 +164,30 @@ def template_files(project: Path) -> list[Path]:
 
 # ---------------------------------------------------------------------------------------
 # Per participant
+
+WARM_CHART: dict[str, Any] = {
+    "data": {"values": [{"day": 0, "mood": 3.0}, {"day": 1, "mood": 4.0}]},
+    "mark": "line",
+    "encoding": {"x": {"field": "day", "type": "quantitative"},
+                 "y": {"field": "mood", "type": "quantitative"}},
+}
+
+
+def warm_engines() -> None:
+    """Start the chart engine and the PDF engine once in a worker process (pool initializer)."""
+    try:
+        import springback.metrics  # noqa: F401  (the statistics stack's import time)
+        from springback.charts.svg import to_svg
+        from springback.render import html_to_pdf
+
+        svg = to_svg(WARM_CHART, "warm", "Warm-up", "A two-point line.", "en")
+        html_to_pdf(
+            "<!doctype html><html lang='en'><head><meta charset='utf-8'><title>Warm-up</title>"
+            f"</head><body><p>Warm-up.</p>{svg}</body></html>",
+            base_url=Path.cwd(),
+        )
+    except Exception:  # a broken engine is reported by each participant's job, with the reason
+        return
 
 
 @dataclass(frozen=True)
@@ -164,6 +222,7 @@ def _run_job(job: Job) -> ParticipantOutcome:
     from springback import metrics, safety
     from springback.metrics.shifts import shift_rows
     from springback.review import review_state
+    from springback.runner import stage
 
     data, settings = job.data, job.settings
     pid = data.participant
@@ -171,6 +230,7 @@ def _run_job(job: Job) -> ParticipantOutcome:
             "period": _period(data)}
     if data.consent != "yes":
         return ParticipantOutcome(status="withdrawn", reason="consent withdrawn", **base)
+    stage("computing")
     results = metrics.compute(data, settings)
     flags = safety.evaluate(data, results, settings, period_end=job.period_end)
     state = review_state(job.project, pid, job.fingerprint, flags)
@@ -190,6 +250,7 @@ def _run_job(job: Job) -> ParticipantOutcome:
     editions = tuple(
         e for e in settings.booklet.editions if e == "participant" or data.therapist
     )
+    stage("rendering")
     files = render_booklets(job, results, flags, state, editions)
     return ParticipantOutcome(status="built", files=files, editions=editions, **common)
 
@@ -263,7 +324,7 @@ def build(
 ) -> BuildReport:
     """Build every selected participant's booklets, the study tables and the overview."""
     from springback import archive, intake
-    from springback.fsutil import BuildLock
+    from springback.fsutil import BuildLock, clean_stale, staging_dir
     from springback.preflight import require_buildable
     from springback.runner import run_jobs
     from springback.safety import study_end
@@ -274,113 +335,48 @@ def build(
     settings = study.settings
     out_dir = (project / (out or settings.output.out_dir)).resolve()
     archive_dir = project / settings.output.archive_dir
+    report = progress or (lambda _p, _s: None)
     with BuildLock(archive_dir):
         started = archive.build_time()
         selected = _select(study, participants)
         tmpl = template_files(project)
-        s_hash, t_hash = settings_hash(settings), templates_hash(tmpl)
+        s_hash, t_hash = settings_hash(settings), templates_hash(tmpl + catalogue_files())
         previous = None if force else Previous.load(project)
         end = study_end(study)
-        jobs_list, reused = [], {}
-        for pid in selected:
-            data = study.slice(pid)
-            fp = fingerprint(data, s_hash, t_hash, end)
-            version = archive.booklet_version(project, pid, fp)
-            job = Job(project, data, settings, fp, version, started, end)
-            again = previous.outcome(job) if previous else None
-            if again is not None:
-                reused[pid] = again
-            else:
-                jobs_list.append(job)
-        report = progress or (lambda _p, _s: None)
-        report("", f"start:{len(jobs_list)}")
-        fresh = run_jobs(
-            jobs_list, run_job, jobs_n=jobs, backend=backend, scheduler=scheduler,
-            progress=progress,
-        )
-        by_id = {**reused, **{o.participant: o for o in fresh}}
-        outcomes = [by_id[pid] for pid in selected]
-        report("", "writing the overview, tables and archive")
-        tables = study_tables(study, outcomes)
-        overview = render_overview(project, study, outcomes, started)
-        files = {**tables, "index.html": overview.encode("utf-8")}
-        for o in outcomes:
-            files.update(o.files)
-        ended = archive.build_time(now=True)
-        build_id = archive.write_build(
-            project, out_dir, files, study=study, outcomes=outcomes, started=started,
-            ended=ended, templates=tmpl,
-        )
+        clean_stale(out_dir.parent)
+        # Files go to disk as they arrive; the folder replaces out/ only once it is archived.
+        with staging_dir(out_dir) as staging:
+            report("", f"start:{len(selected)}")
+            jobs_list, reused = [], {}
+            for pid in selected:
+                data = study.slice(pid)
+                fp = fingerprint(data, s_hash, t_hash, end)
+                version = archive.booklet_version(project, pid, fp)
+                job = Job(project, data, settings, fp, version, started, end)
+                again = previous.outcome(job, staging) if previous else None
+                if again is not None:
+                    reused[pid] = again
+                    report(pid, "unchanged")
+                else:
+                    jobs_list.append(job)
+            fresh = run_jobs(
+                jobs_list, run_job, jobs_n=jobs, backend=backend, scheduler=scheduler,
+                progress=report, initializer=warm_engines,
+                on_result=lambda o: stage_files(o, staging),
+                finished=lambda o: "failed" if o.status == "failed" else "done",
+            )
+            by_id = {**reused, **{o.participant: o for o in fresh}}
+            outcomes = [by_id[pid] for pid in selected]
+            report("", "writing the overview, tables and archive")
+            tables = study_tables(study, outcomes)
+            overview = render_overview(project, study, outcomes, started)
+            write_files({**tables, "index.html": overview.encode("utf-8")}, staging)
+            ended = archive.build_time(now=True)
+            build_id = archive_staged(
+                project, out_dir, staging, study=study, outcomes=outcomes, started=started,
+                ended=ended, templates=tmpl,
+            )
     return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
-
-
-class Previous:
-    """The last archived build, for reusing participants whose inputs did not change."""
-
-    def __init__(self, project: Path, folder: Path, manifest: dict[str, Any]) -> None:
-        self.project = project
-        self.folder = folder
-        self.people: dict[str, dict[str, Any]] = manifest.get("participants", {})
-        self.rows = {name: _rows_by_participant(folder / "out" / name)
-                     for name in ("metrics.csv", "flags.csv", "shifts.csv")}
-
-    @classmethod
-    def load(cls, project: Path) -> Previous | None:
-        """The latest build's record, or None before the first build."""
-        from springback.archive import latest_manifest
-        from springback.fsutil import project_dirs
-
-        manifest = latest_manifest(project)
-        if not manifest:
-            return None
-        folder = project_dirs(project).archive / manifest["build"]
-        return cls(project, folder, manifest)
-
-    def outcome(self, job: Job) -> ParticipantOutcome | None:
-        """The participant's last outcome if nothing it depends on changed, else None."""
-        from springback.review import review_state
-
-        pid = job.data.participant
-        rec = self.people.get(pid)
-        if not rec or rec.get("fingerprint") != job.fingerprint or rec.get("status") not in (
-            "built", "no feedback", "not enough data", "withdrawn"
-        ):
-            return None
-        flags = list(rec.get("flags", []))
-        state = review_state(self.project, pid, job.fingerprint, flags)
-        if state != rec.get("review_state"):
-            return None  # the therapist edition shows the review state: render it anew
-        files: dict[str, bytes] = {}
-        for rel in rec.get("files", []):
-            path = self.folder / "out" / rel
-            if not path.is_file():
-                return None
-            files[rel] = path.read_bytes()
-        metrics_rows = self.rows["metrics.csv"].get(pid, [])
-        compliance = next((r["value"] for r in metrics_rows if r["measure"] == "compliance"), "")
-        editions = tuple(e for e in EDITIONS if f"{BOOKLETS}/{pid}/{e}.html" in files
-                         or f"{BOOKLETS}/{pid}/{e}.pdf" in files)
-        period = rec.get("period", {})
-        return ParticipantOutcome(
-            participant=pid, status=rec["status"], reason=rec.get("reason", ""), files=files,
-            metrics_rows=metrics_rows, flag_rows=self.rows["flags.csv"].get(pid, []),
-            shift_rows=self.rows["shifts.csv"].get(pid, []), review_state=state,
-            fingerprint=job.fingerprint, version=job.version,
-            period=(period.get("first", ""), period.get("last", "")),
-            compliance=float(compliance) if compliance not in ("", None) else None,
-            editions=editions, flags=flags, reused=True,
-        )
-
-
-def _rows_by_participant(path: Path) -> dict[str, list[dict[str, Any]]]:
-    """A study table's rows as exact strings, grouped by participant (empty if absent)."""
-    if not path.is_file():
-        return {}
-    df = pd.read_csv(path, dtype=str, keep_default_na=False)
-    out: dict[str, list[dict[str, Any]]] = {}
-    for row in df.to_dict("records"):
-        out.setdefault(row["participant"], []).append(row)
-    return out
 
 
 def _select(study: Study, participants: list[str] | None) -> list[str]:

@@ -139,18 +139,23 @@ def build(project: Path, out_dir: Path | None, participants: tuple[str, ...], jo
     out.print(f"Booklets are in {report.out_dir / 'booklets'}; the overview is "
               f"{report.out_dir / 'index.html'} (archived as build {report.build_id}).")
     if report.failed:
+        err.print(f"{len(report.failed)} participant(s) failed (reasons above); the others were "
+                  "built. Build again after fixing: unchanged participants are not redone.")
         sys.exit(2)
 
 
 def summary_table(report: Any) -> Table:
-    """The end-of-build summary: counts per outcome, and every failure with its reason."""
+    """The end-of-build summary: participants per outcome, and every failure with its reason."""
+    from springback.build import OUTCOME_LABELS
+
     table = Table(title="Build summary")
     table.add_column("outcome")
     table.add_column("participants", justify="right")
-    for key, n in sorted(report.counts().items()):
-        table.add_row(key, str(n))
+    table.add_column("reason")
+    for key, n in report.counts().items():
+        table.add_row(OUTCOME_LABELS.get(key, key), str(n), "")
     for o in report.failed:
-        table.add_row(f"failed: {o.participant}", o.reason)
+        table.add_row(f"  failed: {_esc(o.participant)}", "", _esc(o.reason))
     return table
 
 

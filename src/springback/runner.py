@@ -1,15 +1,18 @@
 """Run per-participant jobs: in this process, in a `spawn` process pool, or on a Dask cluster.
 
 A `fork` pool hangs once the chart engine has run in the parent, so local pools always use
-`spawn`. Each worker process warms its chart and PDF engines on its first job and keeps them.
-Results come back in the order of the jobs, so output does not depend on scheduling.
+`spawn`. Each worker process runs `initializer` once (the build warms its chart and PDF engines
+there). Jobs are taken from an iterable and submitted a few at a time, and every result passes
+through `on_result` as soon as it arrives (the build writes its files to disk there), so memory
+stays flat as the study grows. Results are returned in the order of the jobs, so the output does
+not depend on scheduling.
 """
 
 from __future__ import annotations
 
 import multiprocessing
 import os
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sized
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import Any, TypeVar
 
@@ -17,6 +20,11 @@ from springback.errors import SpringbackError
 
 J = TypeVar("J")
 R = TypeVar("R")
+
+Report = Callable[[str, str], None]
+
+_stage_report: Callable[[str], None] | None = None
+"""Where `stage()` reports, while a job runs in this process (None in worker processes)."""
 
 
 def default_jobs() -> int:
@@ -27,56 +35,104 @@ def default_jobs() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+def stage(name: str) -> None:
+    """Report the stage the current job reached; only heard when it runs in this process."""
+    # A worker process cannot call back into the parent mid-job, so there this is silent and
+    # the parent only sees 'queued' and the finish.
+    if _stage_report is not None:
+        _stage_report(name)
+
+
+def _participant(job: Any) -> str:
+    return str(getattr(getattr(job, "data", job), "participant", job))
+
+
 def run_jobs(
-    jobs: Sequence[J],
+    jobs: Iterable[J],
     fn: Callable[[J], R],
     *,
     jobs_n: int | None = None,
     backend: str = "local",
     scheduler: str | None = None,
-    progress: Callable[[str, str], None] | None = None,
-    name: Callable[[J], str] = lambda j: str(getattr(getattr(j, "data", j), "participant", j)),
+    progress: Report | None = None,
+    name: Callable[[J], str] = _participant,
+    initializer: Callable[[], None] | None = None,
+    on_result: Callable[[R], R] | None = None,
+    finished: Callable[[R], str] = lambda _r: "done",
+    total: int | None = None,
 ) -> list[R]:
-    """Apply `fn` to every job and return the results in job order."""
+    """Apply `fn` to every job and return the (on_result-passed) results in job order.
+
+    `progress(name, stage)` hears 'queued' or 'computing'/'rendering' (in-process only) and
+    then `finished(result)` ('done' unless told otherwise) for each job. `total` sizes the
+    pool when `jobs` is a generator (jobs are then made only as they are submitted).
+    """
     report = progress or (lambda _p, _s: None)
+    keep = on_result or (lambda r: r)
     if backend == "dask":
-        return _run_dask(jobs, fn, scheduler, report, name)
+        return _run_dask(jobs, fn, scheduler, report, name, initializer, keep, finished)
     if backend != "local":
         raise SpringbackError(f"unknown backend '{backend}'; use 'local' or 'dask'")
-    n = min(jobs_n or default_jobs(), max(1, len(jobs)))
+    size = total if total is not None else (len(jobs) if isinstance(jobs, Sized) else None)
+    n = jobs_n or default_jobs()
+    if size is not None:
+        n = min(n, max(1, size))
     if n <= 1:
-        out = []
-        for job in jobs:
-            report(name(job), "working")
-            out.append(fn(job))
-            report(name(job), "done")
-        return out
+        return _run_here(jobs, fn, report, name, keep, finished)
+    return _run_pool(jobs, fn, n, report, name, initializer, keep, finished)
+
+
+def _run_here(jobs: Iterable[J], fn: Callable[[J], R], report: Report,
+              name: Callable[[J], str], keep: Callable[[R], R],
+              finished: Callable[[R], str]) -> list[R]:
+    global _stage_report
+    out: list[R] = []
+    for job in jobs:
+        who = name(job)
+        _stage_report = lambda s, who=who: report(who, s)  # noqa: E731
+        try:
+            result = keep(fn(job))
+        finally:
+            _stage_report = None
+        out.append(result)
+        report(who, finished(result))
+    return out
+
+
+def _run_pool(jobs: Iterable[J], fn: Callable[[J], R], n: int, report: Report,
+              name: Callable[[J], str], initializer: Callable[[], None] | None,
+              keep: Callable[[R], R], finished: Callable[[R], str]) -> list[R]:
     results: dict[int, R] = {}
+    names: dict[int, str] = {}
+    queue: Iterator[tuple[int, J]] = enumerate(jobs)
     ctx = multiprocessing.get_context("spawn")
-    with ProcessPoolExecutor(max_workers=n, mp_context=ctx) as pool:
+    with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=initializer) as pool:
         pending: dict[Future[R], int] = {}
-        queue = list(enumerate(jobs))
-        # Submit a bounded number at a time so memory stays flat as the study grows.
-        while queue or pending:
-            while queue and len(pending) < 2 * n:
-                i, job = queue.pop(0)
-                report(name(job), "queued")
+        more = True
+        # A bounded number in flight: jobs (and their results) do not pile up in memory.
+        while more or pending:
+            while more and len(pending) < 2 * n:
+                nxt = next(queue, None)
+                if nxt is None:
+                    more = False
+                    break
+                i, job = nxt
+                names[i] = name(job)
+                report(names[i], "queued")
                 pending[pool.submit(fn, job)] = i
+            if not pending:
+                break
             done, _ = wait(pending, return_when=FIRST_COMPLETED)
             for fut in done:
                 i = pending.pop(fut)
-                results[i] = fut.result()
-                report(name(jobs[i]), "done")
-    return [results[i] for i in range(len(jobs))]
+                results[i] = keep(fut.result())
+                report(names.pop(i), finished(results[i]))
+    return [results[i] for i in range(len(results))]
 
 
-def _run_dask(
-    jobs: Sequence[J],
-    fn: Callable[[J], R],
-    scheduler: str | None,
-    report: Callable[[str, str], None],
-    name: Callable[[J], str],
-) -> list[R]:
+def _run_dask(jobs: Iterable[J], fn: Callable[[J], R], scheduler: str | None, report: Report,
+              name: Callable[[J], str], initializer: Callable[[], None] | None,
+              keep: Callable[[R], R], finished: Callable[[R], str]) -> list[R]:
     if not scheduler:
         raise SpringbackError("--backend dask needs --scheduler ADDRESS (e.g. tcp://host:8786)")
     try:
@@ -90,13 +146,34 @@ def _run_dask(
     except OSError as exc:
         raise SpringbackError(f"cannot reach the Dask scheduler at {scheduler}: {exc}") from None
     try:
-        futures = client.map(fn, list(jobs), pure=False)
-        index = {f.key: i for i, f in enumerate(futures)}
+        if initializer is not None:
+            client.run(initializer)  # once on every worker the cluster has now
+        window = 2 * max(1, sum(client.nthreads().values()))
+        queue: Iterator[tuple[int, J]] = enumerate(jobs)
+        index: dict[str, int] = {}
+        names: dict[int, str] = {}
+        flow = as_completed()
+
+        def submit() -> bool:
+            nxt = next(queue, None)
+            if nxt is None:
+                return False
+            i, job = nxt
+            names[i] = name(job)
+            fut = client.submit(fn, job, pure=False)
+            index[fut.key] = i
+            report(names[i], "queued")
+            flow.add(fut)
+            return True
+
+        more = all(submit() for _ in range(window))
         results: dict[int, Any] = {}
-        for fut in as_completed(futures):
-            i = index[fut.key]
-            results[i] = fut.result()
-            report(name(jobs[i]), "done")
-        return [results[i] for i in range(len(jobs))]
+        for fut in flow:
+            i = index.pop(fut.key)
+            results[i] = keep(fut.result())
+            fut.release()
+            report(names.pop(i), finished(results[i]))
+            more = more and submit()
+        return [results[i] for i in range(len(results))]
     finally:
         client.close()
