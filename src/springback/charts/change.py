@@ -41,7 +41,9 @@ def recovery_chart(ctx: Inputs) -> Chart | None:
                                    for e in aligned["episode"]])
     top = float(max(lines["deviation"].max(), 0.0))
     bottom = float(min(lines["deviation"].min(), 0.0)) - 0.12 * (top or 1.0)
-    x = {"type": "quantitative", "axis": {"title": _("Hours after the dip or event")},
+    x = {"type": "quantitative",
+         "axis": {"title": _("Hours after the dip or event"), "tickMinStep": 1,
+                  "labelOverlap": True},
          "scale": {"zero": True, "nice": True}}
     y = {"type": "quantitative", "scale": {"domain": [bottom, top * 1.05], "nice": False},
          "axis": {"title": _("Distance from your usual level (higher = worse)")}}
