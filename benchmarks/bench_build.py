@@ -5,15 +5,21 @@ Prints tables; asserts nothing. Figures (see README, "Performance"):
   and the ratio of total build time to the sum of raw WeasyPrint render times of the same HTML
   (measured in the same run, in one warm process);
 - a rebuild after changing one participant's data, as a share of the full build time;
-- peak memory (RSS) of metrics-only runs at two study sizes, to show it stays flat.
+- peak memory (RSS): the largest process of the full build, and metrics-only runs at two study
+  sizes, read after every `--every` participants, to show it stays flat. `--large-limit M`
+  computes only the first M participants of the large study (its data are still all loaded).
 
-Usage: python benchmarks/bench_build.py [--participants 200] [--jobs 2] [--large 2000]
+Each figure is printed as soon as it is measured, with the 1-minute load average beside it
+(the machine may be shared). Usage:
+python benchmarks/bench_build.py [--participants 200] [--jobs 2] [--large 2000] [--large-limit M]
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import os
+import re
 import resource
 import shutil
 import subprocess
@@ -35,16 +41,22 @@ def generate(n: int, folder: Path) -> Path:
     return folder
 
 
-def timed_build(project: Path, jobs: int, force: bool = False) -> tuple[float, int]:
-    """Build in a fresh process; return (seconds, booklet files written)."""
+CLI = "from springback.cli import main; main()"
+
+
+def timed_build(project: Path, jobs: int, force: bool = False) -> tuple[float, int, int]:
+    """Build in a fresh process; return (seconds, PDF booklets, participants reused)."""
     t0 = time.perf_counter()
-    args = [sys.executable, "-m", "springback.cli", "build", str(project), "-q", "-j", str(jobs)]
+    args = [sys.executable, "-c", CLI, "build", str(project), "-q", "-j", str(jobs)]
     if force:
         args.append("--force")
-    subprocess.run(args, check=True, capture_output=True)
+    res = subprocess.run(args, capture_output=True, text=True)
+    if res.returncode not in (0, 2):  # 2: some participant failed; the summary says which
+        sys.exit(f"the build failed:\n{res.stderr[-3000:]}")
     seconds = time.perf_counter() - t0
     n = len(list((project / "out" / "booklets").rglob("*.pdf")))
-    return seconds, n
+    reused = re.search(r"unchanged since the last build\W+(\d+)", res.stdout)
+    return seconds, n, int(reused.group(1)) if reused else 0
 
 
 RAW_RENDER = """
@@ -73,35 +85,58 @@ def raw_render_seconds(project: Path) -> float:
 
 
 METRICS_ONLY = """
-import json, resource, sys
+import json, resource, sys, time
 from pathlib import Path
 from springback import intake, metrics
+limit, every = int(sys.argv[2]), int(sys.argv[3])
+def rss():
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+t0 = time.perf_counter()
 study = intake.load_study(Path(sys.argv[1]))
-for pid in study.participants():
+points = [(0, rss())]
+loaded = time.perf_counter() - t0
+people = study.participants()[:limit] if limit else study.participants()
+for i, pid in enumerate(people, start=1):
     data = study.slice(pid)
     if data.consent == "yes":
         metrics.compute(data, study.settings)
-print(json.dumps({"rss_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}))
+    if i % every == 0 or i == len(people):
+        points.append((i, rss()))
+print(json.dumps({"points": points, "load_s": loaded, "n": len(study.participants()),
+                  "s": time.perf_counter() - t0}))
 """
 
 
-def metrics_peak_rss(project: Path) -> float:
-    """Peak RSS (MiB) of a process that loads the study and computes every participant."""
-    res = subprocess.run([sys.executable, "-c", METRICS_ONLY, str(project)],
-                         check=True, capture_output=True, text=True)
-    return json.loads(res.stdout.strip().splitlines()[-1])["rss_mib"]
+def metrics_peak_rss(project: Path, limit: int = 0, every: int = 50) -> dict:
+    """Peak RSS (MiB) after loading the study and after every `every` participants computed."""
+    res = subprocess.run([sys.executable, "-c", METRICS_ONLY, str(project), str(limit),
+                          str(every)], check=True, capture_output=True, text=True)
+    return json.loads(res.stdout.strip().splitlines()[-1])
 
 
 def touch_one_participant(project: Path) -> None:
     """Change one rating of the first participant (a weekly data update, in miniature)."""
     path = project / "data" / "momentary.csv"
     lines = path.read_text(encoding="utf-8").splitlines()
-    row = lines[1].split(",")
-    # the last column is an item rating on a 1-7 scale: move it by one step within range
-    value = int(float(row[-1]))
-    row[-1] = str(value + 1 if value < 7 else value - 1)
-    lines[1] = ",".join(row)
+    col = lines[0].split(",").index("down")  # an item rated 1-7: move it one step within range
+    for i, line in enumerate(lines[1:], start=1):
+        row = line.split(",")
+        if row[col]:
+            value = int(float(row[col]))
+            row[col] = str(value + 1 if value < 7 else value - 1)
+            lines[i] = ",".join(row)
+            break
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+def children_peak_rss() -> float:
+    """Peak RSS (MiB) of the largest finished child process so far (builds and their workers)."""
+    return resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
+
+
+def show(name: str, value: str, figure: str = "") -> None:
+    """Print one measured row at once, with the 1-minute load average."""
+    print(f"{name:<58} {value:>10}  load {os.getloadavg()[0]:4.1f}  {figure}", flush=True)
 
 
 def main() -> None:
@@ -109,34 +144,43 @@ def main() -> None:
     parser.add_argument("--participants", type=int, default=200)
     parser.add_argument("--jobs", type=int, default=2)
     parser.add_argument("--large", type=int, default=2000)
+    parser.add_argument("--large-limit", type=int, default=0,
+                        help="compute only this many participants of the large study (0: all)")
+    parser.add_argument("--every", type=int, default=50)
     args = parser.parse_args()
-    rows: list[tuple[str, str, str]] = []
+    print(f"python {sys.version.split()[0]}, {os.cpu_count()} cores; "
+          f"{time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}", flush=True)
     with tempfile.TemporaryDirectory() as tmp:
         study = generate(args.participants, Path(tmp) / "study")
-        full, pdfs = timed_build(study, args.jobs, force=True)
+        full, pdfs, _ = timed_build(study, args.jobs, force=True)
+        show(f"full build, {args.participants} participants, {args.jobs} jobs", f"{full:.1f} s",
+             f"{pdfs} PDF booklets (+ as many HTML): {pdfs / (full / 60):.1f} PDF booklets/min")
+        show("peak RSS of the largest build process", f"{children_peak_rss():.0f} MiB",
+             "target < 1024 MiB")
         raw = raw_render_seconds(study)
-        rows.append((f"full build, {args.participants} participants, {args.jobs} jobs",
-                     f"{full:.1f} s", f"{pdfs / (full / 60):.1f} PDF booklets/min"))
-        rows.append(("raw WeasyPrint render of the same HTML (sum)", f"{raw:.1f} s",
-                     f"total/raw = {full / raw:.2f} (target <= 1.25 with 2 jobs: "
-                     f"{full / (raw / args.jobs):.2f} per-core)"))
+        show("raw WeasyPrint render of the same HTML (sum, 1 process)", f"{raw:.1f} s",
+             f"total/raw = {full / raw:.2f}; total/(raw/{args.jobs} jobs) = "
+             f"{full / (raw / args.jobs):.2f} (target <= 1.25)")
+        again, _, reused = timed_build(study, args.jobs)
+        show("rebuild with nothing changed", f"{again:.1f} s",
+             f"{100 * again / full:.1f}% of the full build; {reused} reused")
         touch_one_participant(study)
-        again, _ = timed_build(study, args.jobs)
-        rows.append(("rebuild after one participant's data changed", f"{again:.1f} s",
-                     f"{100 * again / full:.1f}% of the full build (target < 5%)"))
-        rss_small = metrics_peak_rss(study)
-        shutil.rmtree(study / "out", ignore_errors=True)
+        again, _, reused = timed_build(study, args.jobs)
+        show("rebuild after one participant's data changed", f"{again:.1f} s",
+             f"{100 * again / full:.1f}% of the full build (target < 5%); {reused} reused")
+        small = metrics_peak_rss(study, every=args.every)
+        shutil.rmtree(study, ignore_errors=True)
+        show(f"peak RSS, metrics only, {args.participants} participants",
+             f"{small['points'][-1][1]:.0f} MiB", f"after loading {small['points'][0][1]:.0f} MiB")
         large = generate(args.large, Path(tmp) / "large")
-        rss_large = metrics_peak_rss(large)
-        rows.append((f"peak RSS, metrics only, {args.participants} participants",
-                     f"{rss_small:.0f} MiB", ""))
-        rows.append((f"peak RSS, metrics only, {args.large} participants",
-                     f"{rss_large:.0f} MiB", f"ratio {rss_large / rss_small:.2f} (flat ~ 1)"))
-    width = max(len(r[0]) for r in rows)
-    print(f"{'benchmark'.ljust(width)}  {'time/size':>12}  figure")
-    for name, value, figure in rows:
-        print(f"{name.ljust(width)}  {value:>12}  {figure}")
-    print(f"(this machine: {resource.getpagesize()} B pages; python {sys.version.split()[0]})")
+        big = metrics_peak_rss(large, limit=args.large_limit, every=args.every)
+        done = big["points"][-1][0]
+        show(f"peak RSS, metrics only, {args.large} participants loaded, {done} computed",
+             f"{big['points'][-1][1]:.0f} MiB",
+             f"ratio to {args.participants}: {big['points'][-1][1] / small['points'][-1][1]:.2f}"
+             f"; loading took {big['load_s']:.0f} s, all {big['s']:.0f} s")
+        print("RSS (MiB) after n participants of the large study: "
+              + ", ".join(f"{n}: {r:.0f}" for n, r in big["points"]), flush=True)
 
 
 if __name__ == "__main__":
