@@ -53,23 +53,8 @@ def test_no_label_at_all_is_not_a_language_problem() -> None:
     assert not any("tired" in p.where for p in problems)
 
 
-def test_referral_missing_for_a_used_language() -> None:
-    """Check that referral texts in other languages but not this one are an error."""
-    problems = settings_text_problems(_settings(), [("en", "south"), ("de", "south")])
-    referral = [p for p in problems if p.code == "referral-missing"]
-    assert len(referral) == 1 and referral[0].is_error
-    assert "no referral text for region 'south' in German (de)" in referral[0].what
-    assert referral[0].found == "texts in en, nl"
-
-
-def test_no_referral_texts_at_all_is_a_warning() -> None:
-    """Check that a study without referral texts is warned (general advice is shown)."""
-    problems = settings_text_problems(_settings(referral=[]), [("en", "north")])
-    assert [(p.code, p.is_error) for p in problems] == [("referral-missing", False)]
-
-
 def test_answers_checked_and_band_labels() -> None:
-    """Check the per-language 'who reads the answers' text and the one-language band labels."""
+    """Check the per-language 'who reads the answers' text and the band names."""
     settings = _settings(
         study={"languages": ["en", "nl"], "answers_checked": {"en": "A nurse reads them daily."}},
         questionnaires={"phq9": {"range": [0, 27], "bands": [[0, "minimal"], [5, "mild"]],
@@ -77,9 +62,15 @@ def test_answers_checked_and_band_labels() -> None:
     )
     codes = {p.code: p.is_error for p in settings_text_problems(settings, [("nl", "x")])}
     assert codes["answers-checked-missing"] is True
-    assert codes["band-labels-one-language"] is False
+    assert codes["band-labels-missing"] is True  # a Dutch booklet would show English bands
     english_only = settings_text_problems(settings, [("en", "north")])
-    assert "band-labels-one-language" not in {p.code for p in english_only}
+    assert "band-labels-missing" not in {p.code for p in english_only}
+    translated = _settings(
+        study={"languages": ["en", "nl"]},
+        questionnaires={"phq9": {"range": [0, 27], "bands": [[0, "minimal"], [5, "mild"]],
+                                 "band_labels": {"nl": ["minimaal", "licht"]}}},
+    )
+    assert not settings_text_problems(translated, [("nl", "x")])
 
 
 def test_unknown_languages_are_left_to_the_catalogue_check() -> None:

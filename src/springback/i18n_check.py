@@ -15,7 +15,7 @@ from typing import Any
 import pandas as pd
 from jinja2.ext import babel_extract
 
-from springback.errors import Problem, error, warning
+from springback.errors import Problem, error
 from springback.i18n import (
     LANGUAGES,
     SOURCE_LANGUAGE,
@@ -73,33 +73,14 @@ def settings_text_problems(settings: Any, used: Iterable[tuple[str, str]]) -> li
         problems.append(_missing_text(f"{where}study.answers_checked",
                                       "who checks the answers", missing, sorted(checked),
                                       "answers-checked-missing"))
-    for language, region in used:
-        if settings.referral_for(region, language) is not None:
-            continue
-        elsewhere = sorted(
-            {r.language for r in settings.referral if r.region in (region, "default")}
-        )
-        make = error if elsewhere else warning
-        problems.append(make(
-            f"{where}referral",
-            f"no referral text for region '{region}' in {language_name(language)} ({language}); "
-            "these booklets would show general advice instead of local services",
-            expected=f"a [[referral]] table with region = \"{region}\" (or \"default\") and "
-            f"language = \"{language}\"",
-            found="texts in " + ", ".join(elsewhere) if elsewhere else "no referral texts",
-            fix="add the referral table with the real local services",
-            code="referral-missing",
-        ))
-    if any(lang != SOURCE_LANGUAGE for lang in languages):
-        for name, spec in settings.questionnaires.items():
-            if spec.bands:
-                problems.append(warning(
-                    f"{where}questionnaires.{name}.bands",
-                    "band labels have one text for every language, so they are shown as "
-                    "written in every booklet",
-                    fix="write band labels that read well in all the study's languages",
-                    code="band-labels-one-language",
-                ))
+    for name, spec in settings.questionnaires.items():
+        untranslated = [lang for lang in languages
+                        if lang != SOURCE_LANGUAGE and lang not in spec.band_labels]
+        if spec.bands and untranslated:
+            problems.append(_missing_text(
+                f"{where}questionnaires.{name}.band_labels", f"the band names of '{name}'",
+                untranslated, [SOURCE_LANGUAGE, *sorted(spec.band_labels)],
+                "band-labels-missing"))
     return problems
 
 

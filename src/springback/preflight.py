@@ -15,14 +15,15 @@ def study_problems(project: Path, study: Study) -> list[Problem]:
     """Checks that need the loaded study: referral texts, catalogues, retention."""
     from springback.archive import expired_builds
     from springback.i18n import catalogue_problems
+    from springback.i18n_check import check_languages
     from springback.safety import referral_problems
 
     roster = study.roster
     wanted = roster[(roster["consent"] == "yes") & roster["feedback"].astype(bool)]
-    languages = set(study.settings.study.languages) | set(wanted["language"].astype(str))
     problems = referral_problems(study)
-    problems += catalogue_problems(sorted(languages),
-                                   where="data/participants.csv or study.toml: study.languages")
+    problems += check_languages(study.settings, roster, project)
+    undeclared = set(wanted["language"].astype(str)) - set(study.settings.study.languages)
+    problems += catalogue_problems(sorted(undeclared), where="data/participants.csv: language")
     problems += expired_builds(project, study.settings)
     return problems
 
