@@ -116,7 +116,7 @@ def test_check_languages_counts_only_participants_who_get_a_booklet(tmp_path: Pa
     assert [p.code for p in problems] == []
     roster.loc[1, "consent"] = "yes"
     codes = sorted(p.code for p in check_languages(_settings(), roster, tmp_path))
-    assert codes == ["label-missing", "referral-missing"]
+    assert codes == ["label-missing"]  # referral texts: safety.referral_problems
 
 
 def test_jinja_options_match_babel_cfg() -> None:
