@@ -52,12 +52,24 @@ def _bands(ctx: Inputs, q: str) -> tuple[tuple[float, float], list[tuple[float, 
         rng = tuple(float(v) for v in params.get("range", (0.0, 1.0)))  # type: ignore[assignment]
         raw = list(params.get("bands", []))
     bounds = [float(b[0]) for b in raw] + [rng[1]]
-    return rng, [(bounds[i], bounds[i + 1], str(raw[i][1])) for i in range(len(raw))]
+    return rng, [(bounds[i], bounds[i + 1], _band_name(ctx, q, str(raw[i][1])))
+                 for i in range(len(raw))]
+
+
+def _band_name(ctx: Inputs, q: str, label: object) -> str:
+    """A band's name in the booklet's language (as written in `bands` if untranslated)."""
+    if not isinstance(label, str) or not label:
+        return ""
+    if q not in ctx.settings.questionnaires:
+        return label
+    return ctx.settings.band_label(q, label, ctx.language)
 
 
 def _questionnaire_chart(ctx: Inputs, q: str) -> Chart | None:
     _ = ctx.gettext
     scores = ctx.table("questionnaires", f"scores_{q}")
+    if scores is not None and "band" in scores.columns:
+        scores = scores.assign(band=[_band_name(ctx, q, b) for b in scores["band"]])
     if scores is None:
         return None
     scores = scores.dropna(subset=["score"]).sort_values("local_time")

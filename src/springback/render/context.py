@@ -340,13 +340,15 @@ def _questionnaires(
         bands = []
         for i, (lower, label) in enumerate(spec.bands):
             upper = spec.bands[i + 1][0] - 1 if i + 1 < len(spec.bands) else spec.range[1]
-            bands.append((str(label), float(lower), float(upper)))
+            bands.append((settings.band_label(key, str(label), language), float(lower),
+                          float(upper)))
         views.append(
             QuestionnaireView(
                 key=key,
                 label=_text(spec.label, language) or key,
                 last=last,
-                last_band=str(scores["band"].iloc[-1]) if "band" in scores else "",
+                last_band=settings.band_label(key, str(scores["band"].iloc[-1]), language)
+                if "band" in scores else "",
                 change=fam.estimates.get(
                     f"reliable_change_{key}", Estimate.missing("only one score")
                 ),
