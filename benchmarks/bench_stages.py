@@ -3,7 +3,8 @@
 Prints tables; asserts nothing. In one fresh process: the cold first chart and first PDF, the
 warm-up (`springback.build.warm_engines`), then for a few participants of the example study
 each stage (metrics, safety, charts, HTML and PDF per edition), counting how often the charts
-are made (once per participant, shared by both editions). Finally the PDF time of one booklet
+are made (once per participant, shared by both editions); one participant as the first job of
+a new spawn worker with and without the warm-up initializer. Finally the PDF time of one booklet
 as built and with its embedded fonts (data URLs) removed, to show what the fonts cost.
 
 Usage: python benchmarks/bench_stages.py [--participants P01 P03 ...] [--project DIR]
@@ -96,6 +97,33 @@ def stages(project: Path, participants: list[str]) -> list[tuple[str, float]]:
     return rows
 
 
+def _noop() -> None:
+    return None
+
+
+def first_job_in_a_new_worker(project: Path, participant: str) -> list[tuple[str, float]]:
+    """The first participant's time in a fresh spawn worker, without and with the warm-up."""
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    from springback import intake
+    from springback.build import Job, run_job, warm_engines
+    from springback.safety import study_end
+
+    study = intake.load_study(project)
+    end = study_end(study)
+    job = Job(project, study.slice(participant), study.settings, "bench", 1, end, end)
+    rows = []
+    for label, init in (("no warm-up", None), ("warm_engines as initializer", warm_engines)):
+        with ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("spawn"),
+                                 initializer=init) as pool:
+            pool.submit(_noop).result()  # the worker is up (and warmed, if asked)
+            t, outcome = timed(lambda pool=pool: pool.submit(run_job, job).result())
+        rows.append((f"{participant} as a new worker's first job, {label} "
+                     f"({outcome.status})", t))
+    return rows
+
+
 def font_cost(project: Path, participant: str) -> list[tuple[str, float]]:
     """PDF seconds of one booklet as built and without its embedded fonts."""
     from springback.render import html_to_pdf
@@ -126,6 +154,7 @@ def main() -> None:
 
     rows.append(("warm_engines() in a process that already ran both", timed(warm_engines)[0]))
     rows += stages(args.project, args.participants)
+    rows += first_job_in_a_new_worker(args.project, args.participants[-1])
     rows += font_cost(args.project, args.participants[0])
     width = max(len(r[0]) for r in rows)
     print(f"{'stage'.ljust(width)}  seconds")
