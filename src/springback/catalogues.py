@@ -170,7 +170,9 @@ def extract(root: Path = SOURCE_ROOT) -> list[Path]:
         _write_if_changed(
             po_path, _po_bytes(catalog, include_previous=True, ignore_obsolete=True), changed
         )
-        _write_if_changed(catalogue_path(language, ".mo"), compile_catalogue(catalog), changed)
+        # Compile what is on disk, so a run that changed only header dates changes nothing.
+        compiled = compile_catalogue(_read(po_path, language))
+        _write_if_changed(catalogue_path(language, ".mo"), compiled, changed)
     if changed:
         translations.cache_clear()
     return changed
