@@ -33,6 +33,18 @@ def example_copy(tmp_path: Path) -> Path:
     return copy_example(tmp_path / "study")
 
 
+@pytest.fixture
+def quick_example(tmp_path: Path) -> Path:
+    """A copy of the example with 99 surrogates per test (for tests about the build, not the
+    statistics: the whole pipeline runs, only the Monte Carlo p-values are coarser)."""
+    project = copy_example(tmp_path / "study")
+    toml = project / "study.toml"
+    text = toml.read_text(encoding="utf-8")
+    assert "surrogates = 1000\n" in text
+    toml.write_text(text.replace("surrogates = 1000\n", "surrogates = 99\n"), encoding="utf-8")
+    return project
+
+
 @pytest.fixture(scope="session")
 def built_example(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """A copy of the example study, built once for the whole session (read-only for tests)."""

@@ -29,11 +29,11 @@ def _bump_first_rating(project: Path, participant: str) -> None:
 
 
 def test_rebuild_reuses_only_unchanged_participants(
-    example_copy: Path, monkeypatch: pytest.MonkeyPatch
+    quick_example: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     """Check a second build reuses everyone, and a data change rebuilds only that person."""
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "1767225600")
-    first = build(example_copy, participants=CHOSEN, jobs=1)
+    first = build(quick_example, participants=CHOSEN, jobs=1)
     assert not any(o.reused for o in first.outcomes)
     # Files were written to disk as each participant finished; the report holds no bytes.
     assert not any(o.files for o in first.outcomes)
@@ -43,17 +43,17 @@ def test_rebuild_reuses_only_unchanged_participants(
         assert o.stored and all((first.out_dir / rel).is_file() for rel in o.stored)
     before = {p: p.read_bytes() for p in sorted(first.out_dir.rglob("*")) if p.is_file()}
 
-    second = build(example_copy, participants=CHOSEN, jobs=1)
+    second = build(quick_example, participants=CHOSEN, jobs=1)
     assert all(o.reused for o in second.outcomes)
     after = {p: p.read_bytes() for p in sorted(second.out_dir.rglob("*")) if p.is_file()}
     assert before == after  # byte-identical, the overview and tables included
 
-    _bump_first_rating(example_copy, "P03")
-    third = build(example_copy, participants=CHOSEN, jobs=1)
+    _bump_first_rating(quick_example, "P03")
+    third = build(quick_example, participants=CHOSEN, jobs=1)
     reused = {o.participant: o.reused for o in third.outcomes}
     assert reused == {"P01": True, "P03": False, "P09": True}
     p03 = next(o for o in third.outcomes if o.participant == "P03")
     assert p03.version == 2  # new data make a new booklet version
 
-    forced = build(example_copy, participants=CHOSEN, jobs=1, force=True)
+    forced = build(quick_example, participants=CHOSEN, jobs=1, force=True)
     assert not any(o.reused for o in forced.outcomes)

@@ -89,7 +89,7 @@ def _digest(folder: Path) -> dict[str, str]:
 
 @pytest.mark.slow
 def test_dask_cluster_build_equals_local_build(
-    example_copy: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+    quick_example: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     """Check a build on a two-worker Dask LocalCluster equals a local build byte for byte."""
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "1767225600")
@@ -97,11 +97,11 @@ def test_dask_cluster_build_equals_local_build(
     import shutil
 
     other = tmp_path / "other"
-    shutil.copytree(example_copy, other)
+    shutil.copytree(quick_example, other)
     from springback.intake import load_study
 
-    chosen = load_study(example_copy).participants()[:2]
-    local = build(example_copy, participants=chosen, jobs=1)
+    chosen = load_study(quick_example).participants()[:2]
+    local = build(quick_example, participants=chosen, jobs=1)
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                                   host="127.0.0.1", dashboard_address=None) as cluster:
         remote = build(other, participants=chosen, backend="dask",
