@@ -264,7 +264,8 @@ def render_booklets(
 
     data, settings = job.data, job.settings
     language = data.language
-    env = render.make_environment(job.project / "templates", language)
+    env = render.make_environment(job.project / "templates", language,
+                                  timezone=settings.study.timezone)
     gettext = translations(language).gettext
     chart_set = charts.make_charts(data, results, settings, language, gettext)
     files: dict[str, bytes] = {}
@@ -423,7 +424,7 @@ def render_overview(
     """The research team's overview page (English; the team's working language)."""
     from springback import render
 
-    env = render.make_environment(project / "templates", "en")
+    env = render.make_environment(project / "templates", "en")  # the page states times in UTC
     rows = [
         {
             "participant": o.participant,
