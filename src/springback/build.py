@@ -6,6 +6,7 @@ this process, in a `spawn` process pool, or on a Dask cluster (see `springback.r
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import io
 import json
@@ -262,8 +263,8 @@ def render_booklets(
     from springback import charts, render
     from springback.i18n import translations
 
-    data, settings = job.data, job.settings
-    language = data.language
+    settings, language = job.settings, job.data.language
+    data = _named_events(job.data, settings, language)
     env = render.make_environment(job.project / "templates", language,
                                   timezone=settings.study.timezone)
     gettext = translations(language).gettext
@@ -282,6 +283,16 @@ def render_booklets(
         if "pdf" in settings.booklet.formats:
             files[f"{folder}/{edition}.pdf"] = render.html_to_pdf(html, base_url=job.project)
     return files
+
+
+def _named_events(data: ParticipantData, settings: StudySettings, language: str) -> ParticipantData:
+    """The participant's data with event kinds named in the booklet's language."""
+    if data.events.empty or not settings.events.labels:
+        return data
+    kinds = data.events["kind"].map(
+        lambda k: settings.event_label(k, language) if isinstance(k, str) else k
+    )
+    return dataclasses.replace(data, events=data.events.assign(kind=kinds))
 
 
 def _period(data: ParticipantData) -> tuple[str, str]:

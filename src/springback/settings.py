@@ -210,6 +210,12 @@ class Events(Section):
         description="What measures daily load for the mood-against-load picture: an item name "
         "(its daily mean) or 'events' (upsetting events per day). Default: none.",
     )
+    labels: dict[str, Text] = Field(
+        default_factory=dict,
+        description="Event kinds as booklets name them, per language: "
+        "{ conflict = { nl = \"ruzie\", de = \"Streit\" } }; untranslated kinds are shown as "
+        "written in the data.",
+    )
 
 
 class Questionnaire(Section):
@@ -428,6 +434,10 @@ class StudySettings(Section):
         spec = self.items.get(variable) or self.composites.get(variable)
         labels = spec.label if spec else {}
         return labels.get(language) or labels.get("en") or variable.replace("_", " ")
+
+    def event_label(self, kind: str, language: str) -> str:
+        """An event kind's name in a language (as written in the data when untranslated)."""
+        return self.events.labels.get(kind, {}).get(language) or kind
 
     def band_label(self, questionnaire: str, label: str, language: str) -> str:
         """A questionnaire band's name in a language (the `bands` label when untranslated)."""

@@ -110,7 +110,8 @@ def _recovery_table(ctx: Inputs, episodes: pd.DataFrame) -> pd.DataFrame:
     reasons = {"night": _("not back before night"), "end": _("not back before the end"),
                "next event": _("next event came first")}
     starts = ctx.wall_clock(episodes["start"])
-    what = [(str(k) if t == "event" and isinstance(k, str) and k else _("a dip"))
+    what = [(ctx.settings.event_label(k, ctx.language) if t == "event" and isinstance(k, str)
+             and k else _("a dip"))
             for t, k in zip(episodes["trigger"], episodes["kind"], strict=True)]
     hours = [reasons.get(str(r), _("not back")) if bool(c) else ctx.num(h)
              for h, c, r in zip(episodes["hours_to_baseline"], episodes["censored"],
