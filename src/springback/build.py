@@ -1,7 +1,10 @@
 """Orchestration: load the study, compute, check safety, render, write atomically, archive.
 
 `build()` reads as the recipe. Per-participant work is one picklable function so it can run in
-this process, in a `spawn` process pool, or on a Dask cluster (see `springback.runner`).
+this process, in a `spawn` process pool, or on a Dask cluster (see `springback.runner`); each
+worker warms its engines once (`warm_engines`). Each participant's files are written into the
+build's staging folder as soon as they arrive (`springback.build_output`), so the parent never
+holds every booklet at once; unchanged participants are copied from the last archived build.
 """
 
 from __future__ import annotations
@@ -320,7 +323,7 @@ def _flag_dict(flag: Any) -> dict[str, Any]:
 
 
 Progress = Callable[[str, str], None]
-"""Called as progress(participant, stage) by the orchestrator (stage 'done' at the end)."""
+"""Called as progress(participant, stage); the stages are listed in `springback.progress`."""
 
 
 def build(
