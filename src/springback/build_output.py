@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import dataclasses
 import shutil
+from collections.abc import Iterable
 from datetime import datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -152,3 +153,52 @@ def _rows_by_participant(path: Path) -> dict[str, list[dict[str, Any]]]:
     for row in df.to_dict("records"):
         out.setdefault(row["participant"], []).append(row)
     return out
+
+
+def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[str, bytes]:
+    """The study-wide CSV tables: metrics, flags, shifts, quality, set-aside rows."""
+    from springback.build import frame_bytes
+    from springback.metrics.results import METRICS_CSV_COLUMNS
+
+    outcomes = list(outcomes)
+    metrics_rows = [r for o in outcomes for r in o.metrics_rows]
+    flag_rows = [r for o in outcomes for r in o.flag_rows]
+    shift_rows = [r for o in outcomes for r in o.shift_rows]
+    tables = {
+        "metrics.csv": pd.DataFrame(metrics_rows, columns=list(METRICS_CSV_COLUMNS)),
+        "flags.csv": pd.DataFrame(
+            flag_rows, columns=["participant", "rule", "action", "value", "when"]
+        ),
+        "shifts.csv": pd.DataFrame(
+            shift_rows, columns=["participant", "date", "direction", "size", "method"]
+        ),
+        "quality.csv": study.quality,
+        "set_aside.csv": study.set_aside,
+    }
+    return {name: frame_bytes(df) for name, df in tables.items()}
+
+
+def render_overview(
+    project: Path, study: Study, outcomes: Iterable[ParticipantOutcome], built_at: datetime
+) -> str:
+    """The research team's overview page (English; the team's working language)."""
+    from springback import render
+    from springback.build import BOOKLETS
+
+    env = render.make_environment(project / "templates", "en")  # the page states times in UTC
+    rows = [
+        {
+            "participant": o.participant,
+            "status": o.status,
+            "reason": o.reason,
+            "compliance": o.compliance,
+            "flags": o.flags,
+            "review_state": o.review_state,
+            "editions": [f"{BOOKLETS}/{o.participant}/{e}" for e in o.editions],
+            "formats": list(study.settings.booklet.formats),
+            "version": o.version,
+            "period": o.period,
+        }
+        for o in outcomes
+    ]
+    return render.render_overview(env, rows, study.settings, built_at)
