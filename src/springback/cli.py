@@ -173,7 +173,11 @@ def _register_optional() -> None:
         mod.register(main)
 
 
-_register_optional()
-
 if __name__ == "__main__":
-    main()
+    # `python -m springback.cli`: run the importable module's group, which has every command
+    # registered (registering here too would import this file twice).
+    from springback.cli import main as registered_main
+
+    registered_main()
+else:
+    _register_optional()

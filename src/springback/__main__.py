@@ -1,0 +1,5 @@
+"""`python -m springback`: the same as the `springback` command."""
+
+from springback.cli import main
+
+main()
