@@ -4,9 +4,6 @@ Public functions (build.py calls these while holding a `fsutil.BuildLock`):
 
     build_time(now: bool = False) -> datetime   # SOURCE_DATE_EPOCH if set (unless now), UTC, s
     booklet_version(project: Path, participant: str, fingerprint: str) -> int
-    write_build(project: Path, out_dir: Path, files: dict[str, bytes], *, study: Study,
-                outcomes: list[ParticipantOutcome], started: datetime, ended: datetime,
-                templates: list[Path]) -> str   # writes out/ atomically, then record_build
     record_build(project: Path, staging_out: Path, inputs: list[Path], settings: StudySettings,
                  templates: list[Path], participants: dict[str, dict], params: dict,
                  started: datetime, ended: datetime) -> str          # the build id
@@ -73,7 +70,7 @@ KEY_DEPENDENCIES = (
 )
 BUILD_ID = re.compile(r"\d{4,}-\d{8}T\d{6}Z")
 __all__ = ["Mismatch", "booklet_version", "build_time", "builds", "expired_builds",
-           "latest_manifest", "load_manifest", "record_build", "verify", "write_build"]
+           "latest_manifest", "load_manifest", "record_build", "verify"]
 
 
 def build_time(now: bool = False) -> datetime:
@@ -274,47 +271,6 @@ def booklet_version(project: Path, participant: str, fingerprint: str) -> int:
     if fingerprint in seen:
         return seen[fingerprint]
     return max(seen.values(), default=0) + 1
-
-
-def write_build(project: Path, out_dir: Path, files: dict[str, bytes], *, study: Any,
-                outcomes: list[Any], started: datetime, ended: datetime,
-                templates: list[Path]) -> str:
-    """Write a build's files into out/ atomically (staging folder, then swap) and archive it.
-
-    Participants whose outcome is 'unchanged' keep their booklet files from the current out/.
-    """
-    out_dir = Path(out_dir)
-    roster = study.roster.set_index("participant")
-    settings = study.settings
-    clean_stale(out_dir.parent)
-    with staging_dir(out_dir) as staging:
-        for rel, data in sorted(files.items()):
-            (staging / rel).parent.mkdir(parents=True, exist_ok=True)
-            (staging / rel).write_bytes(data)
-        people: dict[str, dict[str, Any]] = {}
-        for o in outcomes:
-            kept = sorted(o.files)
-            if o.status == "unchanged":
-                previous = out_dir / "booklets" / o.participant
-                for path in walk(previous) if previous.is_dir() else []:
-                    rel = path.relative_to(out_dir).as_posix()
-                    (staging / rel).parent.mkdir(parents=True, exist_ok=True)
-                    shutil.copyfile(path, staging / rel)
-                    kept.append(rel)
-            row = roster.loc[o.participant]
-            people[o.participant] = {
-                "status": o.status, "reason": o.reason, "fingerprint": o.fingerprint,
-                "version": o.version, "review_state": o.review_state, "flags": list(o.flags),
-                "period": {"first": o.period[0], "last": o.period[1]},
-                "consent": str(row["consent"]), "feedback": bool(row["feedback"]),
-                "files": sorted(kept),
-            }
-        params = {"metrics": settings.metrics.model_dump(mode="json"),
-                  "seed": settings.metrics.seed, "editions": list(settings.booklet.editions),
-                  "formats": list(settings.booklet.formats)}
-        build_id = record_build(project, staging, list(study.input_files), settings, templates,
-                                people, params, started, ended)
-    return build_id
 
 
 def verify(project: Path, rebuild: bool = False,

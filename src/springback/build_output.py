@@ -3,8 +3,7 @@
 The parent process never holds every participant's booklets at once: each outcome's files are
 written into the build's staging folder (see `fsutil.staging_dir`) when the outcome arrives and
 dropped from memory; an unchanged participant's files are copied from the last archived build
-file by file. `archive_staged` then records the staged folder exactly as `archive.write_build`
-would have recorded the same files (same participant records, same 'unchanged' handling).
+file by file. `archive_staged` then records the staged folder as an archived build.
 """
 
 from __future__ import annotations
@@ -48,11 +47,10 @@ def archive_staged(project: Path, out_dir: Path, staging: Path, *, study: Study,
                    templates: list[Path]) -> str:
     """Archive a fully staged build (the caller swaps `staging` into `out_dir` afterwards).
 
-    The same contract as `archive.write_build` minus the writing: participants whose outcome
-    is 'unchanged' keep their booklet files from the current out/.
+    Reused participants' files were staged from the archive by `Previous`, so every outcome's
+    files are in `staging` already (or in `o.files`, written here).
     """
     from springback.archive import record_build
-    from springback.integrity import walk
 
     roster = study.roster.set_index("participant")
     settings = study.settings
@@ -61,13 +59,6 @@ def archive_staged(project: Path, out_dir: Path, staging: Path, *, study: Study,
         kept = sorted({*o.stored, *o.files})
         if o.files:  # an outcome that did not pass through stage_files
             write_files(o.files, staging)
-        if o.status == "unchanged":
-            previous = Path(out_dir) / "booklets" / o.participant
-            for path in walk(previous) if previous.is_dir() else []:
-                rel = path.relative_to(out_dir).as_posix()
-                (staging / rel).parent.mkdir(parents=True, exist_ok=True)
-                shutil.copyfile(path, staging / rel)
-                kept.append(rel)
         row = roster.loc[o.participant]
         people[o.participant] = {
             "status": o.status, "reason": o.reason, "fingerprint": o.fingerprint,
