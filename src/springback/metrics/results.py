@@ -1,7 +1,7 @@
 """Frozen result records shared by every metric family, the safety rules and the renderer.
 
 An `Estimate` is either a number (with optional interval and n) or "not enough data" with the
-reason in `note`: never a placeholder number.
+reason in `note`: never a made-up number.
 """
 
 from __future__ import annotations
