@@ -52,7 +52,7 @@ from springback.delivery_private import (
 )
 from springback.errors import DataError, DeliveryError, Problem
 from springback.fsutil import BuildLock, project_dirs, sha256_bytes
-from springback.review import APPROVED, NOT_NEEDED, review_state
+from springback.review import release_gate
 from springback.settings import StudySettings, load_settings
 
 EDITIONS = ("participant", "therapist")
@@ -126,19 +126,18 @@ def _roster(project: Path, settings: StudySettings) -> dict[str, dict[str, Any]]
 
 
 def _why_not(project: Path, pid: str, rec: dict[str, Any], now: dict[str, Any] | None) -> str:
-    """'' when the participant's booklet may leave, else the reason in plain words."""
+    """'' when the participant's booklet may leave, else the reason in plain words.
+
+    The roster as it is now can only take consent or feedback back; the rest is the release
+    gate's own judgement on the archived record.
+    """
     if now is None:
         return "no longer in the roster"
-    if rec.get("consent") != "yes" or now["consent"] != "yes":
+    if now["consent"] != "yes":
         return "consent withdrawn"
-    if rec.get("feedback") is not True or not now["feedback"]:
+    if not now["feedback"]:
         return "no feedback wanted"
-    if rec.get("status", "built") not in ("built", "unchanged") or not rec.get("files"):
-        return f"no booklet ({rec.get('status', 'no files')})"
-    state = review_state(project, pid, str(rec.get("fingerprint", "")), rec.get("flags", []))
-    if state not in (NOT_NEEDED, APPROVED):
-        return "held for review" if state == "held" else "rejected at review"
-    return ""
+    return release_gate(project_dirs(project).archive, pid, rec)[0]
 
 
 def _dispatch(release: Path) -> dict[str, dict[str, str]]:

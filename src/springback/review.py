@@ -163,8 +163,8 @@ def reject(project: Path, participant: str, by: str, note: str = "") -> dict[str
     return _decide(project, participant, by, note, "reject")
 
 
-def _why_not(archive: Path, pid: str, rec: dict[str, Any]) -> tuple[str, str]:
-    """('', approver) when releasable, else (reason, '')."""
+def release_gate(archive: Path, pid: str, rec: dict[str, Any]) -> tuple[str, str]:
+    """('', approver) when a manifest record's booklet may be released, else (reason, '')."""
     if rec.get("consent") != "yes":
         return ("consent withdrawn", "")
     if rec.get("feedback") is not True:
@@ -202,7 +202,7 @@ def release(project: Path, by: str = "") -> ReleaseReport:
         rows: list[dict[str, str]] = []
         with staging_dir(dirs.out / "release") as staging:
             for pid, rec in sorted(manifest.get("participants", {}).items()):
-                reason, approver = _why_not(dirs.archive, pid, rec)
+                reason, approver = release_gate(dirs.archive, pid, rec)
                 if reason:
                     withheld.append((pid, reason))
                     continue
