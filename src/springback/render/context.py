@@ -5,12 +5,13 @@ from __future__ import annotations
 import datetime as dt
 import math
 import xml.etree.ElementTree as ET
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Literal, Protocol, TypedDict
 
 import pandas as pd
 
 from springback import palette
+from springback.charts import Chart
 from springback.metrics.results import Estimate, ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import Referral, StudySettings
@@ -52,29 +53,6 @@ class FlagLike(Protocol):
     value: float | None
     when: str
     detail: str
-
-
-class ChartLike(Protocol):
-    """What a chart record offers (springback.charts.Chart)."""
-
-    key: str
-    title: str
-    description: str
-    svg: str
-    table: pd.DataFrame
-    table_caption: str
-
-
-@dataclass(frozen=True)
-class ChartView:
-    """A chart as the templates embed it (same fields as springback.charts.Chart)."""
-
-    key: str
-    title: str
-    description: str
-    svg: str
-    table: pd.DataFrame
-    table_caption: str
 
 
 @dataclass(frozen=True)
@@ -129,7 +107,7 @@ class BookletContext(TypedDict):
     refer: bool
     review_state: str
     referral: Referral | None
-    charts: dict[str, ChartView]
+    charts: dict[str, Chart]
     long_tables: list[str]
     pattern: dict[str, Any]
     alpha: float
@@ -145,7 +123,7 @@ def build_context(
     results: ParticipantResults,
     flags: list[FlagLike],
     review_state: str,
-    charts: dict[str, ChartLike],
+    charts: dict[str, Chart],
     edition: Edition,
     language: str,
     version: int,
@@ -211,10 +189,9 @@ SVG_NS = "http://www.w3.org/2000/svg"
 XLINK_NS = "http://www.w3.org/1999/xlink"
 
 
-def _chart_view(chart: ChartLike) -> ChartView:
+def _chart_view(chart: Chart) -> Chart:
     """The chart with SVG markup an HTML parser reads as SVG."""
-    return ChartView(chart.key, chart.title, chart.description, inline_svg(chart.svg),
-                     chart.table, chart.table_caption)
+    return replace(chart, svg=inline_svg(chart.svg))
 
 
 def inline_svg(svg: str) -> str:
@@ -239,7 +216,7 @@ def inline_svg(svg: str) -> str:
     return ET.tostring(root, encoding="unicode")
 
 
-def _long_tables(sections: list[str], charts: dict[str, ChartLike]) -> list[str]:
+def _long_tables(sections: list[str], charts: dict[str, Chart]) -> list[str]:
     """Keys of the shown charts whose data tables go to the print appendix, in reading order."""
     keys = []
     for section in sections:
