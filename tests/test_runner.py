@@ -110,3 +110,38 @@ def test_dask_cluster_build_equals_local_build(
     assert not any(o.files for o in remote.outcomes)  # streamed to disk as they arrived
     a, b = _digest(local.out_dir / "booklets"), _digest(remote.out_dir / "booklets")
     assert a and a == b
+
+
+def _never(x: int) -> int:
+    raise AssertionError("no job should have run")
+
+
+def test_no_jobs_start_no_workers(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Check an empty job stream (every participant reused) returns at once without a pool."""
+
+    def refuse(*_a: object, **_k: object) -> None:
+        raise AssertionError("a process pool was started for no jobs")
+
+    monkeypatch.setattr(runner, "ProcessPoolExecutor", refuse)
+    assert run_jobs((x for x in ()), _never, jobs_n=2, initializer=_warm, total=12) == []
+
+
+def test_jobs_are_made_only_as_they_are_taken() -> None:
+    """Check a generator of jobs is consumed as the pool takes jobs, not all before it starts
+    (a build fingerprints later participants while the first are already being built)."""
+    made: list[int] = []
+
+    def jobs() -> object:
+        for x in range(20):
+            made.append(x)
+            yield x
+
+    seen: list[int] = []
+
+    def keep(r: int) -> int:
+        seen.append(len(made))  # how many jobs existed when this result arrived
+        return r
+
+    out = run_jobs(jobs(), _square, jobs_n=2, on_result=keep, total=20)  # type: ignore[arg-type]
+    assert out == [x * x for x in range(20)]
+    assert seen[0] < 20  # the first result came back before the last job was made

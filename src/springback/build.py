@@ -10,10 +10,12 @@ holds every booklet at once; unchanged participants are copied from the last arc
 from __future__ import annotations
 
 import dataclasses
+import gc
 import hashlib
 import io
 import json
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
@@ -215,10 +217,34 @@ class Job:
     """The study's last prompt or score: silence rules look back from here."""
 
 
+YOUNG_GENERATION_THRESHOLD = 50_000
+"""Allocations between two young-generation collections while a participant is built."""
+
+
+@contextmanager
+def fewer_collections() -> Iterator[None]:
+    """Run the cyclic garbage collector less often inside the block, and fully at its end.
+
+    Laying out a booklet allocates millions of short-lived objects that reference counting
+    frees; at CPython's default young-generation threshold (700) the cyclic collector still
+    runs thousands of times per booklet, traversing them each time (about a fifth of the PDF
+    render time here, see benchmarks/bench_stages.py). Memory stays bounded because the block
+    ends with a full collection and `render_booklets` collects after every PDF.
+    """
+    before = gc.get_threshold()
+    gc.set_threshold(YOUNG_GENERATION_THRESHOLD, *before[1:])
+    try:
+        yield
+    finally:
+        gc.set_threshold(*before)
+        gc.collect()
+
+
 def run_job(job: Job) -> ParticipantOutcome:
     """Build one participant; never raises (a failure is an outcome with the reason)."""
     try:
-        return _run_job(job)
+        with fewer_collections():
+            return _run_job(job)
     except Exception as exc:  # one participant's failure never stops the others
         return ParticipantOutcome(
             participant=job.data.participant,
@@ -292,6 +318,7 @@ def render_booklets(
             files[f"{folder}/{edition}.html"] = html.encode("utf-8")
         if "pdf" in settings.booklet.formats:
             files[f"{folder}/{edition}.pdf"] = render.html_to_pdf(html, base_url=job.project)
+            gc.collect()  # the layout's reference cycles go now, not with the next booklet's
     return files
 
 
@@ -369,23 +396,29 @@ def build(
         # Files go to disk as they arrive; the folder replaces out/ only once it is archived.
         with staging_dir(out_dir) as staging:
             report("", f"start:{len(selected)}")
-            jobs_list, reused = [], {}
-            for pid in selected:
-                data = study.slice(pid)
-                fp = fingerprint(data, s_hash, t_hash, end)
-                version = archive.booklet_version(project, pid, fp)
-                job = Job(project, data, settings, fp, version, started, end)
-                again = previous.outcome(job, staging) if previous else None
-                if again is not None:
-                    reused[pid] = again
-                    report(pid, "unchanged")
-                else:
-                    jobs_list.append(job)
+            reused: dict[str, ParticipantOutcome] = {}
+
+            def jobs_to_run() -> Iterator[Job]:
+                # Made one at a time as the workers take them, so the first participant is
+                # being built while the others are still being fingerprinted.
+                for pid in heaviest_first(study, selected, settings):
+                    data = study.slice(pid)
+                    fp = fingerprint(data, s_hash, t_hash, end)
+                    version = archive.booklet_version(project, pid, fp)
+                    job = Job(project, data, settings, fp, version, started, end)
+                    again = previous.outcome(job, staging) if previous else None
+                    if again is None:
+                        yield job
+                    else:
+                        reused[pid] = again
+                        report(pid, "unchanged")
+
             fresh = run_jobs(
-                jobs_list, run_job, jobs_n=jobs, backend=backend, scheduler=scheduler,
+                jobs_to_run(), run_job, jobs_n=jobs, backend=backend, scheduler=scheduler,
                 progress=report, initializer=warm_engines,
                 on_result=lambda o: stage_files(o, staging),
                 finished=lambda o: "failed" if o.status == "failed" else "done",
+                total=len(selected),
             )
             by_id = {**reused, **{o.participant: o for o in fresh}}
             outcomes = [by_id[pid] for pid in selected]
@@ -399,6 +432,27 @@ def build(
                 ended=ended, templates=tmpl,
             )
     return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
+
+
+def heaviest_first(study: Study, selected: list[str], settings: StudySettings) -> list[str]:
+    """The participants in the order their work is handed out: the longest jobs first.
+
+    A booklet's PDF is most of a participant's time, so the estimate is the number of
+    editions, then the number of prompts. Handing out the longest jobs first keeps the last
+    minutes of a parallel build from waiting on one long job while the other workers idle
+    (longest-processing-time-first scheduling). Output never depends on this order.
+    """
+    roster = study.roster.set_index("participant")
+    both = "therapist" in settings.booklet.editions
+
+    def cost(pid: str) -> tuple[int, int, str]:
+        row = roster.loc[pid]
+        if row["consent"] != "yes" or not bool(row["feedback"]):
+            return (0, 0, pid)  # metrics at most, no booklet
+        editions = 2 if both and bool(row["therapist"]) else 1
+        return (-editions, -study.rows_of(pid), pid)
+
+    return sorted(selected, key=cost)
 
 
 def _select(study: Study, participants: list[str] | None) -> list[str]:

@@ -7,8 +7,10 @@ column contract below, so downstream code never re-validates.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from springback.errors import Problem
@@ -41,6 +43,9 @@ QUALITY_COLUMNS = (
 )
 
 
+_SLICED_FRAMES = ("momentary", "events", "questionnaires", "quality", "set_aside")
+
+
 @dataclass(frozen=True)
 class Study:
     """A loaded, validated study: settings plus tidy frames (see the column contracts)."""
@@ -65,12 +70,32 @@ class Study:
         """Roster ids in sorted order."""
         return sorted(self.roster["participant"].astype(str))
 
-    def slice(self, participant: str) -> ParticipantData:
-        """One participant's rows of every frame."""
-        def rows(df: pd.DataFrame) -> pd.DataFrame:
-            return df[df["participant"] == participant].reset_index(drop=True)
+    @cached_property
+    def _positions(self) -> dict[str, dict[str, np.ndarray]]:
+        """Row positions of each participant in every sliced frame, found in one pass each.
 
-        roster = self.roster.set_index("participant").loc[participant]
+        Slicing by a boolean mask per participant would scan every frame once per
+        participant, which grows with the square of the study's size.
+        """
+        return {
+            name: {str(k): v for k, v in getattr(self, name).groupby(
+                "participant", sort=False, observed=True).indices.items()}
+            for name in _SLICED_FRAMES
+        }
+
+    @cached_property
+    def _roster_rows(self) -> dict[str, dict[str, object]]:
+        return {str(r["participant"]): r for r in self.roster.to_dict("records")}
+
+    def slice(self, participant: str) -> ParticipantData:
+        """One participant's rows of every frame (in their order in the study's frames)."""
+        empty = np.empty(0, dtype=np.intp)
+
+        def rows(name: str) -> pd.DataFrame:
+            where = self._positions[name].get(participant, empty)
+            return getattr(self, name).iloc[where].reset_index(drop=True)
+
+        roster = self._roster_rows[participant]
         return ParticipantData(
             participant=participant,
             language=str(roster["language"]),
@@ -78,12 +103,16 @@ class Study:
             consent=str(roster["consent"]),
             feedback=bool(roster["feedback"]),
             therapist=bool(roster["therapist"]),
-            momentary=rows(self.momentary),
-            events=rows(self.events),
-            questionnaires=rows(self.questionnaires),
-            quality=rows(self.quality),
-            set_aside=rows(self.set_aside),
+            momentary=rows("momentary"),
+            events=rows("events"),
+            questionnaires=rows("questionnaires"),
+            quality=rows("quality"),
+            set_aside=rows("set_aside"),
         )
+
+    def rows_of(self, participant: str) -> int:
+        """How many momentary rows the participant has (a cheap estimate of their work)."""
+        return len(self._positions["momentary"].get(participant, ()))
 
 
 @dataclass(frozen=True)

@@ -10,6 +10,7 @@ not depend on scheduling.
 
 from __future__ import annotations
 
+import itertools
 import multiprocessing
 import os
 from collections.abc import Callable, Iterable, Iterator, Sized
@@ -22,6 +23,8 @@ J = TypeVar("J")
 R = TypeVar("R")
 
 Report = Callable[[str, str], None]
+
+_NO_JOB: Any = object()
 
 _stage_report: Callable[[str], None] | None = None
 """Where `stage()` reports, while a job runs in this process (None in worker processes)."""
@@ -74,6 +77,11 @@ def run_jobs(
     if backend != "local":
         raise SpringbackError(f"unknown backend '{backend}'; use 'local' or 'dask'")
     size = total if total is not None else (len(jobs) if isinstance(jobs, Sized) else None)
+    queue = iter(jobs)
+    first = next(queue, _NO_JOB)
+    if first is _NO_JOB:  # nothing to do (every participant reused): start no workers
+        return []
+    jobs = itertools.chain([first], queue)
     n = jobs_n or default_jobs()
     if size is not None:
         n = min(n, max(1, size))
