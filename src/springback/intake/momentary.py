@@ -166,7 +166,7 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
     cols = settings.data.columns
     rows = raw["source_row"].to_numpy()
     participant = as_text(raw["participant"], missing)
-    pid = participant.fillna("").to_numpy()
+    pid = participant.fillna("").array  # compact text; only rows with problems become str
     bad = np.zeros(len(raw), bool)
     out = pd.DataFrame({"participant": participant.fillna("")})
     given = np.zeros(len(raw), bool)
@@ -269,12 +269,13 @@ def _resolve_repeats(where: str, frame: pd.DataFrame, settings: StudySettings,
                      sink: Sink) -> pd.DataFrame:
     """Keep one row per prompt: answered over unanswered; identical copies once; clashes fail."""
     items = list(settings.items)
-    both = frame["participant"] + "\x1f" + frame["_key"]
-    repeated = both.duplicated(keep=False).to_numpy()
+    # Duplicates of the (participant, prompt) pair, found column by column (factorised), not
+    # on a joined text: that made a Python string for every row.
+    repeated = frame.duplicated(["participant", "_key"], keep=False).to_numpy()
     if not repeated.any():
         return frame
     drop: list[int] = []
-    for _, group in frame[repeated].groupby(both[repeated], sort=False):
+    for _, group in frame[repeated].groupby(["participant", "_key"], sort=False):
         drop += _one_repeat(where, group, items, settings, sink)
     return frame.drop(index=drop).reset_index(drop=True)
 
