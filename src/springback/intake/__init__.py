@@ -20,6 +20,7 @@ from springback.intake.quality import momentary_frame, quality_frame, quality_ta
 from springback.intake.questionnaires import questionnaire_frame, read_questionnaires
 from springback.intake.readers import Table, as_number, as_text, read_table
 from springback.intake.roster import read_roster
+from springback.memory import release_free_memory
 from springback.model import Study
 from springback.settings import SETTINGS_FILE, StudySettings, load_settings
 
@@ -51,6 +52,7 @@ class CheckReport:
 def load_study(project: Path, *, strict: bool = False) -> Study:
     """Read and check a project folder; raise with every problem if any is an error."""
     study, problems = _load(Path(project))
+    release_free_memory()  # checking needed several times the data's size; keep only the data
     fatal = any(p.is_error for p in problems) or (strict and problems)
     if fatal or study is None:
         from_settings = all(p.where.startswith(SETTINGS_FILE) for p in problems)

@@ -234,18 +234,26 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
     out["answered"] = given
     key_col = "scheduled" if "scheduled" in raw.columns else "timestamp"
     key_text = as_text(raw[key_col], missing)
-    out["_key"] = key_text.fillna("row " + pd.Series(rows.astype(str), index=raw.index))
+    no_key = key_text.isna().to_numpy()
+    if no_key.any():  # a prompt without a time is its own prompt (named by its row)
+        key_text = key_text.copy()
+        key_text[no_key] = [f"row {r}" for r in rows[no_key]]
+    out["_key"] = key_text
     keep = ~bad & (participant.notna().to_numpy())
-    named = out[participant.notna().to_numpy()]
-    scheduled = named.drop_duplicates(["participant", "_key"]).groupby("participant").size()
+    named = out.loc[participant.notna().to_numpy(), ["participant", "_key"]]
+    scheduled = named.drop_duplicates().groupby("participant").size()
+    del named
     empty = participant.isna().to_numpy() & ~given
     sink.aside(where, rows[empty], [""] * int(empty.sum()), "an empty row")
-    frame = _resolve_repeats(where, out[keep].reset_index(drop=True), settings, sink)
+    from_rows = bool((~given).any()) or (
+        "scheduled" in raw.columns and settings.study.prompts_per_day is None)
+    kept = out[keep].reset_index(drop=True)
+    del out  # large studies: never hold the checked rows twice while repeats are resolved
+    frame = _resolve_repeats(where, kept, settings, sink)
+    del kept
     late_after = pd.Timedelta(minutes=settings.data.late_after_minutes)
     frame["late"] = (frame["answered"] & ((frame["time"] - frame["scheduled"]) > late_after))
     frame = frame.drop(columns="_key")
-    from_rows = bool((~out["answered"]).any()) or (
-        "scheduled" in raw.columns and settings.study.prompts_per_day is None)
     return Prompts(frame, from_rows, scheduled)
 
 
