@@ -32,7 +32,6 @@ from springback.build_output import (
     study_tables,
     write_files,
 )
-from springback.memory import release_free_memory
 from springback.model import ParticipantData, Study
 from springback.settings import StudySettings, normalised
 
@@ -230,8 +229,9 @@ def fewer_collections() -> Iterator[None]:
     frees; at CPython's default young-generation threshold (700) the cyclic collector still
     runs thousands of times per booklet, traversing them each time (about a fifth of the PDF
     render time here, see benchmarks/bench_stages.py). Memory stays bounded because the block
-    ends with a full collection (and gives the free heap back to the system), and
-    `render_booklets` collects after every PDF.
+    ends with a full collection and `render_booklets` collects after every PDF. (The free heap
+    is not handed back to the system between participants: the next one would only fault the
+    same pages in again.)
     """
     before = gc.get_threshold()
     gc.set_threshold(YOUNG_GENERATION_THRESHOLD, *before[1:])
@@ -239,7 +239,7 @@ def fewer_collections() -> Iterator[None]:
         yield
     finally:
         gc.set_threshold(*before)
-        release_free_memory()  # the next participant starts from a small process again
+        gc.collect()
 
 
 def run_job(job: Job) -> ParticipantOutcome:
