@@ -1,8 +1,8 @@
 """Give memory the process no longer uses back to the operating system.
 
 CPython and Arrow free their objects into the C library's heap, which keeps the pages for
-reuse; after a large temporary working set (checking a study's files, laying out a booklet)
-the process's resident size stays at its peak although most of it is free. glibc's
+reuse; after a large temporary working set (checking a study's files) the process's resident
+size stays at its peak although most of it is free. glibc's
 `malloc_trim` returns those free pages (measured on a 2000-participant study: 494 MiB resident
 after loading, 228 MiB after trimming, for 99 MiB of data). Elsewhere this only collects.
 """
