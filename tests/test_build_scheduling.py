@@ -99,3 +99,24 @@ def test_time_zones_of_many_rows_share_one_string_per_zone() -> None:
     assert str(times.utc.iloc[2]) == "2026-03-02 08:00:00+00:00"
     assert str(times.utc.iloc[0]) == "2026-03-02 08:00:00+00:00"  # its own offset, +01:00
     assert str(times.utc.iloc[1]) == "2026-03-02 09:00:00+00:00"
+
+
+def test_frame_digest_changes_with_values_names_and_types_only() -> None:
+    """Check a participant's data digest is the same for an equal frame (another index too) and
+    differs after one changed value, a renamed column or a changed type."""
+    from springback.build import frame_digest
+
+    frame = pd.DataFrame({
+        "participant": pd.Series(["P1", "P1"], dtype="str"),
+        "time": pd.to_datetime(["2026-03-02 08:00", "2026-03-02 11:00"], utc=True),
+        "down": [2.0, float("nan")],
+    })
+    same = frame.copy()
+    same.index = [7, 8]
+    assert frame_digest(frame) == frame_digest(same)
+    changed = frame.copy()
+    changed.loc[1, "down"] = 3.0
+    renamed = frame.rename(columns={"down": "low"})
+    retyped = frame.astype({"down": "float32"})
+    digests = {frame_digest(f) for f in (frame, changed, renamed, retyped)}
+    assert len(digests) == 4

@@ -123,6 +123,20 @@ def frame_bytes(df: pd.DataFrame) -> bytes:
     return buf.getvalue().encode("utf-8")
 
 
+def frame_digest(df: pd.DataFrame) -> bytes:
+    """A digest of a frame's columns, types and values (for a participant's fingerprint).
+
+    pandas' row hashes (`hash_pandas_object`, 64 bits a row) under SHA-256, with the column
+    names and types: about 12 times faster than hashing the frame's CSV text, which at 2000
+    participants made fingerprinting the longest part of a rebuild. A pandas release that
+    hashed differently would only rebuild every booklet once.
+    """
+    h = hashlib.sha256()
+    h.update(json.dumps([[str(c), str(t)] for c, t in df.dtypes.items()]).encode("utf-8"))
+    h.update(pd.util.hash_pandas_object(df, index=False).to_numpy().tobytes())
+    return h.digest()
+
+
 BOOKLET_NEUTRAL_SETTINGS = ("delivery", "archive", "output")
 """Settings sections that cannot change a booklet's content: editing them keeps its version."""
 
@@ -150,7 +164,7 @@ def fingerprint(
     the study's end (silence rules look back from it)."""
     h = hashlib.sha256()
     for part in (data.momentary, data.events, data.questionnaires):
-        h.update(frame_bytes(part))
+        h.update(frame_digest(part))
     roster = f"{data.participant}|{data.language}|{data.region}|{data.consent}|"
     roster += f"{data.feedback}|{data.therapist}"
     for text in (roster, settings_digest, templates_digest, __version__, str(period_end)):
