@@ -241,8 +241,9 @@ def fewer_collections() -> Iterator[None]:
 
     Laying out a booklet allocates millions of short-lived objects that reference counting
     frees; at CPython's default young-generation threshold (700) the cyclic collector still
-    runs thousands of times per booklet, traversing them each time (about a fifth of the PDF
-    render time here, see benchmarks/bench_stages.py). Memory stays bounded because the block
+    runs thousands of times per booklet, traversing them each time (a fifth of the PDF time in
+    an alternating test of four booklets, 5% over the 200-participant benchmark's 271; see the
+    README's Performance section). Memory stays bounded because the block
     ends with a full collection and `render_booklets` collects after every PDF. (The free heap
     is not handed back to the system between participants: the next one would only fault the
     same pages in again.)
