@@ -12,7 +12,6 @@ from __future__ import annotations
 import dataclasses
 import gc
 import hashlib
-import io
 import json
 from collections.abc import Callable, Iterable, Iterator
 from contextlib import contextmanager
@@ -114,13 +113,6 @@ def summary_key(o: ParticipantOutcome) -> str:
 
 # ---------------------------------------------------------------------------------------
 # Fingerprints: what a booklet depends on
-
-
-def frame_bytes(df: pd.DataFrame) -> bytes:
-    """Canonical CSV bytes of a frame (for hashing a participant's data slice)."""
-    buf = io.StringIO()
-    df.to_csv(buf, index=False, lineterminator="\n", date_format="%Y-%m-%dT%H:%M:%S%z")
-    return buf.getvalue().encode("utf-8")
 
 
 def frame_digest(df: pd.DataFrame) -> bytes:

@@ -9,6 +9,7 @@ file by file. `archive_staged` then records the staged folder as an archived bui
 from __future__ import annotations
 
 import dataclasses
+import io
 import shutil
 from collections.abc import Iterable
 from datetime import datetime
@@ -27,10 +28,7 @@ REUSABLE = ("built", "no feedback", "not enough data", "withdrawn")
 
 def stage_files(outcome: ParticipantOutcome, staging: Path) -> ParticipantOutcome:
     """Write the outcome's files into `staging` and return it without their bytes."""
-    for rel, data in outcome.files.items():
-        path = staging / rel
-        path.parent.mkdir(parents=True, exist_ok=True)
-        path.write_bytes(data)
+    write_files(outcome.files, staging)
     stored = tuple(sorted({*outcome.stored, *outcome.files}))
     return dataclasses.replace(outcome, files={}, stored=stored)
 
@@ -146,9 +144,15 @@ def _rows_by_participant(path: Path) -> dict[str, list[dict[str, Any]]]:
     return out
 
 
+def frame_bytes(df: pd.DataFrame) -> bytes:
+    """A frame as the CSV bytes of a study table (UTF-8, LF, ISO times with their offset)."""
+    buf = io.StringIO()
+    df.to_csv(buf, index=False, lineterminator="\n", date_format="%Y-%m-%dT%H:%M:%S%z")
+    return buf.getvalue().encode("utf-8")
+
+
 def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[str, bytes]:
     """The study-wide CSV tables: metrics, flags, shifts, quality, set-aside rows."""
-    from springback.build import frame_bytes
     from springback.metrics.results import METRICS_CSV_COLUMNS
 
     outcomes = list(outcomes)
