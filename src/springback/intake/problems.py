@@ -2,8 +2,9 @@
 
 from __future__ import annotations
 
-from collections import Counter
+import heapq
 from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -19,17 +20,46 @@ SET_ASIDE_FIX = 'correct the value, or set on_bad_rows = "set aside" under [data
 
 
 class Sink:
-    """Where intake puts every problem and every row it cannot use."""
+    """Where intake puts every problem and every row it cannot use.
+
+    A large file is checked a few participants at a time, so problems of one kind can arrive
+    in several calls; they are listed and summed up as if the file had been checked at once.
+    """
 
     def __init__(self, on_bad_rows: str = "error") -> None:
         self.set_aside_bad = on_bad_rows == "set aside"
-        self.problems: list[Problem] = []
+        self._items: list[Problem | _Kind | _Slot] = []
         self._aside: list[tuple[str, int, str, str, str]] = []
-        self._listed: Counter[tuple[str, str | None, str]] = Counter()
+        self._kinds: dict[tuple[str, str | None, str], _Kind] = {}
+
+    @property
+    def problems(self) -> list[Problem]:
+        """Every problem so far, in the order found."""
+        out: list[Problem] = []
+        for item in self._items:
+            if isinstance(item, Problem):
+                out.append(item)
+            elif isinstance(item, _Kind):
+                out += item.problems()
+            else:
+                out += item.problems
+        return out
 
     def add(self, problems: Problem | Sequence[Problem]) -> None:
         """Record problems as they are."""
-        self.problems += [problems] if isinstance(problems, Problem) else list(problems)
+        self._items += [problems] if isinstance(problems, Problem) else list(problems)
+
+    def slot(self) -> _Slot:
+        """A place in the list for problems only known later (counts over a whole file)."""
+        slot = _Slot([])
+        self._items.append(slot)
+        return slot
+
+    def take(self, other: Sink) -> None:
+        """Move another sink's problems (after this one's) and set-aside rows into this one."""
+        self._items += other._items
+        self._aside += other._aside
+        other._items, other._aside = [], []
 
     def aside(self, where: str, rows: Sequence[int], participants: Sequence[str],
               reason: str, column: str = "") -> None:
@@ -41,24 +71,24 @@ class Sink:
                  participants: Sequence[str], found: Sequence[str], *, what: str,
                  column: str | None, expected: str = "", fix: str = SET_ASIDE_FIX,
                  code: str) -> None:
-        """Report malformed rows: errors, or warnings plus set-aside rows when the study says so."""
+        """Report malformed rows: errors, or warnings plus set-aside rows when the study says so.
+
+        The first `LISTED_PER_KIND` rows of a kind (file, column, problem) in file order are
+        listed one by one and one line sums up the rest, however the rows were split between
+        calls; the kind keeps the place in the list where it was first found.
+        """
         rows = [int(r) for r in rows]
         if not rows:
             return
         severity = Severity.WARNING if self.set_aside_bad else Severity.ERROR
         key = (where, column, code)
-        room = max(0, LISTED_PER_KIND - self._listed[key])
         if self.set_aside_bad:
             fix = "the row is set aside and listed in the quality report"
-        for r, f in zip(rows[:room], found[:room], strict=True):
-            self.problems.append(Problem(severity, where, what, expected=expected, found=f,
-                                         fix=fix, row=r, column=column, code=code))
-        if len(rows) > room:
-            more = len(rows) - room
-            self.problems.append(Problem(
-                severity, where, f"{more} more row{'s' if more > 1 else ''} with this problem: "
-                f"{what}", fix=fix, column=column, code=code))
-        self._listed[key] += len(rows)
+        if key not in self._kinds:
+            self._kinds[key] = _Kind(Problem(severity, where, what, expected=expected, fix=fix,
+                                             column=column, code=code))
+            self._items.append(self._kinds[key])
+        self._kinds[key].add(rows, found)
         self.aside(where, rows, participants, what, column or "")
 
     @property
@@ -71,6 +101,37 @@ class Sink:
         frame["row"] = frame["row"].astype("int64")
         frame = frame.drop_duplicates(["file", "row", "reason"])
         return frame.sort_values(["file", "row"], kind="stable").reset_index(drop=True)
+
+
+@dataclass
+class _Kind:
+    """Bad rows of one kind: the first ones in file order, and how many there are in all."""
+
+    like: Problem
+    first: list[tuple[int, str]] = field(default_factory=list)
+    count: int = 0
+
+    def add(self, rows: list[int], found: Sequence[str]) -> None:
+        self.count += len(rows)
+        # Only the rows that can still be among the first are kept (in file order).
+        self.first = heapq.nsmallest(LISTED_PER_KIND, [*self.first, *zip(rows, found,
+                                                                            strict=True)],
+                                     key=lambda pair: pair[0])
+
+    def problems(self) -> list[Problem]:
+        out = [replace(self.like, found=f, row=r) for r, f in self.first]
+        more = self.count - len(self.first)
+        if more:
+            out.append(replace(self.like, what=f"{more} more row{'s' if more > 1 else ''} "
+                               f"with this problem: {self.like.what}", expected=""))
+        return out
+
+
+@dataclass
+class _Slot:
+    """Problems that belong at an earlier place in the list than when they are known."""
+
+    problems: list[Problem]
 
 
 def rows_list(rows: Sequence[int], limit: int = 6) -> str:
