@@ -6,6 +6,7 @@ import hashlib
 import math
 import stat
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -313,14 +314,14 @@ def test_long_layout_repeats_and_unknown_items(tmp_path: Path) -> None:
 def test_unopenable_file_is_reported(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     """Check that a file the system refuses to open gives a problem, not a traceback."""
     root = make_project(tmp_path / "study")
-    real = Path.read_bytes
+    real = Path.open
 
-    def refuse(self: Path) -> bytes:
+    def refuse(self: Path, *args: Any, **kwargs: Any) -> Any:
         if self.name == "momentary.csv":
             raise PermissionError(13, "Permission denied")
-        return real(self)
+        return real(self, *args, **kwargs)
 
-    monkeypatch.setattr(Path, "read_bytes", refuse)
+    monkeypatch.setattr(Path, "open", refuse)
     assert [p.message() for p in check_study(root).problems] == [
         "data/momentary.csv: the file cannot be opened: Permission denied. Fix: check that "
         "you may read it and that no other program locks it"]

@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
+import codecs
 import csv
 import io
 import re
 import warnings
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field
+from itertools import dropwhile
 from pathlib import Path
 from typing import Any
 
@@ -38,15 +41,81 @@ class Table:
     frame: pd.DataFrame
     value_labels: dict[str, dict[Any, str]] = field(default_factory=dict)
     notes: tuple[Problem, ...] = ()
+    row_numbers: np.ndarray | None = None
+    """The rows' numbers when `frame` holds only some of the file's rows."""
 
     @property
     def rows(self) -> np.ndarray:
         """The spreadsheet row number of every frame row."""
+        if self.row_numbers is not None:
+            return self.row_numbers
         return np.arange(len(self.frame)) + 2
+
+    def part(self, frame: pd.DataFrame, rows: np.ndarray) -> Table:
+        """The same file's table holding only some of its rows (numbered as in the file)."""
+        return Table(self.where, self.path, frame, self.value_labels, (), rows)
+
+
+@dataclass(frozen=True)
+class TableChunks:
+    """A file read a block of rows at a time: its columns, notes, and the blocks as tables."""
+
+    where: str
+    path: Path
+    columns: list[str]
+    chunks: Iterator[Table]
+    value_labels: dict[str, dict[Any, str]] = field(default_factory=dict)
+    notes: tuple[Problem, ...] = ()
 
 
 def read_table(path: Path, where: str, *, sheet: str | None = None) -> Table:
     """Read one data file chosen by its extension; raise DataError saying why it cannot be read."""
+    kind = _kind(path, where)
+    notes: list[Problem] = []
+    labels: dict[str, dict[Any, str]] = {}
+    with _opening(where):
+        if kind == "CSV":
+            csv_format = _csv_format(path, where, notes)
+            frame = _parse_csv(path, where, csv_format)
+        else:
+            frame, labels = _read_binary(path, where, kind, sheet)
+    frame.columns = [str(c).strip() for c in frame.columns]
+    _check_header(frame, where)
+    return Table(where, path, frame.reset_index(drop=True), labels, tuple(notes))
+
+
+def read_chunks(path: Path, where: str, *, sheet: str | None = None,
+                rows: int = 100_000) -> TableChunks:
+    """Read a data file `rows` rows at a time (CSV files stream; other kinds are read whole).
+
+    The file's header is checked before this returns; a problem found further into the file
+    is raised as DataError while the chunks are read.
+    """
+    kind = _kind(path, where)
+    if kind != "CSV":
+        table = read_table(path, where, sheet=sheet)
+        return TableChunks(where, path, list(table.frame.columns), iter([table]),
+                           table.value_labels, table.notes)
+    notes: list[Problem] = []
+    with _opening(where):
+        csv_format = _csv_format(path, where, notes)
+        head = _parse_csv(path, where, csv_format, nrows=0)
+    columns = [str(c).strip() for c in head.columns]
+    _check_header(pd.DataFrame(columns=columns), where)
+
+    def chunks() -> Iterator[Table]:
+        first = 2
+        with _opening(where):
+            for frame in _parse_csv(path, where, csv_format, chunksize=rows):
+                frame.columns = columns
+                frame = frame.reset_index(drop=True)
+                yield Table(where, path, frame, {}, (), np.arange(len(frame)) + first)
+                first += len(frame)
+
+    return TableChunks(where, path, columns, chunks(), {}, tuple(notes))
+
+
+def _kind(path: Path, where: str) -> str:
     kind = FORMATS.get(path.suffix.lower())
     if kind is None:
         raise DataError([error(
@@ -61,46 +130,126 @@ def read_table(path: Path, where: str, *, sheet: str | None = None) -> Table:
     if path.stat().st_size == 0:
         raise DataError([error(where, "the file is empty", fix="export the data again",
                                code="empty-file")])
-    notes: list[Problem] = []
-    labels: dict[str, dict[Any, str]] = {}
+    return kind
+
+
+@contextmanager
+def _opening(where: str) -> Iterator[None]:
     try:
-        if kind == "CSV":
-            frame = _read_csv(path, where, notes)
-        else:
-            frame, labels = _read_binary(path, where, kind, sheet)
+        yield
     except OSError as exc:
         raise DataError([error(
             where, f"the file cannot be opened: {exc.strerror or exc}",
             fix="check that you may read it and that no other program locks it",
             code="unreadable")]) from None
-    frame.columns = [str(c).strip() for c in frame.columns]
-    _check_header(frame, where)
-    return Table(where, path, frame.reset_index(drop=True), labels, tuple(notes))
 
 
-def _read_csv(path: Path, where: str, notes: list[Problem]) -> pd.DataFrame:
-    data = path.read_bytes()
-    text = _decode(data, where, notes)
-    if "\x00" in text:
-        raise DataError([error(where, "the file is not text (it holds NUL bytes)",
-                               expected="a CSV file", fix="export the data as CSV again",
-                               code="unreadable")])
-    if not text.strip():
+@dataclass(frozen=True)
+class _CsvFormat:
+    encoding: str
+    delimiter: str
+    header: list[str]
+
+
+def _csv_format(path: Path, where: str, notes: list[Problem]) -> _CsvFormat:
+    """Find the text encoding and the delimiter, reading the file in blocks (never whole)."""
+    encoding, sample = _encoding(path, where, notes)
+    if encoding == "latin-1":
+        encoding, sample = _encoding(path, where, notes, "latin-1")
+    if sample is None:
         raise DataError([error(where, "the file is empty", fix="export the data again",
                                code="empty-file")])
-    delimiter = sniff_delimiter(text)
+    delimiter = sniff_delimiter(sample)
+    try:
+        head = sample.lstrip("\r\n")
+        header = next(csv.reader(io.StringIO(head, newline=""), delimiter=delimiter), [])
+    except csv.Error:
+        header = []
+    return _CsvFormat(encoding, delimiter, [h.strip() for h in header])
+
+
+SAMPLE_CHARS = 1 << 20
+"""Text kept from the file's start to find the delimiter and the header (the first MiB)."""
+
+
+def _encoding(path: Path, where: str, notes: list[Problem],
+              encoding: str | None = None) -> tuple[str, str | None]:
+    """The file's encoding and its first MiB of text (None when the file holds only spaces).
+
+    UTF-8 (with or without a byte-order mark) or UTF-16 with its mark; a file that is not
+    valid UTF-8 is read as Latin-1 with a note (older Excel and SPSS exports on Windows write
+    it, and reading it that way never fails).
+    """
+    with path.open("rb") as f:
+        start = f.read(3)
+        f.seek(0)
+        if encoding is None:
+            if start.startswith(b"\xef\xbb\xbf"):
+                encoding = "utf-8-sig"
+            elif start.startswith((b"\xff\xfe", b"\xfe\xff")):
+                encoding = "utf-16"
+            else:
+                encoding = "utf-8"
+        decoder = codecs.getincrementaldecoder(encoding)()
+        sample, text_seen = "", False
+        try:
+            while block := f.read(1 << 20):
+                text = decoder.decode(block)
+                if "\x00" in text:
+                    raise DataError([error(
+                        where, "the file is not text (it holds NUL bytes)",
+                        expected="a CSV file", fix="export the data as CSV again",
+                        code="unreadable")])
+                text_seen = text_seen or bool(text.strip())
+                if len(sample) < SAMPLE_CHARS:
+                    sample += text[: SAMPLE_CHARS - len(sample)]
+            decoder.decode(b"", final=True)
+        except UnicodeDecodeError:
+            if encoding == "utf-16":
+                raise DataError([error(where, "the file starts like UTF-16 text but is not",
+                                       fix="save it as UTF-8 CSV", code="unreadable")]) from None
+            notes.append(warning(
+                where, "the file is not UTF-8; it was read as Latin-1",
+                fix="check that names with accents look right, or save the file as UTF-8",
+                code="latin-1"))
+            return "latin-1", None
+    return encoding, sample if text_seen else None
+
+
+def _parse_csv(path: Path, where: str, fmt: _CsvFormat, *, chunksize: int | None = None,
+               nrows: int | None = None) -> Any:
+    """pandas' C parser on the file: a frame, or an iterator of frames with `chunksize`."""
+    options = dict(sep=fmt.delimiter, dtype=str, index_col=False, keep_default_na=False,
+                   na_filter=False, engine="c", skip_blank_lines=True, encoding=fmt.encoding)
+    if chunksize is None:
+        frame = _parsing(path, where, fmt, lambda: pd.read_csv(path, nrows=nrows, **options))
+        if len(fmt.header) == frame.shape[1]:
+            # pandas renames repeated headers (sad, sad.1), so the raw header is checked too.
+            _check_duplicate_names(fmt.header, where)
+        return frame
+    return _chunks(path, where, fmt, pd.read_csv(path, chunksize=chunksize, **options))
+
+
+def _chunks(path: Path, where: str, fmt: _CsvFormat, reader: Any) -> Iterator[pd.DataFrame]:
+    with reader:
+        while True:
+            frame = _parsing(path, where, fmt, lambda: next(reader, None))
+            if frame is None:
+                return
+            yield frame
+
+
+def _parsing(path: Path, where: str, fmt: _CsvFormat, parse: Any) -> Any:
+    """Run the parser; turn its complaints into problems that name the line."""
+    delimiter = fmt.delimiter
     try:
         with warnings.catch_warnings():
             # More fields than the header would silently lose data: make it an error.
             warnings.simplefilter("error", pd.errors.ParserWarning)
-            # Bytes, not a StringIO: StringIO holds 4 bytes a character, which tripled the
-            # peak memory of loading a large study.
-            frame = pd.read_csv(io.BytesIO(text.encode("utf-8")), sep=delimiter, dtype=str,
-                                index_col=False, keep_default_na=False, na_filter=False,
-                                engine="c", skip_blank_lines=True, encoding="utf-8")
+            return parse()
     except pd.errors.ParserWarning:
         raise DataError([error(
-            where, f"the file cannot be read as CSV: {_long_line(text, delimiter)}",
+            where, f"the file cannot be read as CSV: {_long_line(path, fmt)}",
             expected=f"the same number of '{_name(delimiter)}'-separated fields on every line",
             fix="look at the line named (an unclosed quote or an extra separator is usual)",
             code="unreadable")]) from None
@@ -113,37 +262,6 @@ def _read_csv(path: Path, where: str, notes: list[Problem]) -> pd.DataFrame:
             expected=f"the same number of '{_name(delimiter)}'-separated fields on every line",
             fix="look at the line named (an unclosed quote or an extra separator is usual)",
             code="unreadable")]) from None
-    # pandas renames repeated headers (sad, sad.1), so the raw header line is checked too.
-    try:
-        head = text[: 1 << 20].lstrip("\r\n")  # the header is in the first MiB
-        header = next(csv.reader(io.StringIO(head, newline=""), delimiter=delimiter), [])
-    except csv.Error:
-        header = []
-    names = [h.strip() for h in header]
-    if len(names) == frame.shape[1]:
-        _check_duplicate_names(names, where)
-    return frame
-
-
-def _decode(data: bytes, where: str, notes: list[Problem]) -> str:
-    if data.startswith(b"\xef\xbb\xbf"):
-        data = data[3:]
-    elif data.startswith((b"\xff\xfe", b"\xfe\xff")):
-        try:
-            return data.decode("utf-16")
-        except UnicodeDecodeError:
-            raise DataError([error(where, "the file starts like UTF-16 text but is not",
-                                   fix="save it as UTF-8 CSV", code="unreadable")]) from None
-    try:
-        return data.decode("utf-8")
-    except UnicodeDecodeError:
-        # Older Excel and SPSS exports on Windows write Latin-1; reading it that way never
-        # fails, so the user is told in case names with accents come out wrong.
-        notes.append(warning(
-            where, "the file is not UTF-8; it was read as Latin-1",
-            fix="check that names with accents look right, or save the file as UTF-8",
-            code="latin-1"))
-        return data.decode("latin-1")
 
 
 def sniff_delimiter(text: str) -> str:
@@ -161,17 +279,19 @@ def sniff_delimiter(text: str) -> str:
     return best
 
 
-def _long_line(text: str, delimiter: str) -> str:
+def _long_line(path: Path, fmt: _CsvFormat) -> str:
     """Name the first line with more fields than the header (only called when one exists)."""
-    reader = csv.reader(io.StringIO(text.lstrip("\r\n"), newline=""), delimiter=delimiter)
-    try:
-        width = len(next(reader, []))
-        for fields in reader:
-            if len(fields) > width:
-                return (f"line {reader.line_num} has {len(fields)} fields but the header "
-                        f"has {width}")
-    except csv.Error:
-        pass
+    with path.open(encoding=fmt.encoding, newline="") as f:
+        lines = dropwhile(lambda line: not line.strip("\r\n"), f)  # as the parser does
+        reader = csv.reader(lines, delimiter=fmt.delimiter)
+        try:
+            width = len(next(reader, []))
+            for fields in reader:
+                if len(fields) > width:
+                    return (f"line {reader.line_num} has {len(fields)} fields but the header "
+                            f"has {width}")
+        except csv.Error:
+            pass
     return "a line has more fields than the header"
 
 
