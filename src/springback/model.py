@@ -15,6 +15,7 @@ import pandas as pd
 
 from springback.errors import Problem
 from springback.settings import StudySettings
+from springback.store import Frames, MemoryFrames
 
 MOMENTARY_COLUMNS = ("participant", "time", "local_time", "study_day", "scheduled", "source_row")
 """Fixed columns of `Study.momentary`; then one float column per item, then one per composite.
@@ -43,17 +44,22 @@ QUALITY_COLUMNS = (
 )
 
 
-_SLICED_FRAMES = ("momentary", "events", "questionnaires", "quality", "set_aside")
+_SLICED_FRAMES = ("events", "questionnaires", "quality", "set_aside")
 
 
 @dataclass(frozen=True)
 class Study:
-    """A loaded, validated study: settings plus tidy frames (see the column contracts)."""
+    """A loaded, validated study: settings plus tidy frames (see the column contracts).
+
+    The momentary rows, by far the largest part, are held as `Frames` read one participant at
+    a time (`load_study` keeps them in a private file, see `springback.store`); `momentary`
+    gives all of them as one frame. A frame passed as `momentary_rows` is kept in memory.
+    """
 
     root: Path
     settings: StudySettings
     roster: pd.DataFrame
-    momentary: pd.DataFrame
+    momentary_rows: Frames | pd.DataFrame
     events: pd.DataFrame
     questionnaires: pd.DataFrame
     set_aside: pd.DataFrame
@@ -61,6 +67,21 @@ class Study:
     warnings: tuple[Problem, ...] = ()
     input_files: tuple[Path, ...] = field(default=())
     """Every file that was read (absolute paths), for the archive manifest."""
+    last_prompt: pd.Timestamp | None = None
+    """The latest answer or scheduled prompt time of anyone (UTC), or None without prompts."""
+
+    def __post_init__(self) -> None:
+        if isinstance(self.momentary_rows, pd.DataFrame):
+            frame = self.momentary_rows
+            object.__setattr__(self, "momentary_rows", MemoryFrames(frame))
+            if self.last_prompt is None:
+                object.__setattr__(self, "last_prompt", latest_prompt(frame))
+
+    @property
+    def momentary(self) -> pd.DataFrame:
+        """Every momentary row as one frame (sorted by participant, then time)."""
+        assert isinstance(self.momentary_rows, Frames)
+        return self.momentary_rows.frame()
 
     @property
     def about(self) -> str:
@@ -87,6 +108,12 @@ class Study:
     def _roster_rows(self) -> dict[str, dict[str, object]]:
         return {str(r["participant"]): r for r in self.roster.to_dict("records")}
 
+    def index(self) -> None:
+        """Find every participant's rows now (otherwise done by the first `slice`)."""
+        _ = self._positions, self._roster_rows
+        assert isinstance(self.momentary_rows, Frames)
+        self.momentary_rows.names()
+
     def slice(self, participant: str) -> ParticipantData:
         """One participant's rows of every frame (in their order in the study's frames)."""
         empty = np.empty(0, dtype=np.intp)
@@ -94,6 +121,8 @@ class Study:
         def rows(name: str) -> pd.DataFrame:
             where = self._positions[name].get(participant, empty)
             return getattr(self, name).iloc[where].reset_index(drop=True)
+
+        assert isinstance(self.momentary_rows, Frames)
 
         roster = self._roster_rows[participant]
         return ParticipantData(
@@ -103,7 +132,7 @@ class Study:
             consent=str(roster["consent"]),
             feedback=bool(roster["feedback"]),
             therapist=bool(roster["therapist"]),
-            momentary=rows("momentary"),
+            momentary=self.momentary_rows.rows(participant),
             events=rows("events"),
             questionnaires=rows("questionnaires"),
             quality=rows("quality"),
@@ -112,7 +141,18 @@ class Study:
 
     def rows_of(self, participant: str) -> int:
         """How many momentary rows the participant has (a cheap estimate of their work)."""
-        return len(self._positions["momentary"].get(participant, ()))
+        assert isinstance(self.momentary_rows, Frames)
+        return self.momentary_rows.count(participant)
+
+
+def latest_prompt(momentary: pd.DataFrame) -> pd.Timestamp | None:
+    """The latest answer or scheduled time in momentary rows (UTC), None when there is none."""
+    times = [momentary[c].max() for c in ("time", "local_time", "scheduled")
+             if c in momentary.columns]
+    times = [pd.Timestamp(t) for t in times if pd.notna(t)]
+    if not times:
+        return None
+    return max(t.tz_convert("UTC") if t.tzinfo else t.tz_localize("UTC") for t in times)
 
 
 @dataclass(frozen=True)

@@ -97,11 +97,8 @@ def study_end(study: Study) -> pd.Timestamp | None:
     """The study's last prompt or score, in the study's time zone (the data period's end)."""
     tz = study.settings.study.timezone
     ends: list[pd.Timestamp] = []
-    m = study.momentary
-    if len(m):
-        ends.append(_local(m["local_time"], tz).max())
-        if "scheduled" in m.columns and m["scheduled"].notna().any():
-            ends.append(_local(m["scheduled"].dropna(), tz).max())
+    if study.last_prompt is not None:  # found while the study was read: no rows are reread
+        ends.append(_in_zone(study.last_prompt, tz))
     if len(study.questionnaires):
         ends.append(_local(study.questionnaires["local_time"], tz).max())
     ends = [e for e in ends if pd.notna(e)]

@@ -13,13 +13,22 @@ import pandas as pd
 import pyarrow
 
 from springback.errors import DataError, Problem, SettingsError, error, warning
+from springback.intake import stream
 from springback.intake.events import event_frame, read_events
-from springback.intake.momentary import Prompts, read_momentary
+from springback.intake.momentary import read_momentary
 from springback.intake.problems import Sink
-from springback.intake.quality import momentary_frame, quality_frame, quality_table
+from springback.intake.quality import quality_frame, quality_table
 from springback.intake.questionnaires import questionnaire_frame, read_questionnaires
-from springback.intake.readers import Table, as_number, as_text, read_table
+from springback.intake.readers import (
+    Table,
+    TableChunks,
+    as_number,
+    as_text,
+    read_chunks,
+    read_table,
+)
 from springback.intake.roster import read_roster
+from springback.intake.stream import Momentary, check_momentary
 from springback.memory import release_free_memory
 from springback.model import Study
 from springback.settings import SETTINGS_FILE, StudySettings, load_settings
@@ -52,6 +61,8 @@ class CheckReport:
 def load_study(project: Path, *, strict: bool = False) -> Study:
     """Read and check a project folder; raise with every problem if any is an error."""
     study, problems = _load(Path(project))
+    if study is not None:
+        study.index()  # made now, among the study's other lasting objects, not after them
     release_free_memory()  # checking needed several times the data's size; keep only the data
     fatal = any(p.is_error for p in problems) or (strict and problems)
     if fatal or study is None:
@@ -140,53 +151,64 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
             return None
         return got
 
+    def chunked(path: Path) -> TableChunks | None:
+        full = _path(project, path)
+        try:
+            got = read_chunks(full, path.as_posix(), sheet=data.sheet, rows=stream.CHUNK_ROWS)
+        except DataError as exc:
+            sink.add(exc.problems)
+            return None
+        read.append(full.resolve())
+        sink.add(list(got.notes))
+        return got
+
     roster_table = table(data.participants, "participants")
-    momentary_table = table(data.momentary, "momentary")
+    momentary_chunks = chunked(data.momentary)
     events_table = table(data.events, "events")
     questionnaire_table = table(data.questionnaires, "questionnaires")
     roster_problems: list[Problem] = []
     roster = read_roster(roster_table, settings, roster_problems) if roster_table else None
     sink.add(roster_problems)
-    prompts = read_momentary(momentary_table, settings, sink) if momentary_table else None
+    roster_where = data.participants.as_posix()
+    consent_sink = Sink(settings.data.on_bad_rows)  # told after the other files' problems
+    consent = None
+    if roster is not None:
+        consenting = set(roster.loc[roster["consent"] == "yes", "participant"])
+        withdrawn = set(roster.loc[roster["consent"] == "withdrawn", "participant"])
+        listed = set(roster["participant"])
+
+        def consent(frame: pd.DataFrame, out: Sink, where: str = "") -> pd.DataFrame:
+            return _consent_rules(where or data.momentary.as_posix(), frame, consenting,
+                                  withdrawn, listed, roster_where, settings, out)
+
+    momentary = check_momentary(momentary_chunks, settings, sink, consent, consent_sink) \
+        if momentary_chunks else None
     events = read_events(events_table, settings, sink) if events_table else None
     scores = read_questionnaires(questionnaire_table, settings, sink) \
         if questionnaire_table else None
-    if roster is None or prompts is None or momentary_table is None:
+    if roster is None or momentary is None or consent is None:
         return None, sink.problems
-    consenting = set(roster.loc[roster["consent"] == "yes", "participant"])
-    withdrawn = set(roster.loc[roster["consent"] == "withdrawn", "participant"])
-    listed = set(roster["participant"])
-    roster_where = data.participants.as_posix()
-    kept = _consent_rules(momentary_table.where, prompts.frame, consenting, withdrawn, listed,
-                          roster_where, settings, sink)
     if events_table is not None and events is not None:
-        events = _consent_rules(events_table.where, events, consenting, withdrawn, listed,
-                                roster_where, settings, sink)
+        events = consent(events, consent_sink, events_table.where)
     if questionnaire_table is not None and scores is not None:
-        scores = _consent_rules(questionnaire_table.where, scores, consenting, withdrawn, listed,
-                                roster_where, settings, sink)
-    momentary = momentary_frame(kept, settings)
-    _late_and_absent(momentary_table.where, kept, momentary, roster, roster_where, settings, sink)
+        scores = consent(scores, consent_sink, questionnaire_table.where)
+    sink.take(consent_sink)
+    _late_and_absent(data.momentary.as_posix(), momentary, roster, roster_where, settings, sink)
     zone = settings.study.timezone
     events_out = event_frame(events if events is not None else _no_events(), zone)
     scores_out = questionnaire_frame(scores if scores is not None else _no_scores(), zone)
     set_aside = sink.set_aside_frame()
-    late = kept[kept["answered"]].groupby("participant")["late"].sum()
-    quality = quality_frame(roster, momentary, late, _schedule(prompts, settings), set_aside,
-                            settings)
+    quality = quality_frame(roster, momentary.summary, momentary.late["late"],
+                            momentary.scheduled, set_aside, settings)
     study = Study(
         root=project.resolve(), settings=settings,
         roster=roster.drop(columns="_row").sort_values("participant").reset_index(drop=True),
-        momentary=momentary, events=events_out, questionnaires=scores_out,
+        momentary_rows=momentary.rows, events=events_out, questionnaires=scores_out,
         set_aside=set_aside, quality=quality,
         warnings=tuple(p for p in sink.problems if not p.is_error),
-        input_files=tuple(read),
+        input_files=tuple(read), last_prompt=momentary.last_prompt,
     )
     return study, sink.problems
-
-
-def _schedule(prompts: Prompts, settings: StudySettings) -> pd.Series | None:
-    return prompts.scheduled if prompts.from_rows else None
 
 
 def _no_events() -> pd.DataFrame:
@@ -229,21 +251,18 @@ def _consent_rules(where: str, frame: pd.DataFrame, consenting: set[str], withdr
     return frame[who.isin(consenting)].reset_index(drop=True)
 
 
-def _late_and_absent(where: str, prompts: pd.DataFrame, momentary: pd.DataFrame,
-                     roster: pd.DataFrame, roster_where: str, settings: StudySettings,
-                     sink: Sink) -> None:
+def _late_and_absent(where: str, momentary: Momentary, roster: pd.DataFrame,
+                     roster_where: str, settings: StudySettings, sink: Sink) -> None:
     """Warn about late answers and about consenting people with no answers at all."""
     minutes = settings.data.late_after_minutes
-    late = prompts[prompts["late"]].groupby("participant")["source_row"]
-    for person, rows in late:
-        n = len(rows)
+    for person, (n, row) in momentary.late[["late", "row"]].iterrows():
         sink.add(warning(where, f"{n} answer{'s' if n > 1 else ''} of participant '{person}' "
                          f"came more than {minutes:g} minutes after the prompt",
-                         row=int(rows.min()),
+                         row=int(row),
                          fix="check the device clocks; late answers are counted in the quality "
                          "report (late_after_minutes under [data] sets the limit)",
                          code="late-answers"))
-    has_data = set(momentary["participant"].unique())
+    has_data = set(momentary.summary.index)
     for person, row in roster.loc[roster["consent"] == "yes", ["participant", "_row"]].itertuples(
             index=False):
         if person not in has_data:

@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import difflib
+from collections import Counter
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
-from springback.errors import error, warning
+from springback.errors import Problem, error, warning
 from springback.intake.problems import Sink, rows_list
 from springback.intake.readers import Table, as_number, as_text, missing_mask
 from springback.intake.times import ISO_EXAMPLE, parse_times, zone_texts
@@ -42,34 +43,23 @@ class Prompts:
 
 def read_momentary(table: Table, settings: StudySettings, sink: Sink) -> Prompts | None:
     """Check and convert the momentary rows; None when required columns are missing."""
+    if not has_momentary_columns(table.where, list(table.frame.columns), settings, sink):
+        return None
+    unknown: Counter[str | None] = Counter()
+    prompts = check_prompts(table, settings, sink, unknown)
+    sink.add(unknown_items(table.where, unknown, settings))
+    return prompts
+
+
+def has_momentary_columns(where: str, present: list[str], settings: StudySettings,
+                          sink: Sink) -> bool:
+    """Whether the file has every column the study needs (each missing one is an error)."""
     cols = settings.data.columns
-    item_cols = {k: (v.column or k) for k, v in settings.items.items()}
     needed = {cols.participant: "participant", cols.timestamp: "timestamp"}
     if settings.data.layout == "long":
-        needed |= {cols.item: "item", cols.value: "value"}
-        wanted = needed
+        wanted = needed | {cols.item: "item", cols.value: "value"}
     else:
-        wanted = needed | {c: f"items.{k}" for k, c in item_cols.items()}
-    if not _has_columns(table, wanted, sink):
-        return None
-    frame = table.frame
-    raw = pd.DataFrame({"participant": frame[cols.participant],
-                        "timestamp": frame[cols.timestamp]})
-    for name, key in ((cols.scheduled, "scheduled"), (cols.answered, "answered"),
-                      (cols.timezone, "zone")):
-        if name in frame.columns and name not in needed:
-            raw[key] = frame[name]
-    raw["source_row"] = table.rows
-    if settings.data.layout == "long":
-        raw = _widen(table, raw, item_cols, settings, sink)
-    else:
-        for key, c in item_cols.items():
-            raw[key] = frame[c]
-    return _check_rows(table.where, raw, settings, sink)
-
-
-def _has_columns(table: Table, wanted: dict[str, str], sink: Sink) -> bool:
-    present = list(table.frame.columns)
+        wanted = needed | {(v.column or k): f"items.{k}" for k, v in settings.items.items()}
     ok = True
     for name, role in wanted.items():
         if name in present:
@@ -82,11 +72,55 @@ def _has_columns(table: Table, wanted: dict[str, str], sink: Sink) -> bool:
             how = f'set {role} = "..." under [data.columns] in study.toml'
         hint = f"did you mean '{close[0]}'? Rename the column, or {how}" if close else \
             f"add the column, or {how}"
-        sink.add(error(table.where, f"column '{name}' is missing",
+        sink.add(error(where, f"column '{name}' is missing",
                        expected=f"a column named '{name}' ({_role(role)})",
                        found="columns " + _names(present), fix=hint, column=name,
                        code="missing-column"))
     return ok
+
+
+def check_prompts(table: Table, settings: StudySettings, sink: Sink,
+                  unknown: Counter[str | None]) -> Prompts:
+    """Check and convert rows of a momentary file that has every needed column.
+
+    The rows may be all of the file or every row of some participants; rows of items the
+    study does not define (long layout) are counted in `unknown` for `unknown_items`.
+    """
+    cols = settings.data.columns
+    item_cols = {k: (v.column or k) for k, v in settings.items.items()}
+    needed = {cols.participant, cols.timestamp}
+    if settings.data.layout == "long":
+        needed |= {cols.item, cols.value}
+    frame = table.frame
+    raw = pd.DataFrame({"participant": frame[cols.participant],
+                        "timestamp": frame[cols.timestamp]})
+    for name, key in ((cols.scheduled, "scheduled"), (cols.answered, "answered"),
+                      (cols.timezone, "zone")):
+        if name in frame.columns and name not in needed:
+            raw[key] = frame[name]
+    raw["source_row"] = table.rows
+    if settings.data.layout == "long":
+        raw = _widen(table, raw, item_cols, settings, sink, unknown)
+    else:
+        for key, c in item_cols.items():
+            raw[key] = frame[c]
+    return _check_rows(table.where, raw, settings, sink)
+
+
+def unknown_items(where: str, unknown: Counter[str | None],
+                  settings: StudySettings) -> list[Problem]:
+    """One warning per item the study does not define, with its number of rows (long layout).
+
+    Such rows are like unused columns in the wide layout: named once per item, not row by row.
+    """
+    out = []
+    for name, n in unknown.most_common():
+        label = "(empty)" if name is None else f"'{name}'"
+        out.append(warning(where, f"item {label} is not defined in study.toml; its {n} "
+                           f"row{'s are' if n > 1 else ' is'} not used",
+                           fix="add it under [items] if it should be used",
+                           column=settings.data.columns.item, code="unknown-item-rows"))
+    return out
 
 
 def _role(role: str) -> str:
@@ -99,21 +133,15 @@ def _names(names: list[str], limit: int = 8) -> str:
 
 
 def _widen(table: Table, raw: pd.DataFrame, item_cols: dict[str, str],
-           settings: StudySettings, sink: Sink) -> pd.DataFrame:
+           settings: StudySettings, sink: Sink, unknown: Counter[str | None]) -> pd.DataFrame:
     """Turn long rows (one per item) into one row per prompt."""
     cols = settings.data.columns
     missing = settings.data.missing_values
     by_column = {c: k for k, c in item_cols.items()}
     item = as_text(table.frame[cols.item], missing)
     known = item.isin(list(by_column)).to_numpy()
-    # Rows of items the study does not use are like unused columns in the wide layout: they
-    # are named once per item, not listed row by row.
     for name, n in item[~known].value_counts(dropna=False).items():
-        label = "(empty)" if pd.isna(name) else f"'{name}'"
-        sink.add(warning(table.where, f"item {label} is not defined in study.toml; its {n} "
-                         f"row{'s are' if n > 1 else ' is'} not used",
-                         fix="add it under [items] if it should be used",
-                         column=cols.item, code="unknown-item-rows"))
+        unknown[None if pd.isna(name) else str(name)] += int(n)
     long = raw[known].copy()
     long["item"] = item[known].map(by_column)
     long["value"] = table.frame[cols.value][known]

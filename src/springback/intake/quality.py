@@ -50,22 +50,43 @@ def momentary_frame(prompts: pd.DataFrame, settings: StudySettings) -> pd.DataFr
     return out[[*MOMENTARY_COLUMNS, *settings.items, *settings.composites]]
 
 
-def quality_frame(roster: pd.DataFrame, momentary: pd.DataFrame, late: pd.Series,
+SUMMARY_COLUMNS = ("answered", "first_day", "last_day", "days_covered", "longest_gap_hours")
+
+
+def momentary_summary(momentary: pd.DataFrame) -> pd.DataFrame:
+    """Per participant (index): answered prompts, first and last study day, days, longest gap.
+
+    Made from every row of each participant it names (a large study is summed up a few
+    participants at a time and the parts concatenated).
+    """
+    by = momentary.groupby("participant")
+    gaps = momentary["time"].groupby(momentary["participant"]).diff().dt.total_seconds() / 3600
+    out = pd.DataFrame({
+        "answered": by.size().astype("int64"),
+        "first_day": by["study_day"].min(),
+        "last_day": by["study_day"].max(),
+        "days_covered": by["study_day"].nunique().astype("int64"),
+        "longest_gap_hours": gaps.groupby(momentary["participant"]).max().astype(float),
+    })
+    out.index = out.index.astype(str)
+    return out
+
+
+def quality_frame(roster: pd.DataFrame, summary: pd.DataFrame, late: pd.Series,
                   scheduled: pd.Series | None, set_aside: pd.DataFrame,
                   settings: StudySettings) -> pd.DataFrame:
     """One row per roster participant: answered, scheduled, compliance, days, gaps, late, aside.
 
-    `scheduled` counts distinct prompts per participant when the file lists every prompt;
-    otherwise prompts_per_day x the days from first to last answer (NaN when neither is known).
+    `summary` is `momentary_summary` of every participant's rows. `scheduled` counts distinct
+    prompts per participant when the file lists every prompt; otherwise prompts_per_day x the
+    days from first to last answer (NaN when neither is known).
     """
     ids = pd.Index(sorted(roster["participant"].astype(str)), name="participant")
-    by = momentary.groupby("participant")
-    answered = by.size().reindex(ids, fill_value=0).astype("int64")
-    first = by["study_day"].min().reindex(ids)
-    last = by["study_day"].max().reindex(ids)
-    days = by["study_day"].nunique().reindex(ids, fill_value=0).astype("int64")
-    gaps = momentary["time"].groupby(momentary["participant"]).diff().dt.total_seconds() / 3600
-    longest = gaps.groupby(momentary["participant"]).max().reindex(ids).astype(float)
+    answered = summary["answered"].reindex(ids, fill_value=0).astype("int64")
+    first = summary["first_day"].reindex(ids).astype("datetime64[ns]")
+    last = summary["last_day"].reindex(ids).astype("datetime64[ns]")
+    days = summary["days_covered"].reindex(ids, fill_value=0).astype("int64")
+    longest = summary["longest_gap_hours"].reindex(ids).astype(float)
     if scheduled is not None:
         planned = scheduled.reindex(ids, fill_value=0).astype(float)
     elif settings.study.prompts_per_day is not None:
