@@ -233,3 +233,21 @@ def test_crosscorr_leaves_out_items_that_do_not_vary():
             for s, e in ((0, 39), (20, 59))]
     np.testing.assert_allclose(got, want, rtol=1e-9)
     assert np.isnan(rl.window_crosscorr(np.ones((30, 2)), np.array([0]), np.array([29]))[0, 0])
+
+
+def test_crosscorr_of_many_series_is_computed_in_blocks_exactly():
+    """Check that 250 series (three blocks) give each series' own values, matching scipy."""
+    rng = np.random.default_rng(29)
+    items = rng.normal(size=(80, 3, 250)).astype(np.float32)
+    starts, ends = np.array([0, 10, 40]), np.array([39, 49, 79])
+    got = rl.window_crosscorr(items, starts, ends)
+    assert got.shape == (3, 250) and rl.SERIES_PER_BLOCK < 250
+    for m in (0, 99, 100, 249):  # the same numbers as the series computed alone
+        np.testing.assert_array_equal(got[:, m], rl.window_crosscorr(items[:, :, m:m + 1],
+                                                                     starts, ends)[:, 0])
+    # scipy.stats.pearsonr per item pair, averaged (the definition of the indicator)
+    s, e = 10, 49
+    x = items[s:e + 1, :, 249].astype(float)
+    want = np.mean([stats.pearsonr(x[:, i], x[:, j]).statistic
+                    for i, j in ((0, 1), (0, 2), (1, 2))])
+    np.testing.assert_allclose(got[1, 249], want, rtol=1e-4)  # float32 running sums

@@ -167,12 +167,9 @@ def early_warnings(series: Series, settings: StudySettings, participant: str) ->
     method = m.detrend
     bandwidths: list[float | None] = list(m.bandwidths_days) if method == "gaussian" else [None]
     main_bw = m.bandwidth_days if method == "gaussian" else None
-    cache: dict[float | None, _Detrended] = {}
 
     def detrended(bw: float | None) -> _Detrended:
-        if bw not in cache:
-            cache[bw] = _detrended(series, method, bw, m.surrogates, m.seed, participant)
-        return cache[bw]
+        return _detrended(series, method, bw, m.surrogates, m.seed, participant)
 
     params = {"window": m.window, "detrend": method, "bandwidth_days": main_bw,
               "surrogates": m.surrogates, "surrogate_kinds": list(KINDS),
@@ -187,8 +184,12 @@ def early_warnings(series: Series, settings: StudySettings, participant: str) ->
                f"there were {series.n}")
         return Family(estimates=_all_missing(why, series.n), tables=_empty_tables(),
                       params=params)
-    grid = {(w, bw): _cell(series, detrended(bw), w, m.min_window_prompts)
-            for bw in bandwidths for w in m.windows}
+    grid: dict[tuple[float, float | None], _Cell] = {}
+    for bw in bandwidths:  # one bandwidth's surrogates in memory at a time (17 MB each)
+        det = detrended(bw)
+        for w in m.windows:
+            grid[(w, bw)] = _cell(series, det, w, m.min_window_prompts)
+        del det
     main = grid.get((m.window, main_bw)) or _cell(series, detrended(main_bw), m.window,
                                                    m.min_window_prompts)
     cc_roll, cc_tau, cc_p, cc_why = _crosscorr(series, method, main_bw, main, m.surrogates,
