@@ -27,7 +27,7 @@ from springback.model import latest_prompt
 from springback.settings import StudySettings
 from springback.store import DiskFrames, Frames, MemoryFrames
 
-CHUNK_ROWS = 100_000
+CHUNK_ROWS = 20_000
 """Rows read from a CSV file at a time."""
 
 GROUP_ROWS = 50_000
