@@ -243,3 +243,23 @@ def test_disk_frames_folder_is_private_and_removed() -> None:
     assert any(folder.iterdir())
     spill.close()
     assert not folder.exists()
+
+
+def test_set_aside_rows_kept_as_codes_give_the_same_frame() -> None:
+    """Check the compact set-aside log against a frame built from one tuple per row."""
+    main, other = Sink(), Sink()
+    main.aside("data/momentary.csv", np.array([9, 4, 4]), ["p2", "p1", "p1"], "an empty row")
+    main.aside("data/momentary.csv", [4], ["p1"], "a copy of row 3", column="sad")
+    other.aside("data/events.csv", [2], ["p3"], "participant withdrew consent")
+    main.take(other)
+    # reference: pandas' own frame of the rows as tuples, deduplicated and sorted the same way
+    rows = [("data/momentary.csv", 9, "", "p2", "an empty row"),
+            ("data/momentary.csv", 4, "", "p1", "an empty row"),
+            ("data/momentary.csv", 4, "", "p1", "an empty row"),
+            ("data/momentary.csv", 4, "sad", "p1", "a copy of row 3"),
+            ("data/events.csv", 2, "", "p3", "participant withdrew consent")]
+    want = pd.DataFrame(rows, columns=["file", "row", "column", "participant", "reason"])
+    want = want.drop_duplicates(["file", "row", "reason"]).sort_values(
+        ["file", "row"], kind="stable").reset_index(drop=True)
+    pd.testing.assert_frame_equal(main.set_aside_frame(), want)
+    assert other.set_aside_frame().empty

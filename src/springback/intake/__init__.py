@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pyarrow
 
@@ -233,14 +234,22 @@ def _consent_rules(where: str, frame: pd.DataFrame, consenting: set[str], withdr
     """Rows of people not on the roster are errors; withdrawn people's rows are set aside."""
     column = settings.data.columns.participant
     who = frame["participant"]
-    stranger = ~who.isin(listed)
+    # Membership of each distinct id, then spread to the rows: Series.isin with a set of
+    # thousands of ids rebuilt that set for every call (a third of loading 20,000 people).
+    codes, ids = pd.factorize(who)
+
+    def member(group: set[str]) -> pd.Series:
+        known = np.array([i in group for i in ids] + [False], dtype=bool)
+        return pd.Series(known[codes], index=who.index)  # code -1 (no id) reads the False
+
+    stranger = ~member(listed)
     for person, rows in frame.loc[stranger, "source_row"].groupby(who[stranger]):
         sink.add(error(where, f"participant '{person}' is not in the roster (no consent record)",
                        found=f"{len(rows)} row{'s' if len(rows) > 1 else ''}",
                        row=int(rows.min()), column=column,
                        fix=f"add '{person}' to {roster_where} with their consent, or remove "
                        "their rows", code="not-in-roster"))
-    gone = who.isin(withdrawn)
+    gone = member(withdrawn)
     for person, rows in frame.loc[gone, "source_row"].groupby(who[gone]):
         sink.add(warning(where, f"participant '{person}' withdrew consent; their {len(rows)} "
                          f"row{'s are' if len(rows) > 1 else ' is'} set aside",
@@ -248,7 +257,7 @@ def _consent_rules(where: str, frame: pd.DataFrame, consenting: set[str], withdr
                          fix="delete their rows from the file to silence this",
                          code="withdrawn"))
         sink.aside(where, rows.tolist(), [person] * len(rows), "participant withdrew consent")
-    return frame[who.isin(consenting)].reset_index(drop=True)
+    return frame[member(consenting)].reset_index(drop=True)
 
 
 def _late_and_absent(where: str, momentary: Momentary, roster: pd.DataFrame,

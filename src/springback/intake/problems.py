@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import heapq
+from array import array
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 
@@ -29,7 +30,7 @@ class Sink:
     def __init__(self, on_bad_rows: str = "error") -> None:
         self.set_aside_bad = on_bad_rows == "set aside"
         self._items: list[Problem | _Kind | _Slot] = []
-        self._aside: list[tuple[str, int, str, str, str]] = []
+        self._aside = _AsideLog()
         self._kinds: dict[tuple[str, str | None, str], _Kind] = {}
 
     @property
@@ -58,14 +59,13 @@ class Sink:
     def take(self, other: Sink) -> None:
         """Move another sink's problems (after this one's) and set-aside rows into this one."""
         self._items += other._items
-        self._aside += other._aside
-        other._items, other._aside = [], []
+        self._aside.extend(other._aside)
+        other._items, other._aside = [], _AsideLog()
 
     def aside(self, where: str, rows: Sequence[int], participants: Sequence[str],
               reason: str, column: str = "") -> None:
         """List rows that are not used, with the reason (no problem is raised for them)."""
-        self._aside += [(where, int(r), column, str(p), reason)
-                        for r, p in zip(rows, participants, strict=True)]
+        self._aside.add(where, rows, participants, reason, column)
 
     def bad_rows(self, where: str, rows: Sequence[int] | np.ndarray,
                  participants: Sequence[str], found: Sequence[str], *, what: str,
@@ -97,10 +97,62 @@ class Sink:
 
     def set_aside_frame(self) -> pd.DataFrame:
         """Every set-aside row, one line per row and reason, in file and row order."""
-        frame = pd.DataFrame(self._aside, columns=list(SET_ASIDE_COLUMNS))
-        frame["row"] = frame["row"].astype("int64")
+        frame = self._aside.frame()
         frame = frame.drop_duplicates(["file", "row", "reason"])
         return frame.sort_values(["file", "row"], kind="stable").reset_index(drop=True)
+
+
+class _AsideLog:
+    """Set-aside rows as numbers: each text (file, column, participant, reason) is stored once.
+
+    A large study sets aside hundreds of thousands of rows (repeats, empty prompts); a tuple
+    of five objects per row took over 100 bytes each, these take 24.
+    """
+
+    def __init__(self) -> None:
+        self._codes: dict[str, int] = {}
+        self._texts: list[str] = []
+        self._rows = array("q")
+        self._columns = {name: array("i") for name in ("file", "column", "participant",
+                                                        "reason")}
+
+    def _code(self, text: str) -> int:
+        code = self._codes.get(text)
+        if code is None:
+            code = self._codes[text] = len(self._texts)
+            self._texts.append(text)
+        return code
+
+    def add(self, where: str, rows: Sequence[int] | np.ndarray, participants: Sequence[str],
+            reason: str, column: str) -> None:
+        n = len(rows)
+        if len(participants) != n:
+            raise ValueError("one participant per set-aside row")
+        self._rows.extend(int(r) for r in rows)
+        for name, text in (("file", where), ("column", column), ("reason", reason)):
+            self._columns[name].extend([self._code(text)] * n)
+        self._columns["participant"].extend(self._code(str(p)) for p in participants)
+
+    def extend(self, other: _AsideLog) -> None:
+        recode = [self._code(text) for text in other._texts]
+        self._rows.extend(other._rows)
+        for name, codes in other._columns.items():
+            self._columns[name].extend(recode[c] for c in codes)
+
+    def frame(self) -> pd.DataFrame:
+        texts = np.asarray(self._texts, dtype=object)
+
+        def column(name: str) -> pd.Series:
+            codes = np.frombuffer(self._columns[name], dtype=np.int32) if self._rows else \
+                np.empty(0, dtype=np.int32)
+            return pd.Series(texts[codes] if len(texts) else np.empty(0, dtype=object),
+                             dtype="str")
+
+        rows = np.frombuffer(self._rows, dtype=np.int64) if self._rows else \
+            np.empty(0, dtype=np.int64)
+        return pd.DataFrame({"file": column("file"), "row": pd.Series(rows.copy()),
+                             "column": column("column"), "participant": column("participant"),
+                             "reason": column("reason")})[list(SET_ASIDE_COLUMNS)]
 
 
 @dataclass
