@@ -196,7 +196,7 @@ def test_study_end() -> None:
 
     data = _data(days=4, scores={6: 3})
     study = Study(root=None, settings=_settings(), roster=pd.DataFrame(),  # type: ignore[arg-type]
-                  momentary_rows=data.momentary, events=data.events,
-                  questionnaires=data.questionnaires, set_aside=data.set_aside,
+                  momentary_rows=data.momentary, event_rows=data.events,
+                  questionnaire_rows=data.questionnaires, set_aside=data.set_aside,
                   quality=data.quality)
     assert study_end(study) == pd.Timestamp("2026-03-07 19:00", tz=TZ)

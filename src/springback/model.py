@@ -44,24 +44,25 @@ QUALITY_COLUMNS = (
 )
 
 
-_SLICED_FRAMES = ("events", "questionnaires", "quality", "set_aside")
+_SLICED_FRAMES = ("quality", "set_aside")
 
 
 @dataclass(frozen=True)
 class Study:
     """A loaded, validated study: settings plus tidy frames (see the column contracts).
 
-    The momentary rows, by far the largest part, are held as `Frames` read one participant at
-    a time (`load_study` keeps them in a private file, see `springback.store`); `momentary`
-    gives all of them as one frame. A frame passed as `momentary_rows` is kept in memory.
+    The timed rows (momentary, events, questionnaires), which grow with every prompt, are held
+    as `Frames` read one participant at a time (`load_study` keeps them in private files, see
+    `springback.store`); `momentary`, `events` and `questionnaires` give all rows as one frame.
+    Frames passed instead are kept in memory.
     """
 
     root: Path
     settings: StudySettings
     roster: pd.DataFrame
     momentary_rows: Frames | pd.DataFrame
-    events: pd.DataFrame
-    questionnaires: pd.DataFrame
+    event_rows: Frames | pd.DataFrame
+    questionnaire_rows: Frames | pd.DataFrame
     set_aside: pd.DataFrame
     quality: pd.DataFrame
     warnings: tuple[Problem, ...] = ()
@@ -69,19 +70,37 @@ class Study:
     """Every file that was read (absolute paths), for the archive manifest."""
     last_prompt: pd.Timestamp | None = None
     """The latest answer or scheduled prompt time of anyone (UTC), or None without prompts."""
+    last_score: pd.Timestamp | None = None
+    """The latest questionnaire time of anyone (UTC), or None without scores."""
 
     def __post_init__(self) -> None:
-        if isinstance(self.momentary_rows, pd.DataFrame):
-            frame = self.momentary_rows
-            object.__setattr__(self, "momentary_rows", MemoryFrames(frame))
-            if self.last_prompt is None:
-                object.__setattr__(self, "last_prompt", latest_prompt(frame))
+        for name, latest in (("momentary_rows", "last_prompt"),
+                             ("questionnaire_rows", "last_score"), ("event_rows", None)):
+            frame = getattr(self, name)
+            if isinstance(frame, pd.DataFrame):
+                object.__setattr__(self, name, MemoryFrames(frame))
+                if latest and getattr(self, latest) is None:
+                    object.__setattr__(self, latest, latest_time(frame))
 
     @property
     def momentary(self) -> pd.DataFrame:
         """Every momentary row as one frame (sorted by participant, then time)."""
-        assert isinstance(self.momentary_rows, Frames)
-        return self.momentary_rows.frame()
+        return self._rows("momentary_rows").frame()
+
+    @property
+    def events(self) -> pd.DataFrame:
+        """Every event as one frame (sorted by participant, then time)."""
+        return self._rows("event_rows").frame()
+
+    @property
+    def questionnaires(self) -> pd.DataFrame:
+        """Every questionnaire score as one frame (sorted by participant, then time)."""
+        return self._rows("questionnaire_rows").frame()
+
+    def _rows(self, name: str) -> Frames:
+        rows = getattr(self, name)
+        assert isinstance(rows, Frames)  # frames are wrapped when the study is made
+        return rows
 
     @property
     def about(self) -> str:
@@ -111,8 +130,8 @@ class Study:
     def index(self) -> None:
         """Find every participant's rows now (otherwise done by the first `slice`)."""
         _ = self._positions, self._roster_rows
-        assert isinstance(self.momentary_rows, Frames)
-        self.momentary_rows.names()
+        for name in ("momentary_rows", "event_rows", "questionnaire_rows"):
+            self._rows(name).names()
 
     def slice(self, participant: str) -> ParticipantData:
         """One participant's rows of every frame (in their order in the study's frames)."""
@@ -122,8 +141,6 @@ class Study:
             where = self._positions[name].get(participant, empty)
             return getattr(self, name).iloc[where].reset_index(drop=True)
 
-        assert isinstance(self.momentary_rows, Frames)
-
         roster = self._roster_rows[participant]
         return ParticipantData(
             participant=participant,
@@ -132,23 +149,21 @@ class Study:
             consent=str(roster["consent"]),
             feedback=bool(roster["feedback"]),
             therapist=bool(roster["therapist"]),
-            momentary=self.momentary_rows.rows(participant),
-            events=rows("events"),
-            questionnaires=rows("questionnaires"),
+            momentary=self._rows("momentary_rows").rows(participant),
+            events=self._rows("event_rows").rows(participant),
+            questionnaires=self._rows("questionnaire_rows").rows(participant),
             quality=rows("quality"),
             set_aside=rows("set_aside"),
         )
 
     def rows_of(self, participant: str) -> int:
         """How many momentary rows the participant has (a cheap estimate of their work)."""
-        assert isinstance(self.momentary_rows, Frames)
-        return self.momentary_rows.count(participant)
+        return self._rows("momentary_rows").count(participant)
 
 
-def latest_prompt(momentary: pd.DataFrame) -> pd.Timestamp | None:
-    """The latest answer or scheduled time in momentary rows (UTC), None when there is none."""
-    times = [momentary[c].max() for c in ("time", "local_time", "scheduled")
-             if c in momentary.columns]
+def latest_time(frame: pd.DataFrame) -> pd.Timestamp | None:
+    """The latest time in timed rows (answer, local or scheduled; UTC), None when none."""
+    times = [frame[c].max() for c in ("time", "local_time", "scheduled") if c in frame.columns]
     times = [pd.Timestamp(t) for t in times if pd.notna(t)]
     if not times:
         return None

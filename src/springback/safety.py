@@ -97,11 +97,9 @@ def study_end(study: Study) -> pd.Timestamp | None:
     """The study's last prompt or score, in the study's time zone (the data period's end)."""
     tz = study.settings.study.timezone
     ends: list[pd.Timestamp] = []
-    if study.last_prompt is not None:  # found while the study was read: no rows are reread
-        ends.append(_in_zone(study.last_prompt, tz))
-    if len(study.questionnaires):
-        ends.append(_local(study.questionnaires["local_time"], tz).max())
-    ends = [e for e in ends if pd.notna(e)]
+    for end in (study.last_prompt, study.last_score):  # found while the study was read
+        if end is not None and pd.notna(end):
+            ends.append(_in_zone(end, tz))
     return max(ends) if ends else None
 
 

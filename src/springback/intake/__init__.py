@@ -17,7 +17,7 @@ from springback.errors import DataError, Problem, SettingsError, error, warning
 from springback.intake import stream
 from springback.intake.events import event_frame, read_events
 from springback.intake.momentary import read_momentary
-from springback.intake.problems import Sink
+from springback.intake.problems import Sink, Slot
 from springback.intake.quality import quality_frame, quality_table
 from springback.intake.questionnaires import questionnaire_frame, read_questionnaires
 from springback.intake.readers import (
@@ -31,8 +31,9 @@ from springback.intake.readers import (
 from springback.intake.roster import read_roster
 from springback.intake.stream import Momentary, check_momentary
 from springback.memory import release_free_memory
-from springback.model import Study
+from springback.model import Study, latest_time
 from springback.settings import SETTINGS_FILE, StudySettings, load_settings
+from springback.store import DiskFrames
 
 __all__ = ["CheckReport", "check_study", "load_study", "quality_table", "read_prompts"]
 
@@ -127,7 +128,9 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
     data = settings.data
     read: list[Path] = [(project / SETTINGS_FILE).resolve()]
 
-    def table(path: Path | None, key: str) -> Table | None:
+    def table(path: Path | None, key: str, slot: Slot | None = None) -> Table | None:
+        """Read a whole file; its problems go to `slot` (a place kept in the list) if given."""
+        out = slot or sink
         if path is None:
             return None
         full = _path(project, path)
@@ -135,19 +138,19 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
             # Optional files: silently skipped at their default place, but a path the study
             # names itself that leads nowhere is worth a word (it may be a typo).
             if key in data.model_fields_set:
-                sink.add(warning(path.as_posix(), f"the {key} file is missing; the study "
+                out.add(warning(path.as_posix(), f"the {key} file is missing; the study "
                                  f"goes on without {key}", fix=f"correct {key} under [data], "
                                  "or remove the line", code="missing-optional-file"))
             return None
         try:
             got = read_table(full, path.as_posix(), sheet=data.sheet)
         except DataError as exc:
-            sink.add(exc.problems)
+            out.add(exc.problems)
             return None
         read.append(full.resolve())
-        sink.add(list(got.notes))
+        out.add(list(got.notes))
         if got.frame.empty and key in ("momentary", "participants"):
-            sink.add(error(got.where, "the file has a header but no rows",
+            out.add(error(got.where, "the file has a header but no rows",
                            fix="export the data again", code="no-rows"))
             return None
         return got
@@ -165,8 +168,9 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
 
     roster_table = table(data.participants, "participants")
     momentary_chunks = chunked(data.momentary)
-    events_table = table(data.events, "events")
-    questionnaire_table = table(data.questionnaires, "questionnaires")
+    # Events and scores are read after the momentary rows (so the two never take memory at
+    # once); their reading problems keep the place they would have had.
+    events_slot, scores_slot = sink.slot(), sink.slot()
     roster_problems: list[Problem] = []
     roster = read_roster(roster_table, settings, roster_problems) if roster_table else None
     sink.add(roster_problems)
@@ -184,32 +188,47 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
 
     momentary = check_momentary(momentary_chunks, settings, sink, consent, consent_sink) \
         if momentary_chunks else None
+    events_table = table(data.events, "events", events_slot)
     events = read_events(events_table, settings, sink) if events_table else None
-    scores = read_questionnaires(questionnaire_table, settings, sink) \
-        if questionnaire_table else None
+    events_where = events_table.where if events_table else ""
+    del events_table
+    scores_table = table(data.questionnaires, "questionnaires", scores_slot)
+    scores = read_questionnaires(scores_table, settings, sink) if scores_table else None
+    scores_where = scores_table.where if scores_table else ""
+    del scores_table
     if roster is None or momentary is None or consent is None:
         return None, sink.problems
-    if events_table is not None and events is not None:
-        events = consent(events, consent_sink, events_table.where)
-    if questionnaire_table is not None and scores is not None:
-        scores = consent(scores, consent_sink, questionnaire_table.where)
+    if events is not None:
+        events = consent(events, consent_sink, events_where)
+    if scores is not None:
+        scores = consent(scores, consent_sink, scores_where)
     sink.take(consent_sink)
     _late_and_absent(data.momentary.as_posix(), momentary, roster, roster_where, settings, sink)
     zone = settings.study.timezone
-    events_out = event_frame(events if events is not None else _no_events(), zone)
+    event_rows = _spill(event_frame(events if events is not None else _no_events(), zone))
     scores_out = questionnaire_frame(scores if scores is not None else _no_scores(), zone)
+    last_score = latest_time(scores_out)
+    score_rows = _spill(scores_out)
+    del events, scores, scores_out
     set_aside = sink.set_aside_frame()
     quality = quality_frame(roster, momentary.summary, momentary.late["late"],
                             momentary.scheduled, set_aside, settings)
     study = Study(
         root=project.resolve(), settings=settings,
         roster=roster.drop(columns="_row").sort_values("participant").reset_index(drop=True),
-        momentary_rows=momentary.rows, events=events_out, questionnaires=scores_out,
+        momentary_rows=momentary.rows, event_rows=event_rows, questionnaire_rows=score_rows,
         set_aside=set_aside, quality=quality,
         warnings=tuple(p for p in sink.problems if not p.is_error),
-        input_files=tuple(read), last_prompt=momentary.last_prompt,
+        input_files=tuple(read), last_prompt=momentary.last_prompt, last_score=last_score,
     )
     return study, sink.problems
+
+
+def _spill(frame: pd.DataFrame) -> DiskFrames:
+    """Timed rows kept in a private file, read back one participant at a time."""
+    rows = DiskFrames()
+    rows.append(frame, frame["participant"])
+    return rows.seal()
 
 
 def _no_events() -> pd.DataFrame:

@@ -29,7 +29,7 @@ class Sink:
 
     def __init__(self, on_bad_rows: str = "error") -> None:
         self.set_aside_bad = on_bad_rows == "set aside"
-        self._items: list[Problem | _Kind | _Slot] = []
+        self._items: list[Problem | _Kind | Slot] = []
         self._aside = _AsideLog()
         self._kinds: dict[tuple[str, str | None, str], _Kind] = {}
 
@@ -50,9 +50,9 @@ class Sink:
         """Record problems as they are."""
         self._items += [problems] if isinstance(problems, Problem) else list(problems)
 
-    def slot(self) -> _Slot:
+    def slot(self) -> Slot:
         """A place in the list for problems only known later (counts over a whole file)."""
-        slot = _Slot([])
+        slot = Slot([])
         self._items.append(slot)
         return slot
 
@@ -180,10 +180,13 @@ class _Kind:
 
 
 @dataclass
-class _Slot:
+class Slot:
     """Problems that belong at an earlier place in the list than when they are known."""
 
     problems: list[Problem]
+
+    def add(self, problems: Problem | Sequence[Problem]) -> None:
+        self.problems += [problems] if isinstance(problems, Problem) else list(problems)
 
 
 def rows_list(rows: Sequence[int], limit: int = 6) -> str:

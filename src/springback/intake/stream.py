@@ -23,7 +23,7 @@ from springback.intake.momentary import check_prompts, has_momentary_columns, un
 from springback.intake.problems import Sink
 from springback.intake.quality import SUMMARY_COLUMNS, momentary_frame, momentary_summary
 from springback.intake.readers import Table, TableChunks, as_text
-from springback.model import latest_prompt
+from springback.model import latest_time
 from springback.settings import StudySettings
 from springback.store import DiskFrames, Frames, MemoryFrames
 
@@ -101,7 +101,7 @@ def check_momentary(chunks: TableChunks, settings: StudySettings, sink: Sink,
             del kept
             tidy.append(momentary, momentary["participant"])
             summaries.append(momentary_summary(momentary))
-            when = latest_prompt(momentary)
+            when = latest_time(momentary)
             if when is not None:
                 last.append(when)
     finally:
