@@ -8,12 +8,15 @@ Prints tables; asserts nothing. Figures (see README, "Performance"):
   ratio is what the pipeline adds beyond rendering);
 - a rebuild after changing one participant's data, as a share of the full build time;
 - peak memory (RSS): the largest process of the full build, and metrics-only runs at two study
-  sizes, read after every `--every` participants, to show it stays flat. `--large-limit M`
-  computes only the first M participants of the large study (its data are still all loaded).
+  sizes, read after every `--every` participants, to show it stays flat. The large study is
+  the small one's files repeated under new ids (`--large` participants in all), and the same
+  people are computed in both (the small study's first `--computed`, default all of them), so
+  the only difference between the two runs is how many other participants the study holds.
 
 Each figure is printed as soon as it is measured, with the 1-minute load average beside it
 (the machine may be shared). Usage:
-python benchmarks/bench_build.py [--participants 200] [--jobs 2] [--large 2000] [--large-limit M]
+python benchmarks/bench_build.py [--participants 200] [--jobs 2] [--large 2000] [--computed M]
+                                  [--only-builds | --only-memory]
 """
 
 from __future__ import annotations
@@ -99,30 +102,53 @@ METRICS_ONLY = """
 import json, resource, sys, time
 from pathlib import Path
 from springback import intake, metrics
-limit, every = int(sys.argv[2]), int(sys.argv[3])
+wanted, every = json.loads(Path(sys.argv[2]).read_text()), int(sys.argv[3])
 def rss():
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
 t0 = time.perf_counter()
 study = intake.load_study(Path(sys.argv[1]))
 points = [(0, rss())]
 loaded = time.perf_counter() - t0
-people = study.participants()[:limit] if limit else study.participants()
-for i, pid in enumerate(people, start=1):
+for i, pid in enumerate(wanted, start=1):
     data = study.slice(pid)
     if data.consent == "yes":
         metrics.compute(data, study.settings)
-    if i % every == 0 or i == len(people):
+    if i % every == 0 or i == len(wanted):
         points.append((i, rss()))
 print(json.dumps({"points": points, "load_s": loaded, "n": len(study.participants()),
                   "s": time.perf_counter() - t0}))
 """
 
 
-def metrics_peak_rss(project: Path, limit: int = 0, every: int = 50) -> dict:
+def metrics_peak_rss(project: Path, participants: list[str], every: int = 50) -> dict:
     """Peak RSS (MiB) after loading the study and after every `every` participants computed."""
-    res = subprocess.run([sys.executable, "-c", METRICS_ONLY, str(project), str(limit),
+    wanted = project / "computed.json"
+    wanted.write_text(json.dumps(participants), encoding="utf-8")
+    res = subprocess.run([sys.executable, "-c", METRICS_ONLY, str(project), str(wanted),
                           str(every)], check=True, capture_output=True, text=True)
     return json.loads(res.stdout.strip().splitlines()[-1])
+
+
+def roster_ids(project: Path) -> list[str]:
+    lines = (project / "data" / "participants.csv").read_text(encoding="utf-8").splitlines()
+    return sorted(line.split(",")[0] for line in lines[1:] if line)
+
+
+def copies(project: Path, n: int, folder: Path) -> Path:
+    """The study's files repeated under new ids (P001, P001-c1, ...) until n participants."""
+    shutil.copytree(project, folder, ignore=shutil.ignore_patterns("out", "archive", ".*"))
+    ids = roster_ids(project)
+    per = len(ids)
+    for path in sorted((project / "data").glob("*.csv")):
+        lines = path.read_text(encoding="utf-8").splitlines()
+        head, body = lines[0], [line for line in lines[1:] if line]
+        out = [head, *body]
+        for k in range(1, -(-n // per)):
+            keep = body if (k + 1) * per <= n else [
+                line for line in body if line.split(",")[0] in ids[: n - k * per]]
+            out += [f"{line.split(',', 1)[0]}-c{k},{line.split(',', 1)[1]}" for line in keep]
+        (folder / "data" / path.name).write_text("\n".join(out) + "\n", encoding="utf-8")
+    return folder
 
 
 def touch_one_participant(project: Path) -> None:
@@ -155,49 +181,63 @@ def main() -> None:
     parser.add_argument("--participants", type=int, default=200)
     parser.add_argument("--jobs", type=int, default=2)
     parser.add_argument("--large", type=int, default=2000)
-    parser.add_argument("--large-limit", type=int, default=0,
-                        help="compute only this many participants of the large study (0: all)")
+    parser.add_argument("--computed", type=int, default=0,
+                        help="participants computed in each memory run (0: all of the small "
+                        "study)")
     parser.add_argument("--every", type=int, default=50)
     parser.add_argument("--only-builds", action="store_true",
                         help="skip the raw render sum and the memory runs (a quicker pass)")
+    parser.add_argument("--only-memory", action="store_true",
+                        help="only the metrics-only memory runs")
     args = parser.parse_args()
     print(f"python {sys.version.split()[0]}, {os.cpu_count()} cores; "
           f"{time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}", flush=True)
     with tempfile.TemporaryDirectory() as tmp:
         study = generate(args.participants, Path(tmp) / "study")
-        full, pdfs, _ = timed_build(study, args.jobs, force=True)
-        show(f"full build, {args.participants} participants, {args.jobs} jobs", f"{full:.1f} s",
-             f"{pdfs} PDF booklets (+ as many HTML): {pdfs / (full / 60):.1f} PDF booklets/min")
-        show("peak RSS of the largest build process", f"{children_peak_rss():.0f} MiB",
-             "target < 1024 MiB")
+        if not args.only_memory:
+            builds(study, args)
         if not args.only_builds:
-            for tuned, label in ((False, "plain"), (True, "with the build's GC setting")):
-                raw = raw_render_seconds(study, tuned=tuned)
-                show(f"raw WeasyPrint render of the same HTML, {label}", f"{raw:.1f} s",
-                     f"sum, 1 process; total/(raw/{args.jobs} jobs) = "
-                     f"{full / (raw / args.jobs):.2f}" + ("" if tuned else " (target <= 1.25)"))
-        again, _, reused = timed_build(study, args.jobs)
-        show("rebuild with nothing changed", f"{again:.1f} s",
-             f"{100 * again / full:.1f}% of the full build; {reused} reused")
-        touch_one_participant(study)
-        again, _, reused = timed_build(study, args.jobs)
-        show("rebuild after one participant's data changed", f"{again:.1f} s",
-             f"{100 * again / full:.1f}% of the full build (target < 5%); {reused} reused")
-        if args.only_builds:
-            return
-        small = metrics_peak_rss(study, every=args.every)
-        shutil.rmtree(study, ignore_errors=True)
-        show(f"peak RSS, metrics only, {args.participants} participants",
-             f"{small['points'][-1][1]:.0f} MiB", f"after loading {small['points'][0][1]:.0f} MiB")
-        large = generate(args.large, Path(tmp) / "large")
-        big = metrics_peak_rss(large, limit=args.large_limit, every=args.every)
-        done = big["points"][-1][0]
-        show(f"peak RSS, metrics only, {args.large} participants loaded, {done} computed",
-             f"{big['points'][-1][1]:.0f} MiB",
-             f"ratio to {args.participants}: {big['points'][-1][1] / small['points'][-1][1]:.2f}"
-             f"; loading took {big['load_s']:.0f} s, all {big['s']:.0f} s")
-        print("RSS (MiB) after n participants of the large study: "
-              + ", ".join(f"{n}: {r:.0f}" for n, r in big["points"]), flush=True)
+            memory(study, Path(tmp) / "large", args)
+
+
+def builds(study: Path, args: argparse.Namespace) -> None:
+    """Full build, raw render sums, and the two rebuilds."""
+    full, pdfs, _ = timed_build(study, args.jobs, force=True)
+    show(f"full build, {args.participants} participants, {args.jobs} jobs", f"{full:.1f} s",
+         f"{pdfs} PDF booklets (+ as many HTML): {pdfs / (full / 60):.1f} PDF booklets/min")
+    show("peak RSS of the largest build process", f"{children_peak_rss():.0f} MiB",
+         "target < 1024 MiB")
+    if not args.only_builds:
+        for tuned, label in ((False, "plain"), (True, "with the build's GC setting")):
+            raw = raw_render_seconds(study, tuned=tuned)
+            show(f"raw WeasyPrint render of the same HTML, {label}", f"{raw:.1f} s",
+                 f"sum, 1 process; total/(raw/{args.jobs} jobs) = "
+                 f"{full / (raw / args.jobs):.2f}" + ("" if tuned else " (target <= 1.25)"))
+    again, _, reused = timed_build(study, args.jobs)
+    show("rebuild with nothing changed", f"{again:.1f} s",
+         f"{100 * again / full:.1f}% of the full build; {reused} reused")
+    touch_one_participant(study)
+    again, _, reused = timed_build(study, args.jobs)
+    show("rebuild after one participant's data changed", f"{again:.1f} s",
+         f"{100 * again / full:.1f}% of the full build (target < 5%); {reused} reused")
+
+
+def memory(study: Path, large_folder: Path, args: argparse.Namespace) -> None:
+    """Metrics only, the same participants computed in a small and in a large study."""
+    people = roster_ids(study)[: args.computed or None]
+    small = metrics_peak_rss(study, people, every=args.every)
+    show(f"peak RSS, metrics only, {small['n']} participants, {len(people)} computed",
+         f"{small['points'][-1][1]:.0f} MiB", f"after loading {small['points'][0][1]:.0f} MiB; "
+         f"loading took {small['load_s']:.1f} s")
+    large = copies(study, args.large, large_folder)
+    big = metrics_peak_rss(large, people, every=args.every)
+    show(f"peak RSS, metrics only, {big['n']} participants, the same {len(people)} computed",
+         f"{big['points'][-1][1]:.0f} MiB",
+         f"ratio to {small['n']}: {big['points'][-1][1] / small['points'][-1][1]:.2f}; "
+         f"after loading {big['points'][0][1]:.0f} MiB; loading took {big['load_s']:.1f} s")
+    for name, run in ((small["n"], small), (big["n"], big)):
+        print(f"RSS (MiB) after n participants computed, study of {name}: "
+              + ", ".join(f"{n}: {r:.0f}" for n, r in run["points"]), flush=True)
 
 
 if __name__ == "__main__":
