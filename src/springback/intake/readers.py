@@ -51,10 +51,6 @@ class Table:
             return self.row_numbers
         return np.arange(len(self.frame)) + 2
 
-    def part(self, frame: pd.DataFrame, rows: np.ndarray) -> Table:
-        """The same file's table holding only some of its rows (numbered as in the file)."""
-        return Table(self.where, self.path, frame, self.value_labels, (), rows)
-
 
 @dataclass(frozen=True)
 class TableChunks:
