@@ -51,6 +51,10 @@ def test_example_study_in_blocks_equals_read_at_once(monkeypatch: pytest.MonkeyP
     _same_study(blocks, whole)
     for pid in whole.participants():  # and every participant's slice, read from the spill file
         pd.testing.assert_frame_equal(blocks.slice(pid).momentary, whole.slice(pid).momentary)
+    # The timed rows are held on disk, not in memory, in folders only the owner can open.
+    for rows in (blocks.momentary_rows, blocks.event_rows, blocks.questionnaire_rows):
+        assert isinstance(rows, DiskFrames)
+        assert stat.S_IMODE(os.stat(rows._folder).st_mode) == 0o700
 
 
 def test_rows_in_time_order_give_the_same_study(tmp_path: Path,
