@@ -149,7 +149,7 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
             return None
         read.append(full.resolve())
         out.add(list(got.notes))
-        if got.frame.empty and key in ("momentary", "participants"):
+        if got.frame.empty and key == "participants":  # momentary: stream.check_momentary
             out.add(error(got.where, "the file has a header but no rows",
                            fix="export the data again", code="no-rows"))
             return None

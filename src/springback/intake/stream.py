@@ -15,6 +15,7 @@ from __future__ import annotations
 from collections import Counter
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
+from itertools import chain
 
 import pandas as pd
 
@@ -142,19 +143,13 @@ def _by_participant(chunks: TableChunks, settings: StudySettings) -> Frames:
         return MemoryFrames(frame, key=_KEY)
     spill = DiskFrames()
     try:
-        for table in _chain(first, second, chunks.chunks):
+        for table in chain([first, second], chunks.chunks):
             key = as_text(table.frame[column], missing).fillna("")
             spill.append(table.frame.assign(**{_ROW: table.rows, _KEY: key}), key)
     except BaseException:
         spill.close()
         raise
     return spill.seal()
-
-
-def _chain(first: Table, second: Table, rest: Iterator[Table]) -> Iterator[Table]:
-    yield first
-    yield second
-    yield from rest
 
 
 def _groups(frames: Frames, rows: int) -> Iterator[list[str]]:
