@@ -46,7 +46,7 @@ def generate(n: int, folder: Path) -> Path:
     return folder
 
 
-CLI = "from springback.cli import main; main()"
+CLI = "from springback.cli.core import main; main()"
 
 
 def timed_build(project: Path, jobs: int, force: bool = False) -> tuple[float, int, int]:
@@ -67,7 +67,7 @@ def timed_build(project: Path, jobs: int, force: bool = False) -> tuple[float, i
 RAW_RENDER = """
 import gc, sys, time
 from pathlib import Path
-from springback.build import fewer_collections
+from springback.build.jobs import fewer_collections
 from springback.render import html_to_pdf
 files = sorted(Path(sys.argv[1]).rglob("*.html"))
 base = Path(sys.argv[2])

@@ -30,8 +30,8 @@ from springback import metrics
 from springback.metrics import _rolling as rl
 from springback.metrics import descriptives, dynamics, questionnaires, recovery
 from springback.metrics._series import prepare
+from springback.metrics.early_warning import TREND_POINTS, early_warnings
 from springback.metrics.surrogates import ar1_surrogates, participant_rng, phase_surrogates
-from springback.metrics.warnings import TREND_POINTS, early_warnings
 from springback.model import ParticipantData
 from springback.settings import from_mapping
 

@@ -32,7 +32,7 @@ def timed(fn: Callable[[], Any]) -> tuple[float, Any]:
 
 def cold_engines() -> list[tuple[str, float]]:
     """The first chart and the first PDF in a fresh process, then the same again (warm)."""
-    from springback.build import WARM_CHART
+    from springback.build.jobs import WARM_CHART
     from springback.charts.svg import to_svg
     from springback.render import html_to_pdf
 
@@ -49,10 +49,11 @@ def cold_engines() -> list[tuple[str, float]]:
 
 def stages(project: Path, participants: list[str]) -> list[tuple[str, float]]:
     """Seconds per stage for each participant, with the number of chart sets made."""
-    from springback import __version__, charts, intake, metrics, render, safety
-    from springback.build import EDITIONS
-    from springback.i18n import translations
-    from springback.safety import study_end
+    from springback import __version__, charts, intake, metrics, render
+    from springback.build.records import EDITIONS
+    from springback.i18n.language import translations
+    from springback.safety import rules as safety
+    from springback.safety.rules import study_end
 
     study = intake.load_study(project)
     end = study_end(study)
@@ -107,8 +108,9 @@ def first_job_in_a_new_worker(project: Path, participant: str) -> list[tuple[str
     from concurrent.futures import ProcessPoolExecutor
 
     from springback import intake
-    from springback.build import Job, run_job, warm_engines
-    from springback.safety import study_end
+    from springback.build.jobs import run_job, warm_engines
+    from springback.build.records import Job
+    from springback.safety.rules import study_end
 
     study = intake.load_study(project)
     end = study_end(study)
@@ -150,7 +152,7 @@ def main() -> None:
     args = parser.parse_args()
     t0 = time.perf_counter()
     rows = cold_engines()
-    from springback.build import warm_engines
+    from springback.build.jobs import warm_engines
 
     rows.append(("warm_engines() in a process that already ran both", timed(warm_engines)[0]))
     rows += stages(args.project, args.participants)

@@ -12,19 +12,7 @@ from pathlib import Path
 
 import pytest
 
-REPO = Path(__file__).resolve().parents[1]
-EXAMPLE = REPO / "example_project"
-SHARED_DATA = REPO.parent / "shared" / "data"
-
-
-def copy_example(target: Path) -> Path:
-    """Copy the example study's inputs (not its outputs) into `target`."""
-    target.mkdir(parents=True, exist_ok=True)
-    shutil.copy2(EXAMPLE / "study.toml", target / "study.toml")
-    shutil.copytree(EXAMPLE / "data", target / "data", dirs_exist_ok=True)
-    if (EXAMPLE / "templates").is_dir():
-        shutil.copytree(EXAMPLE / "templates", target / "templates", dirs_exist_ok=True)
-    return target
+from tests.support.project import copy_example
 
 
 @pytest.fixture
@@ -48,7 +36,7 @@ def quick_example(tmp_path: Path) -> Path:
 @pytest.fixture(scope="session")
 def built_example(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """A copy of the example study, built once for the whole session (read-only for tests)."""
-    from springback.build import build
+    from springback.build.pipeline import build
 
     shared = tmp_path_factory.getbasetemp().parent / "springback-built-example"
     shared.mkdir(parents=True, exist_ok=True)

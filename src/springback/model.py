@@ -14,8 +14,8 @@ import numpy as np
 import pandas as pd
 
 from springback.errors import Problem
+from springback.frames import Frames, MemoryFrames
 from springback.settings import StudySettings
-from springback.store import Frames, MemoryFrames
 
 MOMENTARY_COLUMNS = ("participant", "time", "local_time", "study_day", "scheduled", "source_row")
 """Fixed columns of `Study.momentary`; then one float column per item, then one per composite.
@@ -53,7 +53,7 @@ class Study:
 
     The timed rows (momentary, events, questionnaires), which grow with every prompt, are held
     as `Frames` read one participant at a time (`load_study` keeps them in private files, see
-    `springback.store`); `momentary`, `events` and `questionnaires` give all rows as one frame.
+    `springback.frames`); `momentary`, `events` and `questionnaires` give all rows as one frame.
     Frames passed instead are kept in memory.
     """
 

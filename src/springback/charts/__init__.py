@@ -10,8 +10,9 @@ from collections.abc import Callable
 
 from springback.charts.change import grid_chart, recovery_chart, warnings_chart
 from springback.charts.common import Chart, Inputs, checked_gettext
+from springback.charts.landscape import landscape_chart, load_chart
 from springback.charts.mood import calendar_chart, mood_chart
-from springback.charts.states import landscape_chart, load_chart, questionnaire_charts
+from springback.charts.questionnaires import questionnaire_charts
 from springback.metrics.results import ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import StudySettings

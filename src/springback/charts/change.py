@@ -19,8 +19,8 @@ from springback.charts.common import (
     records,
     time_axis,
 )
+from springback.charts.palette import CHART, DIVERGING, readable_text_on
 from springback.charts.svg import PLOT_WIDTH, to_svg
-from springback.palette import CHART, DIVERGING, readable_text_on
 
 SOLID, DASHED = [1, 0], [5, 4]
 

@@ -13,7 +13,7 @@ import babel.dates
 import numpy as np
 import pandas as pd
 
-from springback.i18n import LOCALES, LocaleFormat
+from springback.i18n.language import LOCALES, LocaleFormat
 from springback.metrics.results import Estimate, Family, ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import StudySettings
@@ -115,7 +115,7 @@ class Inputs:
     # -- formatting ----------------------------------------------------------------------
     @property
     def locale(self) -> str:
-        """The CLDR locale of the booklet language (the one springback.i18n formats with)."""
+        """The CLDR locale of the booklet language (as `i18n.language` formats)."""
         return LOCALES.get(self.language, LOCALES["en"])
 
     @cached_property

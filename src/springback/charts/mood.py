@@ -18,8 +18,8 @@ from springback.charts.common import (
     records,
     time_axis,
 )
+from springback.charts.palette import CALENDAR_RAMP, CHART, readable_text_on
 from springback.charts.svg import PLOT_WIDTH, to_svg
-from springback.palette import CALENDAR_RAMP, CHART, readable_text_on
 
 EVENT_SHAPES = ("triangle-down", "diamond", "square", "cross", "triangle-up")
 """One shape per event kind (answers are circles); further kinds share the last shape."""

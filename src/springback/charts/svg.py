@@ -16,7 +16,7 @@ from typing import Any
 
 import vl_convert
 
-from springback.palette import CHART, FONT_FAMILY
+from springback.charts.palette import CHART, FONT_FAMILY
 
 SVG_NS = "http://www.w3.org/2000/svg"
 XLINK_NS = "http://www.w3.org/1999/xlink"

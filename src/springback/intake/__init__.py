@@ -14,6 +14,7 @@ import pandas as pd
 import pyarrow
 
 from springback.errors import DataError, Problem, SettingsError, error, warning
+from springback.frames import DiskFrames
 from springback.intake import stream
 from springback.intake.events import event_frame, read_events
 from springback.intake.momentary import read_momentary
@@ -33,7 +34,6 @@ from springback.intake.stream import Momentary, check_momentary
 from springback.memory import release_free_memory
 from springback.model import Study, latest_time
 from springback.settings import SETTINGS_FILE, StudySettings, load_settings
-from springback.store import DiskFrames
 
 __all__ = ["CheckReport", "check_study", "load_study", "quality_table", "read_prompts"]
 

@@ -20,13 +20,13 @@ from itertools import chain
 import pandas as pd
 
 from springback.errors import DataError, error
+from springback.frames import DiskFrames, Frames, MemoryFrames
 from springback.intake.momentary import check_prompts, has_momentary_columns, unknown_items
 from springback.intake.problems import Sink
 from springback.intake.quality import SUMMARY_COLUMNS, momentary_frame, momentary_summary
 from springback.intake.readers import Table, TableChunks, as_text
 from springback.model import latest_time
 from springback.settings import StudySettings
-from springback.store import DiskFrames, Frames, MemoryFrames
 
 CHUNK_ROWS = 20_000
 """Rows read from a CSV file at a time."""

@@ -10,13 +10,13 @@ from typing import Any
 from springback.metrics import (
     descriptives,
     dynamics,
+    early_warning,
     entropy,
     landscape,
     pattern,
     questionnaires,
     recovery,
     shifts,
-    warnings,
 )
 from springback.metrics._series import prepare
 from springback.metrics.results import Family, ParticipantResults, to_rows
@@ -36,7 +36,7 @@ def compute(data: ParticipantData, settings: StudySettings) -> ParticipantResult
     families["descriptives"] = descriptives.describe(series, data, settings)
     families["dynamics"] = dynamics.carry_over(series, settings, data.participant)
     families["recovery"] = recovery.bounce_back(series, data, settings)
-    families["warnings"] = warnings.early_warnings(series, settings, data.participant)
+    families["warnings"] = early_warning.early_warnings(series, settings, data.participant)
     families["questionnaires"] = questionnaires.questionnaire_family(data.questionnaires, settings)
     families["shifts"] = shifts.shift_family(series, settings, families.get("questionnaires"))
     families["landscape"] = landscape.landscape_family(series, data, settings)

@@ -10,8 +10,7 @@ from typing import Any, Literal, Protocol, TypedDict
 
 import pandas as pd
 
-from springback import palette
-from springback.charts import Chart
+from springback.charts import Chart, palette
 from springback.metrics.results import Estimate, ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import Referral, StudySettings

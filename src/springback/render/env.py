@@ -15,11 +15,11 @@ import jinja2
 import markupsafe
 import pandas as pd
 
-from springback import i18n
+from springback.i18n import language as i18n
 from springback.render import phrases
 
-PACKAGED_TEMPLATES = Path(__file__).resolve().parent.parent / "templates"
-"""The packaged templates (a link to the repository's top-level `templates/`)."""
+PACKAGED_TEMPLATES = Path(__file__).resolve().parents[1] / "templates"
+"""The packaged templates (`src/springback/templates/`)."""
 
 FONT_FAMILY = "Atkinson Hyperlegible"
 _FONT_FACES = (("Regular", "normal", 400), ("Bold", "normal", 700), ("Italic", "italic", 400))

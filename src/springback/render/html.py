@@ -8,7 +8,7 @@ from typing import Any
 
 import jinja2
 
-from springback import palette
+from springback.charts import palette
 from springback.render.context import EDITIONS, BookletContext
 from springback.settings import StudySettings
 

@@ -1,0 +1,167 @@
+"""Checking the audit archive: re-hash every archived file, follow the log, optionally rebuild.
+
+Public functions (`archive.verify` is the entry point most callers want):
+
+    verify_archive(archive: Path, rebuild_fn: Callable[[Path], Path | None] | None = None)
+        -> list[Mismatch]
+    folder_mismatches(folder: Path, manifest: dict) -> list[Mismatch]
+    expected_manifests(entries: list[dict]) -> dict[str, str]     # build id -> manifest SHA-256
+    read_json(path: Path) -> dict                                  # {} when unreadable
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import tempfile
+from collections.abc import Callable, Iterator
+from pathlib import Path
+from typing import Any
+
+from springback.archive.audit import Mismatch, check_chain, read_entries
+from springback.errors import ArchiveError
+from springback.files import project_dirs, sha256_file
+
+MANIFEST = "manifest.json"
+MANIFEST_HTML = "manifest.html"
+
+
+def walk(folder: Path) -> Iterator[Path]:
+    """Every file under a folder, in sorted order (stable manifests)."""
+    for path in sorted(Path(folder).rglob("*")):
+        if path.is_file():
+            yield path
+
+
+def read_json(path: Path) -> dict[str, Any]:
+    """A JSON object from a file, or {} when missing or unreadable."""
+    try:
+        data = json.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    return data if isinstance(data, dict) else {}
+
+
+def build_folders(archive: Path) -> list[Path]:
+    """Visible sub-folders of the archive (each should be one recorded build)."""
+    if not archive.is_dir():
+        return []
+    return sorted(p for p in archive.iterdir() if p.is_dir() and not p.name.startswith("."))
+
+
+def expected_manifests(entries: list[dict[str, Any]]) -> dict[str, str]:
+    """Build id -> the manifest hash the log vouches for (erasures supersede the build's)."""
+    expected: dict[str, str] = {}
+    for e in entries:
+        if e.get("kind") == "build" and "build" in e:
+            expected[str(e["build"])] = str(e.get("manifest_sha256"))
+        elif e.get("kind") == "erase":
+            for build_id, sha in dict(e.get("manifests", {})).items():
+                expected[str(build_id)] = str(sha)
+    return expected
+
+
+def folder_mismatches(folder: Path, manifest: dict[str, Any]) -> list[Mismatch]:
+    """Compare every file of one build folder with its manifest, both ways."""
+    out: list[Mismatch] = []
+    listed = manifest.get("files")
+    if not isinstance(listed, dict):
+        return [Mismatch(f"{folder.name}/{MANIFEST}", "a list of archived files", "none",
+                         "the manifest is damaged")]
+    for rel, expected in sorted(listed.items()):
+        path = folder / rel
+        name = f"{folder.name}/{rel}"
+        if not path.is_file():
+            out.append(Mismatch(name, str(expected), "missing", "an archived file is missing"))
+            continue
+        found = sha256_file(path)
+        if found != expected:
+            out.append(Mismatch(name, str(expected), found, "an archived file was changed"))
+    for path in walk(folder):
+        rel = path.relative_to(folder).as_posix()
+        if rel != MANIFEST and rel not in listed:
+            out.append(Mismatch(f"{folder.name}/{rel}", "no such file", sha256_file(path),
+                                "a file was added to the archived build"))
+    return out
+
+
+def verify_archive(archive: Path,
+                   rebuild_fn: Callable[[Path], Path | None] | None = None) -> list[Mismatch]:
+    """Check the log chain, every recorded build's files, and (with rebuild_fn) the last build."""
+    archive = Path(archive)
+    if not archive.is_dir():
+        return [Mismatch(archive.name, "an archive folder", "none", "nothing has been built")]
+    problems = check_chain(archive)
+    try:
+        entries = read_entries(archive)
+    except ArchiveError:
+        entries = []
+    expected = expected_manifests(entries)
+    for build_id, sha in expected.items():
+        folder = archive / build_id
+        manifest = folder / MANIFEST
+        if not manifest.is_file():
+            problems.append(Mismatch(f"{build_id}/{MANIFEST}", sha, "missing",
+                                     "a recorded build's manifest is missing"))
+            continue
+        found = sha256_file(manifest)
+        if found != sha:
+            problems.append(Mismatch(f"{build_id}/{MANIFEST}", sha, found,
+                                     "the manifest differs from the one the audit log records"))
+        problems += folder_mismatches(folder, read_json(manifest))
+    for folder in build_folders(archive):
+        if folder.name not in expected:
+            problems.append(Mismatch(folder.name, "a build recorded in the audit log",
+                                     "an unrecorded folder", "not recorded in the audit log"))
+    if rebuild_fn is not None and expected:
+        problems += rebuild_mismatches(archive / list(expected)[-1], rebuild_fn)
+    return problems
+
+
+def rebuild_mismatches(folder: Path,
+                       rebuild_fn: Callable[[Path], Path | None]) -> list[Mismatch]:
+    """Rebuild one archived build from its archived inputs and compare outputs byte for byte.
+
+    `rebuild_fn(project)` builds the project folder it is given and returns its output folder
+    (None: the project's configured out/). The build time is pinned through SOURCE_DATE_EPOCH.
+    """
+    manifest = read_json(folder / MANIFEST)
+    inputs = manifest.get("inputs", {})
+    lost = [rel for rel, rec in inputs.items() if not rec.get("archived")]
+    if lost:
+        return [Mismatch(f"{folder.name}/inputs/{lost[0]}", "an archived copy",
+                         "only its hash (archive.keep_inputs = 'hash', or erased)",
+                         "cannot rebuild without the input files")]
+    depth = max((rel.count("../") for rel in inputs), default=0)
+    out: list[Mismatch] = []
+    saved = os.environ.get("SOURCE_DATE_EPOCH")
+    with tempfile.TemporaryDirectory(prefix="springback-rebuild-") as tmp:
+        root = Path(tmp).joinpath(*(["up"] * depth), "project")
+        for rel, rec in inputs.items():
+            target = (root / rel).resolve()
+            target.parent.mkdir(parents=True, exist_ok=True)
+            shutil.copyfile(folder / rec["archived"], target)
+        os.environ["SOURCE_DATE_EPOCH"] = str(manifest.get("built_at_epoch", ""))
+        try:
+            produced = Path(rebuild_fn(root) or project_dirs(root).out)
+        finally:
+            if saved is None:
+                os.environ.pop("SOURCE_DATE_EPOCH", None)
+            else:
+                os.environ["SOURCE_DATE_EPOCH"] = saved
+        wanted = {rel[4:]: sha for rel, sha in manifest.get("files", {}).items()
+                  if rel.startswith("out/")}
+        for rel, sha in sorted(wanted.items()):
+            path = produced / rel
+            found = sha256_file(path) if path.is_file() else "missing"
+            if found != sha:
+                out.append(Mismatch(f"{folder.name}/out/{rel}", sha, found,
+                                    "the rebuild gave different bytes"))
+        if not manifest.get("erasures"):
+            for path in walk(produced):
+                rel = path.relative_to(produced).as_posix()
+                if rel not in wanted:
+                    out.append(Mismatch(f"{folder.name}/out/{rel}", "no such file",
+                                        sha256_file(path), "the rebuild made an extra file"))
+    return out

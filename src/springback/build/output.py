@@ -1,0 +1,199 @@
+"""A build's files on disk as they arrive: staging, reuse of the last build, and archiving.
+
+The parent process never holds every participant's booklets at once: each outcome's files are
+written into the build's staging folder (see `fsutil.staging_dir`) when the outcome arrives and
+dropped from memory; an unchanged participant's files are copied from the last archived build
+file by file. `archive_staged` then records the staged folder as an archived build.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import io
+import shutil
+from collections.abc import Iterable
+from datetime import datetime
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import pandas as pd
+
+if TYPE_CHECKING:
+    from springback.build.records import Job, ParticipantOutcome
+    from springback.model import Study
+
+REUSABLE = ("built", "no feedback", "not enough data", "withdrawn")
+"""Outcomes that can be carried over from the last build when nothing they depend on changed."""
+
+
+def stage_files(outcome: ParticipantOutcome, staging: Path) -> ParticipantOutcome:
+    """Write the outcome's files into `staging` and return it without their bytes."""
+    write_files(outcome.files, staging)
+    stored = tuple(sorted({*outcome.stored, *outcome.files}))
+    return dataclasses.replace(outcome, files={}, stored=stored)
+
+
+def write_files(files: dict[str, bytes], staging: Path) -> None:
+    """Write study-wide files (tables, overview) into `staging`."""
+    for rel, data in sorted(files.items()):
+        (staging / rel).parent.mkdir(parents=True, exist_ok=True)
+        (staging / rel).write_bytes(data)
+
+
+def archive_staged(project: Path, out_dir: Path, staging: Path, *, study: Study,
+                   outcomes: list[ParticipantOutcome], started: datetime, ended: datetime,
+                   templates: list[Path]) -> str:
+    """Archive a fully staged build (the caller swaps `staging` into `out_dir` afterwards).
+
+    Reused participants' files were staged from the archive by `Previous`, so every outcome's
+    files are in `staging` already (or in `o.files`, written here).
+    """
+    from springback.archive.manifest import record_build
+
+    roster = study.roster.set_index("participant")
+    settings = study.settings
+    people: dict[str, dict[str, Any]] = {}
+    for o in outcomes:
+        kept = sorted({*o.stored, *o.files})
+        if o.files:  # an outcome that did not pass through stage_files
+            write_files(o.files, staging)
+        row = roster.loc[o.participant]
+        people[o.participant] = {
+            "status": o.status, "reason": o.reason, "fingerprint": o.fingerprint,
+            "version": o.version, "review_state": o.review_state, "flags": list(o.flags),
+            "period": {"first": o.period[0], "last": o.period[1]},
+            "consent": str(row["consent"]), "feedback": bool(row["feedback"]),
+            "files": sorted(kept),
+        }
+    params = {"metrics": settings.metrics.model_dump(mode="json"),
+              "seed": settings.metrics.seed, "editions": list(settings.booklet.editions),
+              "formats": list(settings.booklet.formats)}
+    return record_build(project, staging, list(study.input_files), settings, templates,
+                        people, params, started, ended)
+
+
+class Previous:
+    """The last archived build, for reusing participants whose inputs did not change."""
+
+    def __init__(self, project: Path, folder: Path, manifest: dict[str, Any]) -> None:
+        self.project = project
+        self.folder = folder
+        self.people: dict[str, dict[str, Any]] = manifest.get("participants", {})
+        self.rows = {name: _rows_by_participant(folder / "out" / name)
+                     for name in ("metrics.csv", "flags.csv", "shifts.csv")}
+
+    @classmethod
+    def load(cls, project: Path) -> Previous | None:
+        """The latest build's record, or None before the first build."""
+        from springback.archive.manifest import latest_manifest
+        from springback.files import project_dirs
+
+        manifest = latest_manifest(project)
+        if not manifest:
+            return None
+        folder = project_dirs(project).archive / manifest["build"]
+        return cls(project, folder, manifest)
+
+    def outcome(self, job: Job, staging: Path) -> ParticipantOutcome | None:
+        """The participant's last outcome, its files copied into `staging`, if nothing it
+        depends on changed; else None (and nothing copied)."""
+        from springback.build.records import BOOKLETS, EDITIONS, ParticipantOutcome
+        from springback.review.gate import review_state
+
+        pid = job.data.participant
+        rec = self.people.get(pid)
+        if not rec or rec.get("fingerprint") != job.fingerprint or rec.get("status") not in (
+            REUSABLE
+        ):
+            return None
+        flags = list(rec.get("flags", []))
+        state = review_state(self.project, pid, job.fingerprint, flags)
+        if state != rec.get("review_state"):
+            return None  # the therapist edition shows the review state: render it anew
+        names = [str(rel) for rel in rec.get("files", [])]
+        if not all((self.folder / "out" / rel).is_file() for rel in names):
+            return None
+        for rel in names:  # file by file: no booklet is held in memory
+            (staging / rel).parent.mkdir(parents=True, exist_ok=True)
+            shutil.copyfile(self.folder / "out" / rel, staging / rel)
+        metrics_rows = self.rows["metrics.csv"].get(pid, [])
+        compliance = next((r["value"] for r in metrics_rows if r["measure"] == "compliance"), "")
+        editions = tuple(e for e in EDITIONS if f"{BOOKLETS}/{pid}/{e}.html" in names
+                         or f"{BOOKLETS}/{pid}/{e}.pdf" in names)
+        period = rec.get("period", {})
+        return ParticipantOutcome(
+            participant=pid, status=rec["status"], reason=rec.get("reason", ""),
+            stored=tuple(sorted(names)),
+            metrics_rows=metrics_rows, flag_rows=self.rows["flags.csv"].get(pid, []),
+            shift_rows=self.rows["shifts.csv"].get(pid, []), review_state=state,
+            fingerprint=job.fingerprint, version=job.version,
+            period=(period.get("first", ""), period.get("last", "")),
+            compliance=float(compliance) if compliance not in ("", None) else None,
+            editions=editions, flags=flags, reused=True,
+        )
+
+
+def _rows_by_participant(path: Path) -> dict[str, list[dict[str, Any]]]:
+    """A study table's rows as exact strings, grouped by participant (empty if absent)."""
+    if not path.is_file():
+        return {}
+    df = pd.read_csv(path, dtype=str, keep_default_na=False)
+    out: dict[str, list[dict[str, Any]]] = {}
+    for row in df.to_dict("records"):
+        out.setdefault(row["participant"], []).append(row)
+    return out
+
+
+def frame_bytes(df: pd.DataFrame) -> bytes:
+    """A frame as the CSV bytes of a study table (UTF-8, LF, ISO times with their offset)."""
+    buf = io.StringIO()
+    df.to_csv(buf, index=False, lineterminator="\n", date_format="%Y-%m-%dT%H:%M:%S%z")
+    return buf.getvalue().encode("utf-8")
+
+
+def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[str, bytes]:
+    """The study-wide CSV tables: metrics, flags, shifts, quality, set-aside rows."""
+    from springback.metrics.results import METRICS_CSV_COLUMNS
+
+    outcomes = list(outcomes)
+    metrics_rows = [r for o in outcomes for r in o.metrics_rows]
+    flag_rows = [r for o in outcomes for r in o.flag_rows]
+    shift_rows = [r for o in outcomes for r in o.shift_rows]
+    tables = {
+        "metrics.csv": pd.DataFrame(metrics_rows, columns=list(METRICS_CSV_COLUMNS)),
+        "flags.csv": pd.DataFrame(
+            flag_rows, columns=["participant", "rule", "action", "value", "when"]
+        ),
+        "shifts.csv": pd.DataFrame(
+            shift_rows, columns=["participant", "date", "direction", "size", "method"]
+        ),
+        "quality.csv": study.quality,
+        "set_aside.csv": study.set_aside,
+    }
+    return {name: frame_bytes(df) for name, df in tables.items()}
+
+
+def render_overview(
+    project: Path, study: Study, outcomes: Iterable[ParticipantOutcome], built_at: datetime
+) -> str:
+    """The research team's overview page (English; the team's working language)."""
+    from springback import render
+    from springback.build.records import BOOKLETS
+
+    env = render.make_environment(project / "templates", "en")  # the page states times in UTC
+    rows = [
+        {
+            "participant": o.participant,
+            "status": o.status,
+            "reason": o.reason,
+            "compliance": o.compliance,
+            "flags": o.flags,
+            "review_state": o.review_state,
+            "editions": [f"{BOOKLETS}/{o.participant}/{e}" for e in o.editions],
+            "formats": list(study.settings.booklet.formats),
+            "version": o.version,
+            "period": o.period,
+        }
+        for o in outcomes
+    ]
+    return render.render_overview(env, rows, study.settings, built_at)

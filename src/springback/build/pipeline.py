@@ -1,0 +1,148 @@
+"""Orchestration: load the study, compute, check safety, render, write atomically, archive.
+
+`build()` reads as the recipe. Per-participant work is one picklable function so it can run in
+this process, in a `spawn` process pool, or on a Dask cluster (see `springback.build.runner`); each
+worker warms its engines once (`warm_engines`). Each participant's files are written into the
+build's staging folder as soon as they arrive (`springback.build.output`), so the parent never
+holds every booklet at once; unchanged participants are copied from the last archived build.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator
+from pathlib import Path
+
+from springback.build.fingerprints import (
+    catalogue_files,
+    fingerprint,
+    settings_hash,
+    template_files,
+    templates_hash,
+)
+from springback.build.jobs import run_job, warm_engines
+from springback.build.output import (
+    Previous,
+    archive_staged,
+    render_overview,
+    stage_files,
+    study_tables,
+    write_files,
+)
+from springback.build.records import BuildReport, Job, ParticipantOutcome
+from springback.model import Study
+from springback.settings import StudySettings
+
+Progress = Callable[[str, str], None]
+"""Called as progress(participant, stage); the stages are listed in `springback.build.progress`."""
+
+
+def build(
+    project: Path,
+    *,
+    out: Path | None = None,
+    participants: list[str] | None = None,
+    jobs: int | None = None,
+    force: bool = False,
+    backend: str = "local",
+    scheduler: str | None = None,
+    progress: Progress | None = None,
+) -> BuildReport:
+    """Build every selected participant's booklets, the study tables and the overview."""
+    from springback import intake
+    from springback.archive import manifest as archive
+    from springback.build.preflight import require_buildable
+    from springback.build.runner import run_jobs
+    from springback.files import BuildLock, clean_stale, staging_dir
+    from springback.safety.rules import study_end
+
+    project = Path(project).resolve()
+    study = intake.load_study(project)
+    require_buildable(project, study)
+    settings = study.settings
+    out_dir = (project / (out or settings.output.out_dir)).resolve()
+    archive_dir = project / settings.output.archive_dir
+    report = progress or (lambda _p, _s: None)
+    with BuildLock(archive_dir):
+        started = archive.build_time()
+        selected = _select(study, participants)
+        tmpl = template_files(project)
+        s_hash, t_hash = settings_hash(settings), templates_hash(tmpl + catalogue_files())
+        previous = None if force else Previous.load(project)
+        end = study_end(study)
+        clean_stale(out_dir.parent)
+        # Files go to disk as they arrive; the folder replaces out/ only once it is archived.
+        with staging_dir(out_dir) as staging:
+            report("", f"start:{len(selected)}")
+            reused: dict[str, ParticipantOutcome] = {}
+
+            def jobs_to_run() -> Iterator[Job]:
+                # Made one at a time as the workers take them, so the first participant is
+                # being built while the others are still being fingerprinted.
+                for pid in heaviest_first(study, selected, settings):
+                    data = study.slice(pid)
+                    fp = fingerprint(data, s_hash, t_hash, end)
+                    version = archive.booklet_version(project, pid, fp)
+                    job = Job(project, data, settings, fp, version, started, end)
+                    again = previous.outcome(job, staging) if previous else None
+                    if again is None:
+                        yield job
+                    else:
+                        reused[pid] = again
+                        report(pid, "unchanged")
+
+            fresh = run_jobs(
+                jobs_to_run(), run_job, jobs_n=jobs, backend=backend, scheduler=scheduler,
+                progress=report, initializer=warm_engines,
+                on_result=lambda o: stage_files(o, staging),
+                finished=lambda o: "failed" if o.status == "failed" else "done",
+                total=len(selected),
+            )
+            by_id = {**reused, **{o.participant: o for o in fresh}}
+            outcomes = [by_id[pid] for pid in selected]
+            report("", "writing the overview, tables and archive")
+            tables = study_tables(study, outcomes)
+            overview = render_overview(project, study, outcomes, started)
+            write_files({**tables, "index.html": overview.encode("utf-8")}, staging)
+            ended = archive.build_time(now=True)
+            build_id = archive_staged(
+                project, out_dir, staging, study=study, outcomes=outcomes, started=started,
+                ended=ended, templates=tmpl,
+            )
+    return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
+
+
+def heaviest_first(study: Study, selected: list[str], settings: StudySettings) -> list[str]:
+    """The participants in the order their work is handed out: the longest jobs first.
+
+    A booklet's PDF is most of a participant's time, so the estimate is the number of
+    editions, then the number of prompts. Handing out the longest jobs first keeps the last
+    minutes of a parallel build from waiting on one long job while the other workers idle
+    (longest-processing-time-first scheduling). Output never depends on this order.
+    """
+    roster = study.roster.set_index("participant")
+    both = "therapist" in settings.booklet.editions
+
+    def cost(pid: str) -> tuple[int, int, str]:
+        row = roster.loc[pid]
+        if row["consent"] != "yes" or not bool(row["feedback"]):
+            return (0, 0, pid)  # metrics at most, no booklet
+        editions = 2 if both and bool(row["therapist"]) else 1
+        return (-editions, -study.rows_of(pid), pid)
+
+    return sorted(selected, key=cost)
+
+
+def _select(study: Study, participants: list[str] | None) -> list[str]:
+    everyone = study.participants()
+    if not participants:
+        return everyone
+    unknown = [p for p in participants if p not in everyone]
+    if unknown:
+        from springback.errors import DataError, error
+
+        raise DataError(
+            [error("--participant", f"participant '{p}' is not in the roster",
+                   expected="one of: " + ", ".join(everyone), code="unknown-participant")
+             for p in unknown]
+        )
+    return sorted(set(participants))

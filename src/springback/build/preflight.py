@@ -1,0 +1,44 @@
+"""Everything `check` verifies, in one pass: settings and data, referral texts, translations,
+and archived builds past their retention period. `build` refuses on any error found here.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from springback.errors import Problem, ProblemsFound
+from springback.intake import CheckReport, check_study
+from springback.model import Study
+
+
+def study_problems(project: Path, study: Study) -> list[Problem]:
+    """Checks that need the loaded study: referral texts, catalogues, retention."""
+    from springback.archive.manifest import expired_builds
+    from springback.i18n.check import check_languages
+    from springback.i18n.language import catalogue_problems
+    from springback.safety.rules import referral_problems
+
+    roster = study.roster
+    wanted = roster[(roster["consent"] == "yes") & roster["feedback"].astype(bool)]
+    problems = referral_problems(study)
+    problems += check_languages(study.settings, roster, project)
+    undeclared = set(wanted["language"].astype(str)) - set(study.settings.study.languages)
+    problems += catalogue_problems(sorted(undeclared), where="data/participants.csv: language")
+    problems += expired_builds(project, study.settings)
+    return problems
+
+
+def preflight(project: Path, *, strict: bool = False) -> CheckReport:
+    """Run every check and return all problems found (never raises for user mistakes)."""
+    report = check_study(project, strict=strict)
+    if report.study is None:
+        return report
+    extra = study_problems(Path(project), report.study)
+    return CheckReport(problems=(*report.problems, *extra), study=report.study, strict=strict)
+
+
+def require_buildable(project: Path, study: Study) -> None:
+    """Raise ProblemsFound when the study cannot be built (missing referral text, say)."""
+    problems = study_problems(project, study)
+    if any(p.is_error for p in problems):
+        raise ProblemsFound([*problems, *study.warnings])

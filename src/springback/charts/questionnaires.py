@@ -1,0 +1,174 @@
+"""Questionnaire charts: scores over time against their bands, sudden gains and losses."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from springback.charts.common import (
+    CHAR_WIDTH,
+    Chart,
+    Inputs,
+    records,
+    time_axis,
+)
+from springback.charts.palette import BAND_FILLS, CHART
+from springback.charts.svg import PLOT_WIDTH, to_svg
+
+
+def questionnaire_charts(ctx: Inputs) -> list[Chart]:
+    """One chart per questionnaire with scores: the scores over its labelled bands."""
+    fam = ctx.family("questionnaires")
+    if fam is None:
+        return []
+    keys = sorted(name.removeprefix("scores_") for name in fam.tables
+                  if name.startswith("scores_"))
+    charts = []
+    for q in keys:
+        chart = _questionnaire_chart(ctx, q)
+        if chart is not None:
+            charts.append(chart)
+    return charts
+
+
+def _bands(ctx: Inputs, q: str) -> tuple[tuple[float, float], list[tuple[float, float, str]]]:
+    """The score range and (low, high, label) bands, from the settings or the family params."""
+    spec = ctx.settings.questionnaires.get(q)
+    params = ctx.param("questionnaires", q, {}) or {}
+    if spec is not None:
+        rng, raw = (float(spec.range[0]), float(spec.range[1])), list(spec.bands)
+    else:
+        rng = tuple(float(v) for v in params.get("range", (0.0, 1.0)))  # type: ignore[assignment]
+        raw = list(params.get("bands", []))
+    bounds = [float(b[0]) for b in raw] + [rng[1]]
+    return rng, [(bounds[i], bounds[i + 1], _band_name(ctx, q, str(raw[i][1])))
+                 for i in range(len(raw))]
+
+
+def _band_name(ctx: Inputs, q: str, label: object) -> str:
+    """A band's name in the booklet's language (as written in `bands` if untranslated)."""
+    if not isinstance(label, str) or not label:
+        return ""
+    if q not in ctx.settings.questionnaires:
+        return label
+    return ctx.settings.band_label(q, label, ctx.language)
+
+
+def _questionnaire_chart(ctx: Inputs, q: str) -> Chart | None:
+    _ = ctx.gettext
+    scores = ctx.table("questionnaires", f"scores_{q}")
+    if scores is not None and "band" in scores.columns:
+        scores = scores.assign(band=[_band_name(ctx, q, b) for b in scores["band"]])
+    if scores is None:
+        return None
+    scores = scores.dropna(subset=["score"]).sort_values("local_time")
+    if scores.empty:
+        return None
+    spec_q = ctx.settings.questionnaires.get(q)
+    name = (spec_q.label.get(ctx.language) or spec_q.label.get("en") or q) if spec_q else q
+    (low, high), bands = _bands(ctx, q)
+    y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
+         "axis": {"title": _("Score")}}
+    points = pd.DataFrame({"t": ctx.ms(scores["local_time"]), "v": scores["score"]})
+    x = time_axis(ctx, _("Date"), points["t"].to_numpy(), pad_days=1)
+    margin = int(min(170, 12 + CHAR_WIDTH * max((len(b[2]) for b in bands), default=0)))
+    band_rows = pd.DataFrame(
+        [{"lo": lo, "hi": hi, "label": label, "fill": BAND_FILLS[i % len(BAND_FILLS)]}
+         for i, (lo, hi, label) in enumerate(bands)])
+    layers: list[dict[str, Any]] = []
+    if len(band_rows):
+        layers += [
+            {"data": {"values": records(band_rows)},
+             "mark": {"type": "rect"},
+             "encoding": {"y": {"field": "lo", **y}, "y2": {"field": "hi"},
+                          "fill": {"field": "fill", "type": "nominal", "scale": None}}},
+            {"data": {"values": records(band_rows.iloc[1:])},
+             "mark": {"type": "rule", "color": CHART.neutral, "strokeDash": [3, 3]},
+             "encoding": {"y": {"field": "lo", **y}}},
+            # Band names sit in the right margin, clear of the scores.
+            {"data": {"values": records(band_rows.assign(mid=(band_rows["lo"]
+                                                              + band_rows["hi"]) / 2))},
+             "mark": {"type": "text", "align": "left", "baseline": "middle", "dx": 8,
+                      "color": CHART.ink, "limit": margin},
+             "encoding": {"x": {"value": PLOT_WIDTH - margin}, "y": {"field": "mid", **y},
+                          "text": {"field": "label"}}},
+        ]
+    layers.append({
+        "data": {"values": records(points)},
+        "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 2.5,
+                 "point": {"filled": True, "size": 70, "color": CHART.primary}},
+        "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}},
+    })
+    layers += _sudden_layers(ctx, q, scores, x, y)
+    spec = {"width": PLOT_WIDTH - margin, "height": 220, "layer": layers}
+    key = f"questionnaire_{q}"
+    title = _("Your {name} scores").format(name=name)
+    description = _questionnaire_description(ctx, q, name, scores)
+    table = pd.DataFrame({
+        _("Date"): [ctx.date_short(t) for t in ctx.wall_clock(scores["local_time"])],
+        _("Score"): [ctx.num(s, 0 if float(s).is_integer() else 1) for s in scores["score"]],
+        _("Band"): [str(b) if isinstance(b, str) else "" for b in scores.get("band", [])]
+        if "band" in scores.columns else [""] * len(scores),
+    })
+    return Chart(key, title, description, to_svg(spec, key, title, description, ctx.language),
+                 table, _("{name} scores and their bands").format(name=name))
+
+
+def _sudden_layers(ctx: Inputs, q: str, scores: pd.DataFrame, x: dict[str, Any],
+                   y: dict[str, Any]) -> list[dict[str, Any]]:
+    """Sudden gains and losses: a marked point with a written label."""
+    _ = ctx.gettext
+    sudden = ctx.table("questionnaires", f"sudden_{q}")
+    if sudden is None:
+        return []
+    words = {"gain": _("sudden gain"), "loss": _("sudden loss")}
+    by_time = dict(zip(ctx.ms(scores["local_time"]), scores["score"], strict=True))
+    times = ctx.ms(sudden["local_time"])
+    rows = pd.DataFrame({"t": times, "v": [by_time.get(t, np.nan) for t in times],
+                         "label": [words.get(str(k), str(k)) for k in sudden["kind"]]}).dropna()
+    if rows.empty:
+        return []
+    return [
+        {"data": {"values": records(rows)},
+         "mark": {"type": "point", "shape": "diamond", "filled": False, "size": 260,
+                  "strokeWidth": 2.5, "color": CHART.highlight},
+         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}},
+        {"data": {"values": records(rows)},
+         "mark": {"type": "text", "dy": -18, "color": CHART.ink},
+         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y},
+                      "text": {"field": "label"}}},
+    ]
+
+
+def _band_of(row: pd.Series) -> str:
+    """' (band)' after a score, or '' when the score has no band."""
+    band = row.get("band")
+    return f" ({band})" if isinstance(band, str) and band else ""
+
+
+def _questionnaire_description(ctx: Inputs, q: str, name: str, scores: pd.DataFrame) -> str:
+    _ = ctx.gettext
+    first, last = scores.iloc[0], scores.iloc[-1]
+    if len(scores) == 1:
+        return _("You filled in the {name} once, on {date}: score {score}{band}.").format(
+            name=name, date=ctx.date(ctx.wall_clock(scores["local_time"]).iloc[0]),
+            score=ctx.num(float(first["score"]), 0), band=_band_of(first))
+    wall = ctx.wall_clock(scores["local_time"])
+    parts = [_("Your {name} score went from {first}{first_band} on {first_date} to "
+               "{last}{last_band} on {last_date}.").format(
+        name=name, first=ctx.num(float(first["score"]), 0), first_band=_band_of(first),
+        first_date=ctx.date(wall.iloc[0]), last=ctx.num(float(last["score"]), 0),
+        last_band=_band_of(last), last_date=ctx.date(wall.iloc[-1]))]
+    rci = ctx.estimate("questionnaires", f"reliable_change_{q}")
+    verdicts = {
+        "reliable improvement": _("This change is larger than the usual measurement error: "
+                                  "a reliable improvement."),
+        "reliable worsening": _("This change is larger than the usual measurement error: "
+                                "a reliable worsening."),
+        "no reliable change": _("This change is within the usual measurement error."),
+    }
+    if rci.ok and rci.note in verdicts:
+        parts.append(verdicts[rci.note])
+    return " ".join(parts)

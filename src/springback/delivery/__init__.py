@@ -1,0 +1,1 @@
+"""Delivery: released booklets as protected PDFs, by e-mail or as message files."""

@@ -1,0 +1,1 @@
+"""The review gate: held booklets wait for a named reviewer; release hands out the rest."""

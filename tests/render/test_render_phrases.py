@@ -1,0 +1,70 @@
+"""Numbers in words: shares, durations, counts and how sure we can be."""
+
+from __future__ import annotations
+
+import gettext
+
+import pytest
+
+from springback.i18n.language import translations
+from springback.render import phrases
+
+EN = gettext.NullTranslations()
+
+
+@pytest.mark.parametrize(
+    ("share", "words"),
+    [(0.2, "about 1 in 5 prompts"), (0.19, "about 1 in 5 prompts"),
+     (0.5, "about half of the prompts"), (0.52, "about half of the prompts"),
+     (0.76, "about 3 in 4 prompts"), (0.91, "about 9 in 10 prompts"),
+     (0.98, "almost every prompt"), (0.03, "fewer than 1 in 10 prompts"),
+     (0.34, "about 1 in 3 prompts")],
+)
+def test_share_of_prompts(share: float, words: str) -> None:
+    """Check that a share is told as the nearest simple fraction."""
+    assert phrases.share_of_prompts(share, EN) == words
+
+
+@pytest.mark.parametrize(
+    ("hours", "words"),
+    [(0.5, "less than an hour"), (1.2, "about an hour"), (3.2, "about 3 hours"),
+     (11.6, "about half a day"), (24.0, "about a day"), (36.0, "about a day and a half"),
+     (72.0, "about 3 days"), (24 * 21, "about 3 weeks")],
+)
+def test_duration(hours: float, words: str) -> None:
+    """Check that durations use the words a person would use."""
+    assert phrases.duration(hours, EN) == words
+
+
+def test_counts_and_strength() -> None:
+    """Check counts in words and the carry-over strength scale."""
+    assert [phrases.count(n, EN) for n in (1, 2, 5)] == ["once", "twice", "5 times"]
+    assert [phrases.strength(r, EN) for r in (0.05, 0.2, 0.4, 0.7)] == [
+        "hardly at all", "a little", "quite a bit", "a lot"]
+
+
+def test_sureness_follows_the_interval() -> None:
+    """Check that an interval spanning 'no effect' is called possibly chance."""
+    assert phrases.sureness(-0.1, 0.3, 0.0, EN) == "This could be chance."
+    assert phrases.sureness(0.1, 0.3, 0.0, EN).startswith("We can be fairly sure")
+    assert phrases.sureness(None, None, 0.0, EN).startswith("We cannot tell")
+    assert phrases.trend_sureness(0.5, 0.05, EN) == "This could be chance."
+    assert "false alarms" in phrases.trend_sureness(0.01, 0.05, EN)
+
+
+@pytest.mark.parametrize("bad", [float("nan"), -0.1])
+def test_bad_numbers_are_refused(bad: float) -> None:
+    """Check that impossible shares and durations raise instead of producing words."""
+    with pytest.raises(ValueError):
+        phrases.share_of_prompts(bad, EN)
+    with pytest.raises(ValueError):
+        phrases.duration(bad, EN)
+
+
+@pytest.mark.parametrize("language", ["nl", "de"])
+def test_phrases_go_through_the_catalogue(language: str) -> None:
+    """Check that phrases use the language's catalogue (translated where it has them)."""
+    tr = translations(language)
+    text = phrases.duration(3.0, tr)
+    assert "3" in text
+    assert isinstance(phrases.share_of_prompts(0.2, tr), str)

@@ -1,0 +1,1 @@
+"""Shared test helpers: simulators with known parameters, sample projects, a local mail server."""
