@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
+from typing import Literal
 
 import numpy as np
 import pandas as pd
@@ -16,6 +17,10 @@ import pandas as pd
 from springback.errors import Problem
 from springback.frames import Frames, MemoryFrames
 from springback.settings import StudySettings
+
+Edition = Literal["participant", "therapist"]
+EDITIONS: tuple[Edition, ...] = ("participant", "therapist")
+"""The two booklets a participant can get: their own and their therapist's."""
 
 MOMENTARY_COLUMNS = ("participant", "time", "local_time", "study_day", "scheduled", "source_row")
 """Fixed columns of `Study.momentary`; then one float column per item, then one per composite.

@@ -52,10 +52,10 @@ from springback.delivery.contacts import (
 )
 from springback.errors import DataError, DeliveryError, Problem
 from springback.files import BuildLock, project_dirs, sha256_bytes
+from springback.model import EDITIONS
 from springback.review.gate import release_gate
 from springback.settings import StudySettings, load_settings
 
-EDITIONS = ("participant", "therapist")
 NOT_DONE = ("refused by server", "unconfirmed", "no address", "no passphrase", "not attempted")
 """Outcome states that leave a releasable booklet undelivered."""
 

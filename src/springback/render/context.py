@@ -6,17 +6,14 @@ import datetime as dt
 import math
 import xml.etree.ElementTree as ET
 from dataclasses import dataclass, replace
-from typing import Any, Literal, Protocol, TypedDict
+from typing import Any, Protocol, TypedDict
 
 import pandas as pd
 
 from springback.charts import Chart, palette
 from springback.metrics.results import Estimate, ParticipantResults
-from springback.model import ParticipantData
+from springback.model import EDITIONS, Edition, ParticipantData
 from springback.settings import Referral, StudySettings
-
-Edition = Literal["participant", "therapist"]
-EDITIONS: tuple[Edition, ...] = ("participant", "therapist")
 
 PARTICIPANT_SECTIONS = (
     "about_booklet", "participation", "mood", "ups_downs", "bouncing_back", "carry_over",
