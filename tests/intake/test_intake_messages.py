@@ -124,10 +124,10 @@ CASES = [
     pytest.param(
         dict(files={"data/momentary.csv": MOMENTARY + "p1,2024-03-04 13:00,5,4\n"}),
         "error", "conflicting-rows",
-        "data/momentary.csv, row 3: rows 3 and 5 are the same prompt of participant 'p1' "
-        '(2024-03-04 13:00) with different answers; expected one row per participant and '
-        "prompt, found different values in 'sad'. Fix: remove the wrong row, or set "
-        'on_bad_rows = "set aside" under [data]',
+        "data/momentary.csv, row 3: one prompt has several rows with different answers; "
+        "expected one row per participant and prompt, found rows 3 and 5 for participant "
+        "'p1' at 2024-03-04 13:00, with different values in 'sad'. Fix: remove the wrong row, "
+        'or set on_bad_rows = "set aside" under [data]',
         id="conflict"),
     pytest.param(
         dict(files={"data/momentary.csv": MOMENTARY + "p1,2024-03-04 13:00,4,4\n"}),

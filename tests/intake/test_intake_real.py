@@ -70,9 +70,8 @@ def test_fried_repeated_prompts(tmp_path: Path) -> None:
     assert codes.count("conflicting-rows") == 1
     assert len(report.errors) == 1
     clash = next(p for p in report.problems if p.code == "conflicting-rows")
-    assert (clash.row, clash.what) == (3155, "rows 3155 and 3156 are the same prompt of "
-                                       "participant 'User #25369' (2020-03-20 12:00:00) with "
-                                       "different answers")
+    assert (clash.row, clash.found.split(", with")[0]) == (
+        3155, "rows 3155 and 3156 for participant 'User #25369' at 2020-03-20 12:00:00")
     assert report.study is None
 
 

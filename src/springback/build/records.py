@@ -81,7 +81,7 @@ OUTCOME_LABELS = {
 
 def summary_key(o: ParticipantOutcome) -> str:
     """The summary line an outcome counts under."""
-    if o.reused:
+    if o.reused and o.status == "built":
         return "unchanged"
     if o.status == "built" and o.review_state == "held":
         return "held"

@@ -29,10 +29,30 @@ def print_problems(problems: list[Problem], console: Console = err) -> None:
     errors = [p for p in problems if p.is_error]
     warnings = [p for p in problems if not p.is_error]
     for p in errors:
-        console.print(f"[bold red]error[/]   {click.style('', reset=True)}{_esc(p.message())}")
+        console.print(f"[bold red]error[/]   {_esc(p.message())}")
     for p in warnings:
         console.print(f"[yellow]warning[/] {_esc(p.message())}")
     console.print(f"{len(errors)} error(s), {len(warnings)} warning(s).")
+
+
+def show_table(console: Console, table: Table) -> None:
+    """Print a table whole: cells wrap on a terminal, and a file or pipe gets its full width.
+
+    Off a terminal rich assumes 80 columns and cuts cells with an ellipsis, so ids and reasons
+    would be lost in a log.
+    """
+    for column in table.columns:
+        column.overflow = "fold"
+    if console.is_terminal:
+        console.print(table)
+        return
+    natural = console.measure(table, options=console.options.update_width(10_000)).maximum
+    usual = console.width
+    console.width = max(usual, natural)  # print() alone never goes wider than the console
+    try:
+        console.print(table)
+    finally:
+        console.width = usual
 
 
 def _esc(text: str) -> str:
@@ -96,7 +116,7 @@ def check(project: Path, strict: bool) -> None:
     report = preflight(project, strict=strict)
     problems = list(report.problems)
     if report.study is not None:
-        out.print(quality_table(report.study))
+        show_table(out, quality_table(report.study))
     print_problems(problems, out)
     failing = any(p.is_error for p in problems) or (strict and problems)
     if failing:
@@ -136,7 +156,7 @@ def build(project: Path, out_dir: Path | None, participants: tuple[str, ...], jo
                            progress=progress.update)
     if report.warnings:
         print_problems(list(report.warnings), err)
-    out.print(summary_table(report))
+    show_table(out, summary_table(report))
     out.print(f"Booklets are in {report.out_dir / 'booklets'}; the overview is "
               f"{report.out_dir / 'index.html'} (archived as build {report.build_id}).")
     if report.failed:
@@ -155,6 +175,9 @@ def summary_table(report: Any) -> Table:
     table.add_column("reason")
     for key, n in report.counts().items():
         table.add_row(OUTCOME_LABELS.get(key, key), str(n), "")
-    for o in report.failed:
-        table.add_row(f"  failed: {_esc(o.participant)}", "", _esc(o.reason))
+    # Every participant without a booklet for a reason of their data, and every failure,
+    # with the reason (the overview says the same).
+    for o in report.outcomes:
+        if o.status in ("not enough data", "failed") and o.reason:
+            table.add_row(f"  {o.status}: {_esc(o.participant)}", "", _esc(o.reason))
     return table

@@ -330,9 +330,12 @@ def _one_repeat(where: str, group: pd.DataFrame, items: list[str], settings: Stu
         if not same:
             differ = [settings.items[c].column or c for c in items
                       if values[c].nunique(dropna=False) > 1]
-            sink.bad_rows(where, rows[:1], [who], ["different values in " + _names(differ)],
-                          what=f"{rows_list(rows)} are the same prompt of participant "
-                          f"'{who}' ({when}) with different answers", column=None,
+            # The text of a kind is shared by all its lines; what tells one clash from another
+            # (participant, prompt, rows) goes in each line's `found`.
+            sink.bad_rows(where, rows[:1], [who],
+                          [f"{rows_list(rows)} for participant '{who}' at {when}, with "
+                           f"different values in {_names(differ)}"],
+                          what="one prompt has several rows with different answers", column=None,
                           expected="one row per participant and prompt",
                           fix="remove the wrong row, or set on_bad_rows = \"set aside\" "
                           "under [data]",
