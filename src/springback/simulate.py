@@ -10,7 +10,8 @@ The processes are the textbook ones used to think about resilience:
 
 - Ornstein-Uhlenbeck (OU): dX = -rate (X - mean) dt + noise dW. Sampled at gap d it is an AR(1)
   with phi = exp(-rate d) and innovation variance noise^2 (1 - exp(-2 rate d)) / (2 rate); the
-  recovery half-life is ln 2 / rate (standard result; METHODS.md section 4).
+  recovery half-life is ln 2 / rate (standard result; Gardiner 2009, "Stochastic methods",
+  §3.8.4).
 - A double-well Langevin process, dX = -U'(X) dt + noise dW with a quartic potential U, which
   flickers between two states (Scheffer et al. 2009, Nature 461:53-59, "Early-warning signals for
   critical transitions").

@@ -136,3 +136,60 @@ def test_command_line(two_builds: Path) -> None:
     done = runner.invoke(main, ["forget", str(two_builds), "P02", "--by", "steward", "--yes"])
     assert done.exit_code == 0, done.output
     assert "Erased P02" in done.output and "data/momentary.csv still holds" in done.output
+
+
+PREFIXED = ("P1", "P10", "P1-b", "P1.2")
+
+
+def _snapshot(root: Path, pid: str) -> dict[str, bytes]:
+    """Every file under root that sits in a folder named after pid, with its bytes."""
+    return {p.relative_to(root).as_posix(): p.read_bytes() for p in root.rglob("*")
+            if p.is_file() and pid in p.relative_to(root).parts}
+
+
+def _records(project: Path, pid: str) -> list[dict]:
+    """The participant's manifest record in every archived build."""
+    return [json.loads((project / "archive" / b / "manifest.json").read_text(encoding="utf-8"))
+            ["participants"].get(pid) for b in archive.builds(project)]
+
+
+def _rows(path: Path, pid: str) -> list[str]:
+    if not path.is_file():
+        return []
+    return [line for line in path.read_text(encoding="utf-8").splitlines()
+            if line.split(",", 1)[0] == pid]
+
+
+def test_forget_matches_the_id_exactly(tmp_path: Path) -> None:
+    """Check that forgetting P1 leaves P10, P1-b and P1.2 byte-identical everywhere."""
+    project = make_project(tmp_path / "study", ids=PREFIXED)
+    fake_build(project, tmp_path / "s1", ids=PREFIXED)
+    fake_build(project, tmp_path / "s2", ids=PREFIXED, text="second")
+    shutil.copytree(tmp_path / "s2", project / "out")
+    others = PREFIXED[1:]
+    folders = [project / "archive" / b for b in archive.builds(project)] + [project / "out"]
+    tables = [f / "out" / "metrics.csv" for f in folders[:-1]] + [project / "out" / "metrics.csv"]
+    inputs = [f / "inputs" / "data" / "momentary.csv" for f in folders[:-1]]
+    before = {pid: ([_snapshot(f, pid) for f in folders], _records(project, pid),
+                    [_rows(t, pid) for t in tables + inputs]) for pid in others}
+    assert all(files and all(files) for files, _, _ in before.values())
+
+    forget(project, "P1", by="data steward")
+
+    for pid in others:
+        after = ([_snapshot(f, pid) for f in folders], _records(project, pid),
+                 [_rows(t, pid) for t in tables + inputs])
+        assert after == before[pid], pid
+        assert all(rows for rows in after[2]), pid
+    assert all(record is None for record in _records(project, "P1"))
+    assert not any(_snapshot(f, "P1") for f in folders)
+    assert all(_rows(t, "P1") == [] for t in tables + inputs)
+    assert archive.verify(project) == []
+
+
+def test_forget_matches_the_escaped_form_too() -> None:
+    """Check that an id with HTML specials is also found in its escaped form."""
+    pattern = mentions("O'Neil&Co")
+    assert pattern.search("<li>O&#x27;Neil&amp;Co</li>") and pattern.search("O'Neil&Co,1")
+    assert not mentions("S1").search("S1-b,3.5") and not mentions("P1").search("P1.2,3")
+    assert mentions("P1").search("booklet for P1.")

@@ -249,8 +249,9 @@ def test_the_event_participant_reports_the_most_upsetting_events(
 
 def test_ou_sampled_regularly_is_an_ar1_with_phi_exp_minus_rate() -> None:
     """Check phi = exp(-rate dt) and variance noise^2 / (2 rate) on a long regular series."""
-    # METHODS.md section 4 (standard OU result, from memory): rate 0.223144/h gives phi 0.8 at
-    # 1 h and half-life 3.106284 h; statsmodels' acf is the outside estimator.
+    # Standard OU result (from memory; Gardiner 2009, "Stochastic methods", §3.8.4): rate
+    # 0.223144/h gives phi 0.8 at 1 h and half-life 3.106284 h (computed by hand);
+    # statsmodels' acf is the outside estimator.
     rng = np.random.default_rng(11)
     x = sim.ou_path(np.arange(40_000.0), mean=3.0, rate=0.223144, noise=1.0, rng=rng)
     assert acf(x, nlags=1, fft=True)[1] == pytest.approx(0.8, abs=0.01)

@@ -255,9 +255,10 @@ def _over_white(colour: str, alpha: float) -> str:
 def test_every_colour_in_the_svgs_meets_contrast(charts):
     """Check text fills against 4.5:1 and strokes/fills of marks against 3:1 on white.
 
-    Opacity is composited onto the background first (METHODS.md section 8). Light area fills
-    (band, terrain, calendar and grid cells) are backgrounds: their text is checked against
-    them in tests/test_contrast.py, and their edges are drawn in 3:1 colours.
+    Opacity is composited onto the background before the WCAG 2.1 luminance (W3C 2018) is
+    computed. Light area fills (band, terrain, calendar and grid cells) are backgrounds: their
+    text is checked against them in tests/test_contrast.py, and their edges are drawn in 3:1
+    colours.
     """
     from springback.charts.palette import BAND_FILLS, CALENDAR_RAMP, DIVERGING
 

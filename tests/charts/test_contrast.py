@@ -24,8 +24,8 @@ from springback.charts.palette import (
 )
 
 # Source of the formula: W3C, Web Content Accessibility Guidelines (WCAG) 2.1 (2018), definitions
-# of "relative luminance" and "contrast ratio". Values computed with that formula and listed in
-# /work/shared/METHODS.md section 8 ("computed"; identical with the old 0.03928 threshold).
+# of "relative luminance" and "contrast ratio". Values computed with that formula in plain
+# Python ("computed"; identical with the old 0.03928 threshold).
 W3C_CHECKS = [
     ("#000000", 0.0, 21.0),
     ("#767676", 0.181164, 4.5422),

@@ -184,7 +184,7 @@ def test_participant_edition_is_plain(booklets: list, language: str) -> None:
 
     English: Flesch Reading Ease (Flesch 1948) >= 60, the 'standard' band (Flesch 1949).
     Dutch: Flesch-Douma (Douma; constants as printed in the DBNL article) >= 60, 'normaal'.
-    German: Amstad (Amstad 1978) >= 60, 'normal'. Bands: METHODS.md §7.
+    German: Amstad (Amstad 1978) >= 60, 'normal'. Bands: Flesch 1949, Douma (DBNL), Amstad 1978.
     """
     scored = 0
     for participant, lang, path in booklets:

@@ -1,4 +1,4 @@
-"""Reading-ease formulas per language, checked against the worked values of METHODS.md §7."""
+"""Reading-ease formulas per language, checked against hand-counted worked values."""
 
 from __future__ import annotations
 
@@ -28,15 +28,15 @@ DE = "Deine Stimmung war diese Woche stabil. Du hast dich nach stressigen Tagen 
     ("formula", "words_", "sentences", "syllables", "expected"),
     [
         # Flesch 1948, "A new readability yardstick": 206.835 - 1.015 ASL - 84.6 ASW;
-        # hand count of EN in METHODS.md §7 [computed]: 12 words, 2 sentences, 18 syllables.
+        # EN sentence counted by hand [computed]: 12 words, 2 sentences, 18 syllables.
         (FLESCH, 12, 2, 18, 73.845),
-        # "The cat sat on the mat." (METHODS.md §7 [computed]).
+        # "The cat sat on the mat." ([computed by hand]; textstat 0.7.13 identical).
         (FLESCH, 6, 1, 6, 116.145),
-        # Largest possible English score, one one-syllable word per sentence (METHODS.md §7).
+        # Largest possible English score, one one-syllable word per sentence (computed by hand).
         (FLESCH, 1, 1, 1, 121.22),
         # Douma (Dutch Flesch, DBNL article): 206.84 - 0.77 wl - 0.93 zl; NL hand count.
         (DOUMA, 12, 2, 19, 79.343333),
-        # Brouwer Leesindex A: 195 - (2/3) wl - 2 zl, same counts (METHODS.md §7 [computed]).
+        # Brouwer Leesindex A: 195 - (2/3) wl - 2 zl, same counts ([computed by hand]).
         (BROUWER, 12, 2, 19, 77.444444),
         # Amstad 1978 (German Flesch): 180 - ASL - 58.5 ASW; DE hand count 14 / 2 / 23.
         (AMSTAD, 14, 2, 23, 76.892857),
@@ -44,14 +44,14 @@ DE = "Deine Stimmung war diese Woche stabil. Du hast dich nach stressigen Tagen 
 )
 def test_formula_constants(formula, words_: int, sentences: int, syllables: int,
                            expected: float) -> None:
-    """Check each formula on hand-counted inputs against the worked value (METHODS.md §7)."""
+    """Check each formula on hand-counted inputs against the worked value (computed by hand)."""
     assert formula.score(words_, sentences, syllables) == pytest.approx(expected, abs=1e-6)
 
 
 @pytest.mark.parametrize(
     ("text", "language", "counts", "expected"),
     [
-        # METHODS.md §7 [computed; hand count agrees with textstat 0.7.13 + CMUdict].
+        # [computed; hand count agrees with textstat 0.7.13 + CMUdict].
         (EN, "en", (12, 2, 18), 73.845),
         (NL, "nl", (12, 2, 19), 79.343333),  # Douma; textstat's "nl" uses 206.835 (79.338333)
         (DE, "de", (14, 2, 23), 76.892857),  # Amstad; textstat 0.7.13 "de" identical
@@ -60,7 +60,7 @@ def test_formula_constants(formula, words_: int, sentences: int, syllables: int,
 )
 def test_reading_ease_check_values(text: str, language: str, counts: tuple[int, int, int],
                                    expected: float) -> None:
-    """Check the counters and formulas together on the METHODS.md §7 sentences."""
+    """Check the counters and formulas together on the hand-counted EN, NL and DE sentences."""
     result = measure(text, language)
     assert result is not None
     assert (result.words, result.sentences, result.syllables) == counts
@@ -69,7 +69,7 @@ def test_reading_ease_check_values(text: str, language: str, counts: tuple[int, 
 
 
 def test_english_counter_is_pinned_to_cmudict() -> None:
-    """Check that 'steady' has 2 syllables (CMUdict); pyphen alone says 1 (METHODS.md §7)."""
+    """Check that 'steady' has 2 syllables (CMUdict); pyphen alone says 1 (as in textstat 0.7.3)."""
     count = cmudict_counter()
     assert [count(w) for w in ("steady", "recovered", "stressful", "quickly")] == [2, 3, 2, 2]
 
@@ -84,7 +84,7 @@ def test_pluggable_counter() -> None:
 
 
 def test_empty_text_has_no_score() -> None:
-    """Check that a text without words gives None rather than 0 (METHODS.md §7 edge case)."""
+    """Check that a text without words gives None rather than 0 (design choice; textstat: 0.0)."""
     assert reading_ease("", "en") is None
     assert reading_ease(" ... – ", "de") is None
 
@@ -100,7 +100,7 @@ def test_empty_text_has_no_score() -> None:
     ],
 )
 def test_sentence_count(text: str, expected: int) -> None:
-    """Check sentence counting against Flesch's manual rules (as restated in METHODS.md §7)."""
+    """Check sentence counting against Flesch's manual counting rules (Flesch 1948)."""
     assert sentence_count(text) == expected
 
 
@@ -121,7 +121,7 @@ def test_words_keep_contractions_hyphens_and_numbers_whole() -> None:
     ],
 )
 def test_bands(score: float, language: str, label: str) -> None:
-    """Check half-open [lower, upper) bands from the published tables (METHODS.md §7)."""
+    """Check half-open [lower, upper) bands from the tables of Flesch 1949, Douma and Amstad."""
     assert band(score, language) == label
 
 

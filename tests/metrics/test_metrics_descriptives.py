@@ -52,7 +52,7 @@ def test_max_sd_limits_and_relative_variability():
 
 
 def test_mssd_published_and_computed_values():
-    """Check MSSD on METHODS §3 values (REAT mssd() example and the time-adjusted table)."""
+    """Check MSSD (von Neumann et al. 1941) on the REAT mssd() example and time-adjusted values."""
     # [published: R package REAT docs, mssd() example; recomputed] d1 -> 25, d2 -> 212.5.
     d1 = np.array([10, 10, 10, 20, 20, 20, 30, 30, 30.0])
     d2 = np.array([20, 10, 30, 10, 30, 20, 30, 20, 10.0])
@@ -66,7 +66,7 @@ def test_mssd_published_and_computed_values():
 
 
 def test_rmssd_uses_valid_pairs_only():
-    """Check a skipped answer drops its pairs: MSSD 14/3 = 4.666667, not 3.5 (METHODS §3)."""
+    """Check a skipped answer drops its pairs: MSSD 14/3 = 4.666667, not 3.5 (computed by hand)."""
     hours = np.array([9.0, 10, 11, 12, 13, 14])
     values = np.array([3, 5, np.nan, 6, 5, 2.0])
     settings = settings_for(min_pairs=3)

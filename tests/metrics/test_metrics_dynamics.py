@@ -13,7 +13,8 @@ from springback.metrics._series import prepare
 from springback.metrics.dynamics import carry_over, fit_ou
 from tests.support.metrics_sim import participant, prompt_hours, settings_for, simulate_ou
 
-# METHODS.md §1 irregular-sampling check: one person, two days (hours since day 0 midnight).
+# Irregular-sampling check [computed with scipy 1.17]: one person, two days (hours since day 0
+# midnight).
 TWO_DAYS_HOURS = np.array([9, 12, 15, 21, 33, 37, 39, 44.0])
 TWO_DAYS_VALUES = np.array([3, 4, 4, 6, 2, 3, 5, 4.0])
 
@@ -23,7 +24,7 @@ def _with(**metrics: object):
 
 
 def test_inertia_same_day_pairs_worked_values():
-    """Check same-day Pearson 0.369274 and the 5 h rule 0.310087 (METHODS §1, computed)."""
+    """Check same-day Pearson 0.369274 and the 5 h rule 0.310087 (computed with scipy 1.17)."""
     data = participant(TWO_DAYS_HOURS, TWO_DAYS_VALUES)
     settings = _with(min_pairs=3, max_gap_hours=12)
     fam = carry_over(prepare(data, settings), settings)
@@ -77,7 +78,8 @@ def test_inertia_interval_matches_the_spread_of_estimates():
 def test_ou_fit_on_equal_spacing_equals_autoreg():
     """Check kappa = -ln(phi_AutoReg)/dt on equally spaced pairs (OU sampled = AR(1))."""
     # Equal spacing: the OU transition is an AR(1) with intercept, whose conditional ML slope
-    # is the OLS slope of statsmodels AutoReg(x, 1, trend='c') (METHODS §4 AR(1) <-> OU).
+    # is the OLS slope of statsmodels AutoReg(x, 1, trend='c') (AR(1) <-> OU: standard result,
+    # Gardiner 2009, "Stochastic methods", §3.8.4).
     rng = np.random.default_rng(5)
     hours = 5.0 + 0.5 * np.arange(44)  # one study day, every half hour
     x = simulate_ou(hours, 0.4, 1.0, 2.0, rng)
@@ -88,7 +90,7 @@ def test_ou_fit_on_equal_spacing_equals_autoreg():
 
 
 def test_half_life_worked_conversion():
-    """Check phi 0.8 per hour -> kappa 0.223144, half-life 3.106284 h (METHODS §4, computed)."""
+    """Check phi 0.8 per hour -> kappa 0.223144, half-life 3.106284 h (computed with numpy)."""
     x0 = np.array([1.0, -1.0, 2.0, 0.5, -0.7, 1.3, -2.0, 0.1])
     fit = fit_ou(x0, 0.8 * x0 + 0.0, np.ones(8))
     # Noise-free pairs with mean 0 and phi = 0.8 pin kappa at -ln 0.8.
@@ -139,7 +141,8 @@ def test_inertia_is_pearson_on_pairs_not_the_acf():
     """Check the named estimator: Pearson on pairs -0.180683, not statsmodels acf -0.175236."""
     from statsmodels.tsa.stattools import acf
 
-    # METHODS §1 check values [computed] for x = [3, 1, 4, 1, 5, 9, 2, 6], hourly, one day.
+    # Check values [computed with scipy 1.17 and statsmodels 0.15] for x = [3, 1, 4, 1, 5, 9,
+    # 2, 6], hourly, one day.
     x = np.array([3, 1, 4, 1, 5, 9, 2, 6.0])
     settings = _with(min_pairs=3)
     fam = carry_over(prepare(participant(9.0 + np.arange(8), x), settings), settings)

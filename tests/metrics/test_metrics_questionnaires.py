@@ -34,7 +34,7 @@ GAD7 = Questionnaire(range=(0, 21), bands=[(0, "minimal"), (5, "mild"), (10, "mo
     (14, "moderate"), (15, "moderately severe"), (19, "moderately severe"), (20, "severe"),
     (27, "severe")])
 def test_phq9_bands(score, band):
-    """Check PHQ-9 band mapping with inclusive lower bounds (METHODS §9 check values)."""
+    """Check PHQ-9 band mapping with inclusive lower bounds (Kroenke, Spitzer & Williams 2001)."""
     assert band_of(score, PHQ9) == band
 
 
@@ -42,19 +42,19 @@ def test_phq9_bands(score, band):
                                              (10, "moderate"), (14, "moderate"),
                                              (15, "severe"), (21, "severe")])
 def test_gad7_bands(score, band):
-    """Check GAD-7 band mapping (METHODS §9 check values)."""
+    """Check GAD-7 band mapping (Spitzer, Kroenke, Williams & Löwe 2006)."""
     assert band_of(score, GAD7) == band
 
 
 @pytest.mark.parametrize(("spec", "score"), [(PHQ9, -1), (PHQ9, 28), (GAD7, 22)])
 def test_out_of_range_scores_are_refused(spec, score):
-    """Check scores outside the range raise ValueError (METHODS §9)."""
+    """Check scores outside the range (PHQ-9 0-27, Kroenke 2001; GAD-7 0-21) raise ValueError."""
     with pytest.raises(ValueError, match="outside the range"):
         band_of(score, spec)
 
 
 def test_reliable_change_worked_values():
-    """Check S_diff 2.828427, RC -2.828427 and threshold 5.543717 (METHODS §5, computed)."""
+    """Check S_diff 2.828427, RC -2.828427 and threshold 5.543717 (computed by hand)."""
     # Jacobson & Truax 1991 with Christensen & Mendoza 1986's sqrt 2: s1 = 5, r = 0.84.
     s_diff = reliable_change_sdiff(PHQ9)
     assert s_diff == pytest.approx(2.828427, abs=1e-6)
@@ -70,7 +70,7 @@ def test_reliable_change_worked_values():
 
 
 def test_critical_t_values():
-    """Check scipy t quantiles 2.776445 / 3.182446 / 4.302653 (Tang & DeRubeis; METHODS §6)."""
+    """Check scipy t quantiles 2.776445 / 3.182446 / 4.302653 (Tang & DeRubeis 1999)."""
     for df, want in ((4, 2.7764451), (3, 3.1824463), (2, 4.3026527)):
         assert stats.t.ppf(0.975, df) == pytest.approx(want, abs=1e-6)
 
@@ -82,7 +82,7 @@ def test_critical_t_values():
     ([24, 22, 20], [14, 13, 15], False),
 ])
 def test_sudden_gain_worked_table(pre, post, found):
-    """Check the METHODS §6 sudden-gain table (criterion 1 at 7 points, as published)."""
+    """Check a computed sudden-gain table (criterion 1 at 7 points, Tang & DeRubeis 1999)."""
     spec = Questionnaire(range=(0, 63))
     scores = np.array(pre + post, dtype=float)
     gains = [f for f in sudden_changes(scores, spec, 7.0) if f[1] == "gain"]

@@ -67,7 +67,7 @@ def test_kaplan_meier_median_matches_statsmodels():
 
 
 def test_pooled_curve_recovers_exponential():
-    """Check curve_fit recovers A = 3, k = 0.5 from 3 e^{-0.5 t}, t = 0..6 (METHODS §4)."""
+    """Check curve_fit recovers A = 3, k = 0.5 from 3 e^{-0.5 t}, t = 0..6 (scipy 1.17)."""
     t = np.arange(7.0)
     a, k, lo, hi = fit_pooled(t, 3 * np.exp(-0.5 * t))
     assert (a, k) == (pytest.approx(3.0, abs=1e-6), pytest.approx(0.5, abs=1e-6))

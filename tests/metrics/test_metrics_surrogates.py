@@ -33,8 +33,8 @@ def test_kendall_rows_match_scipy_with_and_without_ties():
 
 
 def test_kendall_rows_worked_value_and_nan_rows():
-    """Check METHODS §2: rolling SD of the worked example gives tau 29/55; NaN rows give NaN."""
-    # METHODS.md §2 check values [computed]: SD in 11 windows, Kendall tau = 0.527273 = 29/55.
+    """Check rolling SD of the worked example gives tau 29/55; NaN rows give NaN."""
+    # Check values [computed with scipy 1.17]: SD in 11 windows, Kendall tau = 0.527273 = 29/55.
     sd = [0.3976, 0.3911, 0.3753, 0.3784, 0.3850, 0.4027, 0.4146, 0.3907, 0.4418, 0.4143, 0.4502]
     assert kendall_tau_rows(np.array([sd]))[0] == pytest.approx(29 / 55, abs=1e-6)
     assert kendall_tau_rows(np.arange(10.0)[None])[0] == pytest.approx(1.0)
@@ -58,7 +58,7 @@ def test_phase_surrogates_keep_spectrum_and_mean():
 
 def test_ar1_fit_matches_statsmodels_autoreg():
     """Check the AR(1) fit equals statsmodels AutoReg(x, 1, trend='c') on the same input."""
-    # METHODS.md §1 check value [computed]: OLS/AutoReg slope -0.188623 (= -63/334).
+    # Check value [computed with statsmodels 0.15]: OLS/AutoReg slope -0.188623 (= -63/334).
     x = np.array([3, 1, 4, 1, 5, 9, 2, 6], dtype=float)
     _, phi, _ = fit_ar1(x)
     assert phi == pytest.approx(-63 / 334, abs=1e-6)
@@ -87,7 +87,7 @@ def test_ar1_surrogates_reproduce_phi_and_variance():
 
 
 def test_pvalue_formula_and_direction():
-    """Check p = (1 + k) / (B + 1): B = 999, k = 24 gives 0.025 (METHODS §2 worked value)."""
+    """Check p = (1 + k) / (B + 1): B = 999, k = 24 gives 0.025 (Davison & Hinkley 1997)."""
     null = np.concatenate([np.full(24, 0.9), np.full(975, 0.1)])
     assert surrogate_pvalue(0.5, null) == pytest.approx(0.025)
     assert surrogate_pvalue(0.5, null, increase=False) == pytest.approx(976 / 1000)

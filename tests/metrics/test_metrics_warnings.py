@@ -14,7 +14,7 @@ from springback.metrics.early_warning import early_warnings
 from springback.metrics.surrogates import kendall_tau_columns, phase_surrogates_multi
 from tests.support.metrics_sim import participant, prompt_hours, settings_for, simulate_ou
 
-# METHODS.md §2 check values [computed]: n = 20, t = 0..19.
+# Check values [computed with numpy 2.4 and scipy 1.17]: n = 20, t = 0..19.
 X20 = np.array([0.3, -0.5, 0.4, -0.2, 0.1, -0.6, 0.5, 0.2, -0.3, 0.4,
                 0.9, 1.2, 0.6, 1.5, 1.9, 1.1, 2.2, 2.8, 2.0, 3.1])
 T20 = np.arange(20.0)
@@ -29,7 +29,7 @@ def _taus(x: np.ndarray, width: int, kernel_sd: float | None) -> tuple[float, fl
 
 
 def test_gaussian_detrending_worked_values():
-    """Check the Gaussian kernel trend and residuals (kernel SD 2) against METHODS §2."""
+    """Check the Gaussian kernel trend and residuals (kernel SD 2; Dakos et al. 2012) on X20."""
     trend = [0.0098, -0.0074, -0.0213, -0.0302, -0.0256, 0.0033, 0.0621, 0.1547, 0.2899,
              0.4712, 0.6831, 0.9017, 1.1152, 1.3278, 1.5471, 1.7749, 2.0010, 2.2056, 2.3735,
              2.5039]
@@ -61,7 +61,7 @@ def test_rolling_sd_and_ar1_worked_values():
     (15, 1, 0.733333, 0.466667), (15, 2, 0.866667, 0.466667), (15, 4, 0.866667, 0.600000),
 ])
 def test_sensitivity_grid_worked_values(width, kernel_sd, sd_tau, ar1_tau):
-    """Check the METHODS §2 sensitivity grid (tau of SD / AR1 Pearson) cell by cell."""
+    """Check the sensitivity grid (tau of SD / AR1 Pearson; computed, scipy 1.17) cell by cell."""
     assert _taus(X20, width, kernel_sd) == (pytest.approx(sd_tau, abs=1e-6),
                                             pytest.approx(ar1_tau, abs=1e-6))
 
@@ -167,7 +167,8 @@ def test_family_shape_grid_and_no_asymptotic_p():
     assert 0 <= fam.estimates["warning_robustness"].value <= 1
     again = early_warnings(series, settings, "p07")
     assert again.estimates["warning_p_inertia"] == fam.estimates["warning_p_inertia"]
-    # METHODS §2: scipy's asymptotic Kendall p is invalid here and must not be reported.
+    # scipy's asymptotic Kendall p is invalid here and must not be reported (Gamot,
+    # Thibeau-Sutre & Van Dooren 2026, arXiv:2604.15230).
     rolling = fam.tables["rolling"]
     scipy_p = stats.kendalltau(np.arange(len(rolling)), rolling["sd"]).pvalue
     values = [e.value for e in fam.estimates.values() if e.value is not None]

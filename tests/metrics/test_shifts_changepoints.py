@@ -1,4 +1,5 @@
-"""Abrupt shifts: PELT on daily means, checked against METHODS.md section 11 and simulations."""
+"""Abrupt shifts: PELT (Killick et al. 2012) on daily means, checked on computed values and
+simulations."""
 
 from __future__ import annotations
 
@@ -23,22 +24,22 @@ from tests.support.shifts_sim import brute_force_partition, participant, prompt_
 
 
 def test_pelt_matches_methods_check_values() -> None:
-    """Check PELT (L2, pen 1, min_size 2, jump 1) on the METHODS.md section 11 inputs."""
-    # Source: METHODS.md section 11 [computed with ruptures 1.1.10]: ends [5, 10] and [7, 12].
+    """Check PELT (L2, pen 1, min_size 2, jump 1) on two step inputs (Killick et al. 2012)."""
+    # Source: [computed with ruptures 1.1.10]: ends [5, 10] and [7, 12].
     assert pelt_changepoints(np.array([0.0] * 5 + [5.0] * 5), 1.0, 2) == [5]
     assert pelt_changepoints(np.array([0.0] * 7 + [5.0] * 5), 1.0, 2) == [7]
 
 
 def test_ruptures_default_jump_misplaces_the_change() -> None:
     """Check the library's default jump=5 gives [5, 10, 12], which is why jump=1 is pinned."""
-    # Source: METHODS.md section 11 [computed]: default jump=5 -> [5, 10, 12].
+    # Source: [computed with ruptures 1.1.10]: default jump=5 -> [5, 10, 12].
     y = np.array([0.0] * 7 + [5.0] * 5).reshape(-1, 1)
     assert rpt.Pelt(model="l2", min_size=2).fit(y).predict(pen=1) == [5, 10, 12]
 
 
 def test_brute_force_matches_methods_value() -> None:
-    """Check the independent optimal-partitioning loop gives [7, 12] on the section 11 input."""
-    # Source: METHODS.md section 11 [computed]: brute force gives [7, 12].
+    """Check the independent optimal-partitioning loop gives [7, 12] on the same step input."""
+    # Source: [computed with an unpruned optimal-partitioning loop]: brute force gives [7, 12].
     assert brute_force_partition(np.array([0.0] * 7 + [5.0] * 5), 1.0, 2) == [7, 12]
 
 

@@ -53,8 +53,8 @@ def test_reflected_density_integrates_to_one_on_the_scale() -> None:
 
 
 def test_potential_minima_of_methods_sample() -> None:
-    """Check U = -ln p of the METHODS.md sample s has minima at -1, +1 and a maximum at 0."""
-    # Source: METHODS.md section 10 [computed]: gaussian_kde(s, bw_method=0.3) -> minima
+    """Check U = -ln p of the two-cluster sample s has minima at -1, +1 and a maximum at 0."""
+    # Source: [computed with scipy 1.17]: gaussian_kde(s, bw_method=0.3) -> minima
     # {-1.00, +1.00}, maximum at 0.00; Scott's factor 0.538909 -> minima {-0.98, +0.98}.
     u = potential_of(kde_density(S_SAMPLE, GRID, 0.3))
     assert GRID[local_minima(u)].tolist() == [-1.0, 1.0]
@@ -67,8 +67,8 @@ def test_potential_minima_of_methods_sample() -> None:
 
 
 def test_potential_of_analytic_mixture() -> None:
-    """Check U values and minima of the analytic mixture in METHODS.md section 10."""
-    # Source: METHODS.md section 10 [computed, sigma = 1, U = -(sigma^2/2) ln p]: U(+-1) =
+    """Check U values and minima of the analytic two-normal mixture (Livina et al. 2010)."""
+    # Source: [computed with scipy 1.17, sigma = 1, U = -(sigma^2/2) ln p]: U(+-1) =
     # 0.459302, U(0) = 1.112896, minima {-1, 1}.
     p = 0.5 * stats.norm.pdf(GRID, -1, 0.5) + 0.5 * stats.norm.pdf(GRID, 1, 0.5)
     u = potential_of(p, sigma=1.0)
@@ -82,7 +82,7 @@ def test_potential_of_analytic_mixture() -> None:
 @pytest.mark.parametrize(
     ("sample", "bc", "dip", "dip_p"),
     [
-        # Source: METHODS.md section 10 table [computed with scipy 1.17 and diptest 0.12].
+        # Source: [computed with scipy 1.17 and diptest 0.12].
         ([1, 1, 1, 2, 2, 8, 8, 9, 9, 9], 0.529892, 0.214286, 6.1e-6),
         (list(range(1, 11)), 0.318544, 0.05, 1.0),
         ([1, 4, 5, 5, 5, 5, 5, 5, 6, 9], 0.127218, 0.05, 1.0),
@@ -91,7 +91,7 @@ def test_potential_of_analytic_mixture() -> None:
 )
 def test_bimodality_coefficient_and_dip(sample: list[float], bc: float, dip: float,
                                         dip_p: float) -> None:
-    """Check BC (Pfister et al. 2013) and Hartigan's dip (allow_zero=False) on METHODS values."""
+    """Check BC (Pfister et al. 2013) and Hartigan's dip (allow_zero=False) on computed values."""
     assert bimodality_coefficient(np.array(sample, float)) == pytest.approx(bc, abs=1e-6)
     d, p = dip_test(np.array(sample, float))
     assert d == pytest.approx(dip, abs=1e-6)
@@ -100,7 +100,8 @@ def test_bimodality_coefficient_and_dip(sample: list[float], bc: float, dip: flo
 
 def test_bimodality_coefficient_of_uniform_population() -> None:
     """Check BC approaches 5/9 for a large uniform sample."""
-    # Source: METHODS.md section 10: population BC of a continuous uniform = 0.555556.
+    # Source: Pfister et al. 2013, Front Psychol 4:700: population BC of a continuous uniform
+    # = 5/9 = 0.555556.
     x = np.random.default_rng(2).uniform(0, 1, 200_000)
     assert bimodality_coefficient(x) == pytest.approx(5 / 9, abs=0.005)
 

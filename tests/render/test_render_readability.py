@@ -22,8 +22,8 @@ def test_participant_edition_is_plain_english(settings) -> None:
     """Check Flesch Reading Ease >= 60 on the rendered participant edition.
 
     Formula: Flesch 1948, "A new readability yardstick", Journal of Applied Psychology
-    (206.835 - 1.015 ASL - 84.6 ASW; constants confirmed in METHODS.md section 7); 60-70 is
-    "standard" (plain English), which matches a reader of about 12-13 years.
+    (206.835 - 1.015 ASL - 84.6 ASW); 60-70 is "standard" (plain English; Flesch 1949, The Art
+    of Readable Writing), which matches a reader of about 12-13 years.
     """
     data = sample_data()
     html = render_booklet("participant", settings=settings, data=data,

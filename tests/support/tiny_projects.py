@@ -58,19 +58,19 @@ def fp(pid: str, n: int = 1) -> str:
     return hashlib.sha256(f"{pid}-{n}".encode()).hexdigest()
 
 
-def make_project(root: Path, keep: str = "copy") -> Path:
+def make_project(root: Path, keep: str = "copy", ids: tuple[str, ...] = PEOPLE) -> Path:
     """Write a small project folder: study.toml, a momentary file and a roster."""
     root.mkdir(parents=True, exist_ok=True)
     (root / "study.toml").write_text(STUDY_TOML.replace("{keep}", keep), encoding="utf-8")
     data = root / "data"
     data.mkdir(exist_ok=True)
     rows = ["participant,timestamp,sad,cheerful,hopeless"]
-    for pid in PEOPLE:
+    for pid in ids:
         for day in range(1, 6):
             rows.append(f"{pid},2026-03-{day:02d} 10:00,{day % 7 + 1},4,2")
     (data / "momentary.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
     roster = ["participant,language,consent,feedback,therapist,region"]
-    roster += [f"{pid},en,yes,yes,yes,default" for pid in PEOPLE]
+    roster += [f"{pid},en,yes,yes,yes,default" for pid in ids]
     (data / "participants.csv").write_text("\n".join(roster) + "\n", encoding="utf-8")
     return root
 
@@ -90,12 +90,12 @@ def hold_flag(pid: str) -> dict[str, Any]:
 
 def fake_build(project: Path, staging: Path, fingerprints: dict[str, str] | None = None,
                holds: tuple[str, ...] = (), extra: dict[str, dict[str, Any]] | None = None,
-               text: str = "booklet") -> str:
+               text: str = "booklet", ids: tuple[str, ...] = PEOPLE) -> str:
     """Write a staging out/ like a build's and record it; return the build id."""
-    fingerprints = fingerprints or {p: fp(p) for p in PEOPLE}
+    fingerprints = fingerprints or {p: fp(p) for p in ids}
     staging.mkdir(parents=True, exist_ok=True)
     people: dict[str, dict[str, Any]] = {}
-    for pid in PEOPLE:
+    for pid in ids:
         folder = staging / "booklets" / pid
         folder.mkdir(parents=True, exist_ok=True)
         (folder / "participant.html").write_text(f"<p>{text} for {pid}</p>\n", encoding="utf-8")
@@ -109,10 +109,10 @@ def fake_build(project: Path, staging: Path, fingerprints: dict[str, str] | None
             "files": [f"booklets/{pid}/participant.html", f"booklets/{pid}/participant.pdf"],
         }
         people[pid].update((extra or {}).get(pid, {}))
-    metrics = pd.DataFrame({"participant": list(PEOPLE), "measure": "mean", "value": 3.5})
+    metrics = pd.DataFrame({"participant": list(ids), "measure": "mean", "value": 3.5})
     metrics.to_csv(staging / "metrics.csv", index=False, lineterminator="\n")
     (staging / "index.html").write_text(
-        "<ul>" + "".join(f"<li>{p}</li>" for p in PEOPLE) + "</ul>\n", encoding="utf-8")
+        "<ul>" + "".join(f"<li>{p}</li>" for p in ids) + "</ul>\n", encoding="utf-8")
     when = datetime(2026, 3, 6, 12, 0, tzinfo=UTC)
     return record_build(
         project, staging, [project / "data" / "momentary.csv",

@@ -25,6 +25,7 @@ participant, to be removed by the study team before the next build.
 from __future__ import annotations
 
 import csv
+import html
 import io
 import re
 import shutil
@@ -66,9 +67,18 @@ class ErasureReport:
     still_in_data: tuple[str, ...]
 
 
+# Characters an id may hold. A match must not touch one of them on either side, so P1 is not
+# found inside P10, S1-b or P1.2; a '.' counts only when an id character follows it, so "P1."
+# at the end of a sentence still names P1.
+_ID_CHAR = r"[A-Za-z0-9_\-]"
+
+
 def mentions(participant: str) -> re.Pattern[str]:
-    """A pattern finding the id as a whole token (P1 does not match inside P10)."""
-    return re.compile(rf"(?<![A-Za-z0-9_]){re.escape(participant)}(?![A-Za-z0-9_])")
+    """A pattern finding the id as a whole token, raw or HTML-escaped (P1 not inside P10)."""
+    forms = sorted({participant, html.escape(participant, quote=True),
+                    html.escape(participant, quote=False)}, key=len, reverse=True)
+    body = "|".join(re.escape(form) for form in forms)
+    return re.compile(rf"(?<!{_ID_CHAR})(?<!{_ID_CHAR}\.)(?:{body})(?!{_ID_CHAR}|\.{_ID_CHAR})")
 
 
 def _filter_csv(text: str, participant: str, id_columns: set[str]) -> str | None:

@@ -34,7 +34,7 @@ from dataclasses import asdict, is_dataclass
 from datetime import UTC, datetime
 from functools import lru_cache
 from importlib import metadata
-from pathlib import Path
+from pathlib import Path, PurePosixPath
 from typing import Any
 
 from springback import __version__
@@ -127,8 +127,8 @@ def _participant_record(pid: str, info: dict[str, Any], outputs: list[str]) -> d
     record = {k: _plain(v) for k, v in info.items()}
     record["flags"] = [_plain(f) for f in info.get("flags", [])]
     if "files" not in record:
-        pattern = re.compile(rf"(^|[/_.-]){re.escape(pid)}($|[/_.-])")
-        record["files"] = [o for o in outputs if pattern.search(o)]
+        # Exact path components only: P1 never claims booklets/P10/ or booklets/P1-b/.
+        record["files"] = [o for o in outputs if pid in PurePosixPath(o).parts]
     record["files"] = sorted(str(f) for f in record["files"])
     return record
 

@@ -1,6 +1,6 @@
 """Reading ease of booklet text per language, with our own formula constants.
 
-Formulas (METHODS.md §7), each "base − a·(words per sentence) − b·(syllables per word)":
+Formulas, each "base − a·(words per sentence) − b·(syllables per word)":
 
 - English: Flesch Reading Ease (Flesch 1948, "A new readability yardstick", Journal of
   Applied Psychology): 206.835 − 1.015·ASL − 84.6·ASW.
@@ -73,7 +73,7 @@ Each published band table puts its plain middle band at 60–70 ("standard", 8th
 in Flesch 1949, The Art of Readable Writing; "normaal" in Douma's table; "normal" in Amstad's),
 because Douma and Amstad re-fitted the constants so that scores keep Flesch's meaning in their
 language. The same number is therefore the equivalent level in each language (band tables:
-METHODS.md §7).
+Flesch 1949; Douma's as printed in the DBNL article; Amstad 1978).
 """
 
 BANDS = {
@@ -85,7 +85,8 @@ BANDS = {
     "de": ((90, "sehr leicht"), (80, "leicht"), (70, "einfach"), (60, "normal"),
            (50, "anspruchsvoll"), (30, "schwierig"), (float("-inf"), "sehr schwer")),
 }
-"""Band labels from each formula's published table, lower bounds included (METHODS.md §7)."""
+"""Band labels from each formula's published table (Flesch 1949, Douma, Amstad 1978), lower
+bounds included."""
 
 PYPHEN_LANGUAGES = {"en": "en_US", "nl": "nl_NL", "de": "de_DE"}
 

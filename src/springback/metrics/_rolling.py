@@ -16,7 +16,9 @@ def gaussian_trend(hours: np.ndarray, x: np.ndarray, kernel_sd_hours: float) -> 
 
     Dakos et al. 2012, "Methods for detecting early warnings of critical transitions in time
     series illustrated using simulated ecological data", PLoS ONE 7:e41010 (Gaussian filtering);
-    the bandwidth here is the kernel's SD in hours (METHODS.md §2 on the R ksmooth convention).
+    the bandwidth here is the kernel's SD in hours, not R's ksmooth bandwidth, which puts the
+    kernel's quartiles at +-0.25 bandwidth (R stats documentation, ksmooth), so that
+    SD = 0.370651 bandwidth (computed with scipy 1.17).
     """
     z = (hours[:, None] - hours[None, :]) / kernel_sd_hours
     weights = np.exp(-0.5 * z * z)

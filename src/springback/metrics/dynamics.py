@@ -7,7 +7,8 @@ independent; Künsch 1989, "The jackknife and the bootstrap for general stationa
 observations", Ann Stat 17:1217-1241, on resampling blocks). The Fisher-z interval assumes
 independent pairs and was 25% too narrow at high carry-over in simulations.
 Kuppens, Allen & Sheeber 2010, "Emotional inertia and psychological maladjustment",
-Psychological Science 21:984-991 (the concept); METHODS.md §1 estimator (a).
+Psychological Science 21:984-991 (the concept); Pearson on pairs rather than the ACF or the
+AR(1) slope is a design choice among the usual lag-1 estimators.
 
 Recovery rate: mood x(t) is an Ornstein-Uhlenbeck process dx = -kappa (x - mu) dt + s dW
 (Uhlenbeck & Ornstein 1930, "On the theory of the Brownian motion", Phys Rev 36:823, from
@@ -32,7 +33,7 @@ indicators (`metrics.detrend`, `bandwidth_days`; 'none' keeps the raw ratings), 
 change of level is not read as slow recovery.
 
 Minimum data: `metrics.min_pairs` admissible pairs (default 30), a reporting minimum that is a
-design choice (METHODS.md §1 edge cases), not a published rule.
+design choice, not a published rule.
 """
 
 from __future__ import annotations

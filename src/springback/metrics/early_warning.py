@@ -15,11 +15,12 @@ in time series illustrated using simulated ecological data", PLoS ONE 7:e41010; 
    uses at most TREND_POINTS evenly spaced window ends (design choice: neighbouring windows
    share almost all answers, and it keeps 1000 surrogates affordable).
 5. Significance by surrogates only (the textbook Kendall p-value is invalid for overlapping
-   windows; METHODS.md §2): half AR(1)-fitted, half Fourier phase-randomised surrogates of the
-   detrended series run through steps 2-4; p = (1 + #{tau* >= tau}) / (B + 1) over all B
-   surrogates of both kinds (each kind's own p is kept in the parameters). Surrogate running
-   sums are kept in single precision: it moves a surrogate's tau by a pair or two at most and
-   halves the memory traffic.
+   windows; Gamot, Thibeau-Sutre & Van Dooren 2026, "On the robustness of Mann-Kendall tests
+   used to forecast critical transitions", arXiv:2604.15230): half AR(1)-fitted, half Fourier
+   phase-randomised surrogates of the detrended series run through steps 2-4;
+   p = (1 + #{tau* >= tau}) / (B + 1) over all B surrogates of both kinds (each kind's own p
+   is kept in the parameters). Surrogate running sums are kept in single precision: it moves
+   a surrogate's tau by a pair or two at most and halves the memory traffic.
    Item correlations use multivariate phase surrogates only (shared phases keep the items'
    cross-correlation; Prichard & Theiler 1994).
 6. Sensitivity: the same test over every window share x bandwidth in the settings.
