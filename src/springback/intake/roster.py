@@ -17,6 +17,47 @@ YES = {"yes", "y", "true", "1", "ja", "j"}
 NO = {"no", "n", "false", "0", "nee", "nein"}
 CONSENT = {"yes": "yes", "withdrawn": "withdrawn"}
 
+ID_LIMIT = 64
+ID_RULE = (f"at most {ID_LIMIT} letters, digits, '_', '-', '.', '#' or spaces, not starting "
+           "with '.', '-' or a space and not ending with '.' or a space")
+"""The documented rule for participant ids: each id names a folder under out/booklets/."""
+
+# Names Windows keeps for devices; a file or folder with one of them (any case, with or
+# without an extension) cannot be created there.
+RESERVED = {"con", "prn", "aux", "nul", *(f"com{i}" for i in range(10)),
+            *(f"lpt{i}" for i in range(10))}
+
+
+def id_problem(pid: str) -> str | None:
+    """Why an id cannot be used as a folder name (None when it is safe)."""
+    if not pid:
+        return "an empty id"
+    if len(pid) > ID_LIMIT:
+        return f"{len(pid)} characters"
+    if "/" in pid or "\\" in pid:
+        return "a path separator ('/' or '\\')"
+    if ".." in pid:
+        return "'..'"
+    if any(not ch.isprintable() for ch in pid):
+        return "a control character"
+    if pid[0] in ".- ":
+        return f"a leading '{pid[0]}'"
+    if pid[-1] in ". ":
+        return f"a trailing '{pid[-1]}'"
+    # Inner spaces and '#' are kept because real studies use ids such as 'User #25290'.
+    odd = sorted({ch for ch in pid if not (ch.isalnum() or ch in "_-.# ")})
+    if odd:
+        return "the character(s) " + " ".join(repr(ch) for ch in odd)
+    if pid.split(".", 1)[0].lower() in RESERVED:
+        return "a name Windows reserves for a device"
+    return None
+
+
+def _shown(pid: str) -> str:
+    """The id as it can be printed: control characters escaped, long ids shortened."""
+    text = pid.encode("unicode_escape").decode("ascii") if not pid.isprintable() else pid
+    return text if len(text) <= 40 else text[:37] + "..."
+
 
 def read_roster(table: Table, settings: StudySettings, problems: list) -> pd.DataFrame | None:
     """Check the roster and return it by the column contract; None if it cannot be used."""
@@ -54,6 +95,14 @@ def read_roster(table: Table, settings: StudySettings, problems: list) -> pd.Dat
         problems.append(error(table.where, "the participant id is missing", row=int(r),
                               column=cols.participant, fix="fill in the id or delete the row",
                               code="missing-participant"))
+    for r, who in zip(rows[pid.notna().to_numpy()], pid[pid.notna()], strict=True):
+        reason = id_problem(str(who))
+        if reason:
+            problems.append(error(
+                table.where, f"participant id '{_shown(str(who))}' cannot be used as a folder "
+                "name", expected=ID_RULE, found=reason, row=int(r), column=cols.participant,
+                fix="give the participant a plain id such as P01, the same in every data file",
+                code="unsafe-participant"))
     twice = pid.notna() & pid.duplicated(keep=False)
     for who, group in pd.Series(rows[twice.to_numpy()]).groupby(pid[twice].to_numpy()):
         problems.append(error(table.where, f"participant '{who}' is listed more than once",
