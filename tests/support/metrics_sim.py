@@ -7,6 +7,7 @@ import pandas as pd
 
 from springback.model import ParticipantData
 from springback.settings import StudySettings, from_mapping
+from tests.support import sim
 
 ZONE = "Europe/Amsterdam"
 
@@ -14,29 +15,14 @@ ZONE = "Europe/Amsterdam"
 def prompt_hours(days: int, per_day: int, rng: np.random.Generator,
                  start: float = 9.0, end: float = 21.0) -> np.ndarray:
     """Stratified random prompt times (hours since day 0 midnight), one per block of the day."""
-    block = (end - start) / per_day
-    day = np.repeat(np.arange(days), per_day) * 24.0
-    slot = np.tile(np.arange(per_day), days) * block + start
-    return day + slot + rng.uniform(0, block, days * per_day)
+    return sim.prompt_hours(days, per_day, rng, start, end)
 
 
 def simulate_ou(hours: np.ndarray, kappa: float | np.ndarray, sd: float | np.ndarray, mu: float,
                 rng: np.random.Generator) -> np.ndarray:
-    """Sample dX = -kappa (X - mu) dt + s dW exactly at the given times (stationary SD `sd`).
-
-    Exact OU transition (e.g. Gillespie 1996, "Exact numerical simulation of the
-    Ornstein-Uhlenbeck process and its integral", Phys Rev E 54:2084): X(t+dt) - mu =
-    e^{-kappa dt}(X(t) - mu) + sd sqrt(1 - e^{-2 kappa dt}) Z. Per-step kappa and sd give a
-    slowly changing rate (approach to a fold: sd = s / sqrt(2 kappa) for constant noise s).
-    """
-    kappa = np.broadcast_to(np.asarray(kappa, dtype=float), hours.shape)
-    sd = np.broadcast_to(np.asarray(sd, dtype=float), hours.shape)
-    x = np.empty(len(hours))
-    x[0] = mu + sd[0] * rng.standard_normal()
-    for i in range(1, len(hours)):
-        phi = np.exp(-kappa[i] * (hours[i] - hours[i - 1]))
-        x[i] = mu + phi * (x[i - 1] - mu) + sd[i] * np.sqrt(1 - phi * phi) * rng.standard_normal()
-    return x
+    """Sample dX = -kappa (X - mu) dt + s dW exactly at the given times (stationary SD `sd`);
+    a per-step kappa and sd give a slowly changing rate (sd = s / sqrt(2 kappa))."""
+    return sim.ou_values(hours, rate=kappa, sd=sd, mean=mu, rng=rng)
 
 
 def settings_for(**metrics: object) -> StudySettings:

@@ -10,6 +10,7 @@ import pandas as pd
 
 from springback.model import ParticipantData
 from springback.settings import StudySettings
+from tests.support import sim
 
 START = pd.Timestamp("2026-03-02 00:00", tz="UTC")
 
@@ -27,12 +28,8 @@ def settings(scale: tuple[float, float] = (0, 100), higher_is: str = "worse",
 
 def prompt_hours(days: int, per_day: int, rng: np.random.Generator,
                  first: float = 8.0, last: float = 22.0) -> np.ndarray:
-    """Stratified random prompt times (hours since START): one per equal slot of the day."""
-    slot = (last - first) / per_day
-    day = np.repeat(np.arange(days), per_day) * 24.0
-    jitter = rng.uniform(0.1, 0.9, days * per_day)
-    within = first + slot * (np.tile(np.arange(per_day), days) + jitter)
-    return day + within
+    """Stratified random prompt times (hours since START), inside the middle 80% of each slot."""
+    return sim.prompt_hours(days, per_day, rng, first, last, within=(0.1, 0.9))
 
 
 def participant(hours: np.ndarray, values: np.ndarray, pid: str = "p1",
@@ -90,12 +87,7 @@ def double_well(hours: np.ndarray, rng: np.random.Generator, sigma: float = 0.7,
 def single_well(hours: np.ndarray, rng: np.random.Generator, phi_per_hour: float = 0.8
                 ) -> np.ndarray:
     """Unit-variance Ornstein-Uhlenbeck values at irregular times (exact discretisation)."""
-    x = np.empty(len(hours))
-    x[0] = rng.standard_normal()
-    for i in range(1, len(hours)):
-        a = phi_per_hour ** (hours[i] - hours[i - 1])
-        x[i] = a * x[i - 1] + math.sqrt(1 - a * a) * rng.standard_normal()
-    return x
+    return sim.ou_values(hours, rate=-math.log(phi_per_hour), sd=1.0, mean=0.0, rng=rng)
 
 
 def latent_residence(grid: np.ndarray, path: np.ndarray, low: float, high: float
