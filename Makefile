@@ -26,10 +26,12 @@ demo: $(STAMP)
 ## test: set up with test extras, then run the whole suite
 test: $(TSTAMP)
 	$(BIN)/ruff check src tests benchmarks example_project
+	$(BIN)/mypy
 	$(BIN)/python -m pytest -n 2 --dist loadgroup
 
 lint: $(TSTAMP)
 	$(BIN)/ruff check src tests benchmarks example_project
+	$(BIN)/mypy
 
 bench: $(TSTAMP)
 	$(BIN)/python benchmarks/run.py

@@ -190,7 +190,7 @@ def _try_lock(fd: int) -> bool:
         import msvcrt
 
         try:
-            msvcrt.locking(fd, msvcrt.LK_NBLCK, 1)
+            msvcrt.locking(fd, msvcrt.LK_NBLCK, 1)  # type: ignore[attr-defined]
         except OSError:
             return False
         return True
@@ -208,7 +208,7 @@ def _unlock(fd: int) -> None:
         import msvcrt
 
         with contextlib.suppress(OSError):
-            msvcrt.locking(fd, msvcrt.LK_UNLCK, 1)
+            msvcrt.locking(fd, msvcrt.LK_UNLCK, 1)  # type: ignore[attr-defined]
         return
     fcntl.flock(fd, fcntl.LOCK_UN)
 

@@ -64,7 +64,7 @@ class MemoryFrames(Frames):
                 self._positions = {}
             else:
                 groups = self._frame.groupby(self._key, sort=False, observed=True).indices
-                self._positions = {str(k): v for k, v in groups.items()}
+                self._positions = {str(k): np.asarray(v) for k, v in groups.items()}
         return self._positions
 
     def names(self) -> list[str]:

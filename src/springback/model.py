@@ -9,7 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
-from typing import Literal
+from typing import Literal, cast
 
 import numpy as np
 import pandas as pd
@@ -130,7 +130,8 @@ class Study:
 
     @cached_property
     def _roster_rows(self) -> dict[str, dict[str, object]]:
-        return {str(r["participant"]): r for r in self.roster.to_dict("records")}
+        return {str(r["participant"]): cast(dict[str, object], r)
+                for r in self.roster.to_dict("records")}
 
     def index(self) -> None:
         """Find every participant's rows now (otherwise done by the first `slice`)."""

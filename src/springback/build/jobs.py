@@ -15,7 +15,7 @@ import pandas as pd
 
 from springback import __version__
 from springback.build.records import BOOKLETS, Job, ParticipantOutcome
-from springback.model import ParticipantData
+from springback.model import Edition, ParticipantData
 from springback.settings import StudySettings
 
 WARM_CHART: dict[str, Any] = {
@@ -93,7 +93,8 @@ def _run_job(job: Job) -> ParticipantOutcome:
 
     data, settings = job.data, job.settings
     pid = data.participant
-    base = {"participant": pid, "fingerprint": job.fingerprint, "version": job.version,
+    base: dict[str, Any] = {"participant": pid, "fingerprint": job.fingerprint,
+                            "version": job.version,
             "period": _period(data)}
     if data.consent != "yes":
         return ParticipantOutcome(status="withdrawn", reason="consent withdrawn", **base)
@@ -101,7 +102,7 @@ def _run_job(job: Job) -> ParticipantOutcome:
     results = metrics.compute(data, settings)
     flags = safety.evaluate(data, results, settings, period_end=job.period_end)
     state = review_state(job.project, pid, job.fingerprint, flags)
-    common = dict(
+    common: dict[str, Any] = dict(
         metrics_rows=metrics.results_rows(results),
         flag_rows=safety.flags_rows(flags),
         shift_rows=shift_rows(results),
@@ -123,7 +124,7 @@ def _run_job(job: Job) -> ParticipantOutcome:
 
 
 def render_booklets(
-    job: Job, results: Any, flags: list[Any], state: str, editions: Iterable[str]
+    job: Job, results: Any, flags: list[Any], state: str, editions: Iterable[Edition]
 ) -> dict[str, bytes]:
     """Render the chosen editions of one participant to HTML and PDF bytes."""
     from springback import charts, render

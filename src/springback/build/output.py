@@ -14,7 +14,7 @@ import shutil
 from collections.abc import Iterable
 from datetime import datetime
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, cast
 
 import pandas as pd
 
@@ -97,7 +97,8 @@ class Previous:
     def outcome(self, job: Job, staging: Path) -> ParticipantOutcome | None:
         """The participant's last outcome, its files copied into `staging`, if nothing it
         depends on changed; else None (and nothing copied)."""
-        from springback.build.records import BOOKLETS, EDITIONS, ParticipantOutcome
+        from springback.build.records import BOOKLETS, ParticipantOutcome
+        from springback.model import EDITIONS
         from springback.review.gate import review_state
 
         pid = job.data.participant
@@ -140,7 +141,7 @@ def _rows_by_participant(path: Path) -> dict[str, list[dict[str, Any]]]:
     df = pd.read_csv(path, dtype=str, keep_default_na=False)
     out: dict[str, list[dict[str, Any]]] = {}
     for row in df.to_dict("records"):
-        out.setdefault(row["participant"], []).append(row)
+        out.setdefault(row["participant"], []).append(cast(dict[str, Any], row))
     return out
 
 

@@ -18,6 +18,7 @@ from rich.progress import (
     BarColumn,
     MofNCompleteColumn,
     Progress,
+    TaskID,
     TextColumn,
     TimeElapsedColumn,
     TimeRemainingColumn,
@@ -49,7 +50,7 @@ class BuildProgress:
         """Participants finished by computing and rendering (what the time estimate uses)."""
         self.started = now()
         self._bar: Progress | None = None
-        self._task: int | None = None
+        self._task: TaskID | None = None
 
     def __enter__(self) -> BuildProgress:
         if not self.quiet and self.console.is_terminal:

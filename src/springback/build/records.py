@@ -9,7 +9,8 @@ from typing import Any
 
 import pandas as pd
 
-from springback.model import EDITIONS, ParticipantData
+from springback.model import EDITIONS as EDITIONS  # re-exported for callers
+from springback.model import ParticipantData
 from springback.settings import StudySettings
 
 BOOKLETS = "booklets"

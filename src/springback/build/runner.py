@@ -158,7 +158,7 @@ def _run_dask(jobs: Iterable[J], fn: Callable[[J], R], scheduler: str | None, re
             client.run(initializer)  # once on every worker the cluster has now
         window = 2 * max(1, sum(client.nthreads().values()))
         queue: Iterator[tuple[int, J]] = enumerate(jobs)
-        index: dict[str, int] = {}
+        index: dict[object, int] = {}
         names: dict[int, str] = {}
         flow = as_completed()
 

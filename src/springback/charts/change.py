@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -95,11 +95,11 @@ def _recovery_description(ctx: Inputs, episodes: pd.DataFrame) -> str:
     median = ctx.estimate("recovery", "median_recovery_hours")
     if median.ok:
         parts.append(_("Getting back usually took {time}.").format(
-            time=ctx.hours_words(float(median.value))))
+            time=ctx.hours_words(float(cast(float, median.value)))))
     half = ctx.estimate("recovery", "recovery_half_life_hours")
     if half.ok:
         parts.append(_("The fitted curve is half-way back after {time}.").format(
-            time=ctx.hours_words(float(half.value))))
+            time=ctx.hours_words(float(cast(float, half.value)))))
     else:
         parts.append(_("There were too few of these times to fit a curve."))
     return " ".join(parts)
@@ -177,7 +177,8 @@ def _indicator_panel(ctx: Inputs, daily: pd.DataFrame, name: str, measure: str,
     ends = pd.DataFrame({"t": [t[0], t[-1]],
                          "v": [intercept, intercept + slope * (t[-1] - t[0]) / 86_400_000]})
     tau = ctx.estimate("warnings", measure)
-    note = (_("dashed line: trend; Kendall's tau {tau}").format(tau=ctx.num(float(tau.value), 2))
+    note = (_("dashed line: trend; Kendall's tau {tau}").format(
+                tau=ctx.num(float(cast(float, tau.value)), 2))
             if tau.ok else _("dashed line: trend; Kendall's tau not computed"))
     x = time_axis(ctx, _("Date"), t)
     y = {"type": "quantitative", "scale": {"zero": False}, "axis": {"title": None}}

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -101,7 +101,7 @@ def _landscape_description(ctx: Inputs, valley_rows: pd.DataFrame) -> str:
         switches = ctx.estimate("landscape", "switches")
         if switches.ok:
             text += " " + _("It moved from one to the other {n} times.").format(
-                n=int(switches.value))
+                n=int(cast(float, switches.value)))
     elif len(xs) > 2:
         text = _("Your mood seemed to have several resting places, near {places}.").format(
             places=", ".join(xs))

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, cast
 
 import babel.dates
 import numpy as np
@@ -210,7 +210,7 @@ def _shift_sentences(ctx: Inputs) -> list[str]:
         return [(worse if row.direction == "worse" else better).format(date=ctx.date(row.study_day))
                 for row in points.itertuples()]
     n_worse = int((points["direction"] == "worse").sum())
-    largest = points.loc[points["size"].abs().idxmax()]
+    largest = points.loc[cast(Any, points["size"].abs().idxmax())]
     return [
         _("Your mood seemed to shift {n} times: {worse} times to feeling worse and {better} "
           "times to feeling better.").format(n=len(points), worse=n_worse,
@@ -224,7 +224,7 @@ def _mood_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None) -
     per_day: dict[pd.Timestamp, str] = {}
     if events is not None:
         for day, group in events.groupby("day", sort=True):
-            per_day[pd.Timestamp(day)] = ", ".join(sorted(group["kind"].astype(str)))
+            per_day[pd.Timestamp(cast(Any, day))] = ", ".join(sorted(group["kind"].astype(str)))
     days = pd.to_datetime(daily["study_day"])
     return pd.DataFrame({
         _("Date"): [ctx.date_short(d) for d in days],
@@ -256,7 +256,7 @@ def calendar_chart(ctx: Inputs) -> Chart | None:
          "scale": {"domain": week_names, "paddingInner": 0.08},
          "axis": {"title": _("Week starting"), "domain": False, "ticks": False}}
     data = {"values": records(cells.assign(weekday=[day_names[i] for i in cells["wd"]]))}
-    spec = {
+    spec: dict[str, Any] = {
         "width": 7 * cell_w, "height": cell_h * len(week_names), "data": data,
         "layer": [
             {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},

@@ -12,7 +12,7 @@ from __future__ import annotations
 import re
 import threading
 import xml.etree.ElementTree as ET
-from typing import Any
+from typing import Any, cast
 
 import vl_convert
 
@@ -95,7 +95,8 @@ def to_svg(spec: dict[str, Any], key: str, title: str, description: str, languag
     full = {**spec, "config": THEME}
     locale = vega_locale(language)
     raw = vl_convert.vegalite_to_svg(
-        full, allowed_base_urls=[], format_locale=locale, time_format_locale=locale
+        full, allowed_base_urls=[], format_locale=cast(Any, locale),
+        time_format_locale=cast(Any, locale),
     )
     return finish_svg(raw, key, title, description)
 

@@ -37,7 +37,7 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from email.utils import parseaddr
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 from springback.archive.audit import append, read_entries, subject
 from springback.archive.manifest import latest_manifest
@@ -122,7 +122,7 @@ def _roster(project: Path, settings: StudySettings) -> dict[str, dict[str, Any]]
     frame = read_roster(table, settings, problems)
     if frame is None or any(p.is_error for p in problems):
         raise DataError(problems)
-    return {str(r["participant"]): dict(r) for r in frame.to_dict("records")}
+    return {str(r["participant"]): dict(cast(dict[str, Any], r)) for r in frame.to_dict("records")}
 
 
 def _why_not(project: Path, pid: str, rec: dict[str, Any], now: dict[str, Any] | None) -> str:
@@ -317,7 +317,7 @@ class _Run:
                 else:
                     outcome, lost = self._one(smtp, item, to, token, phrases)
                     if lost:
-                        mail.disconnect(smtp)
+                        mail.disconnect(cast(Any, smtp))  # `lost` means it was open
                         smtp = None
                 outcomes.append(outcome)
                 if self.progress is not None:

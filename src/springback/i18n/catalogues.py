@@ -19,7 +19,7 @@ import io
 import os
 from collections.abc import Iterable
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 from babel import Locale
 from babel.messages.catalog import Catalog, Message
@@ -236,10 +236,10 @@ def _compiled_differs(language: str, catalog: Catalog) -> list[str]:
             continue
         key = f"{message.context}\x04" if message.context else ""
         if isinstance(message.id, (list, tuple)):
-            for i, string in enumerate(message.string):
+            for i, string in enumerate(cast(list[str], message.string)):
                 expected[(key + message.id[0], i)] = string
         else:
-            expected[key + message.id] = message.string
+            expected[key + message.id] = cast(str, message.string)
     compiled.pop("", None)  # the header
     keys = set(expected) | set(compiled)
     return sorted(str(k) for k in keys if expected.get(k) != compiled.get(k))

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 import pandas as pd
 from jinja2.ext import babel_extract
@@ -114,7 +114,7 @@ def template_problems(folder: Path, languages: Iterable[str]) -> list[Problem]:
             continue
         for lineno, _func, message, _comments in found:
             plural = isinstance(message, tuple)
-            msgid = message[0] if plural else message
+            msgid = cast(str, message[0] if isinstance(message, tuple) else message)
             if not msgid:
                 continue
             missing = [lang for lang in wanted if not _has(lang, msgid, plural)]

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from decimal import ROUND_HALF_UP, Decimal
 from functools import cache
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal, cast
 from zoneinfo import ZoneInfo
 
 import jinja2
@@ -40,6 +40,9 @@ LOCALE_DIR = Path(__file__).resolve().parent / "locale"
 # clock the issue asks for in every language (US English would show "3:05 PM" and Sunday-first
 # weeks); nl_NL and de_DE are the largest regions of each language.
 LOCALES = {"en": "en_GB", "nl": "nl_NL", "de": "de_DE"}
+
+_DayWidth = Literal["abbreviated", "narrow", "short", "wide"]
+"""How Babel abbreviates the names of the days."""
 
 MISSING = "–"
 """What a number or date filter shows for a missing value (templates say why in words)."""
@@ -196,7 +199,7 @@ class LocaleFormat:
             return MISSING
         return babel_dates.format_skeleton("dMMMM", local, locale=self.locale)
 
-    def weekday(self, value: Any, width: str = "wide") -> str:
+    def weekday(self, value: Any, width: _DayWidth = "wide") -> str:
         """Name the day of the week of a date: 'dinsdag', 'Dienstag' ('abbreviated' for short)."""
         local = self.local(value)
         if local is None:
@@ -218,7 +221,7 @@ class LocaleFormat:
         day = babel_dates.format_date(local.date(), "medium", locale=self.locale)
         return f"{day}, {self.time_short(local)}"
 
-    def weekday_names(self, width: str = "wide") -> list[str]:
+    def weekday_names(self, width: _DayWidth = "wide") -> list[str]:
         """Names of the days of the week, Monday first (ISO 8601 weeks in every language)."""
         names = babel_dates.get_day_names(width, locale=self.locale)
         return [names[i] for i in range(7)]  # Babel numbers the days Monday = 0
@@ -267,7 +270,7 @@ def missing_messages(language: str) -> list[str]:
     with template_path().open("rb") as fh:
         template = read_po(fh)
     compiled = translations(language)._catalog  # type: ignore[attr-defined]
-    missing = []
+    missing: list[str] = []
     for message in template:
         if not message.id:
             continue
@@ -276,7 +279,7 @@ def missing_messages(language: str) -> list[str]:
             key = f"{message.context}\x04{key}"
         found = compiled.get((key, 0)) if isinstance(message.id, tuple) else compiled.get(key)
         if not found:
-            missing.append(key)
+            missing.append(cast(str, key))
     return missing
 
 

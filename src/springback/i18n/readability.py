@@ -134,7 +134,7 @@ def band(score: float, language: str) -> str:
 
 
 @cache
-def _pyphen(language: str):  # type: ignore[no-untyped-def]
+def _pyphen(language: str):
     import pyphen
 
     return pyphen.Pyphen(lang=PYPHEN_LANGUAGES[language])

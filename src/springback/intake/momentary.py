@@ -5,6 +5,7 @@ from __future__ import annotations
 import difflib
 from collections import Counter
 from dataclasses import dataclass
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -141,7 +142,7 @@ def _widen(table: Table, raw: pd.DataFrame, item_cols: dict[str, str],
     item = as_text(table.frame[cols.item], missing)
     known = item.isin(list(by_column)).to_numpy()
     for name, n in item[~known].value_counts(dropna=False).items():
-        unknown[None if pd.isna(name) else str(name)] += int(n)
+        unknown[None if pd.isna(cast(Any, name)) else str(name)] += int(n)
     long = raw[known].copy()
     long["item"] = item[known].map(by_column)
     long["value"] = table.frame[cols.value][known]

@@ -62,13 +62,14 @@ class Sink:
         self._aside.extend(other._aside)
         other._items, other._aside = [], _AsideLog()
 
-    def aside(self, where: str, rows: Sequence[int], participants: Sequence[str],
+    def aside(self, where: str, rows: Sequence[int] | np.ndarray,
+              participants: Sequence[str] | np.ndarray,
               reason: str, column: str = "") -> None:
         """List rows that are not used, with the reason (no problem is raised for them)."""
         self._aside.add(where, rows, participants, reason, column)
 
     def bad_rows(self, where: str, rows: Sequence[int] | np.ndarray,
-                 participants: Sequence[str], found: Sequence[str], *, what: str,
+                 participants: Sequence[str] | np.ndarray, found: Sequence[str], *, what: str,
                  column: str | None, expected: str = "", fix: str = SET_ASIDE_FIX,
                  code: str) -> None:
         """Report malformed rows: errors, or warnings plus set-aside rows when the study says so.
@@ -123,8 +124,8 @@ class _AsideLog:
             self._texts.append(text)
         return code
 
-    def add(self, where: str, rows: Sequence[int] | np.ndarray, participants: Sequence[str],
-            reason: str, column: str) -> None:
+    def add(self, where: str, rows: Sequence[int] | np.ndarray,
+            participants: Sequence[str] | np.ndarray, reason: str, column: str) -> None:
         n = len(rows)
         if len(participants) != n:
             raise ValueError("one participant per set-aside row")

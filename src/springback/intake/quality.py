@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Any, cast
+
 import numpy as np
 import pandas as pd
 from rich.table import Table as RichTable
@@ -124,7 +126,7 @@ def quality_table(study: Study) -> RichTable:
                           ("longest gap (h)", "right"), ("late", "right"),
                           ("set aside", "right")):
         table.add_column(name, justify=justify)  # type: ignore[arg-type]
-    for row in q.itertuples(index=False):
+    for row in cast(Any, q.itertuples(index=False)):
         table.add_row(
             row.participant, str(row.answered), _num(row.scheduled, 0),
             "–" if pd.isna(row.compliance) else f"{row.compliance:.0%}",
@@ -137,9 +139,9 @@ def quality_table(study: Study) -> RichTable:
     return table
 
 
-def _num(x: float, digits: int) -> str:
+def _num(x: Any, digits: int) -> str:
     return "–" if pd.isna(x) else f"{x:.{digits}f}"
 
 
-def _day(x: object) -> str:
+def _day(x: Any) -> str:
     return "–" if pd.isna(x) else pd.Timestamp(x).strftime("%Y-%m-%d")

@@ -215,8 +215,9 @@ def _encoding(path: Path, where: str, notes: list[Problem],
 def _parse_csv(path: Path, where: str, fmt: _CsvFormat, *, chunksize: int | None = None,
                nrows: int | None = None) -> Any:
     """pandas' C parser on the file: a frame, or an iterator of frames with `chunksize`."""
-    options = dict(sep=fmt.delimiter, dtype=str, index_col=False, keep_default_na=False,
-                   na_filter=False, engine="c", skip_blank_lines=True, encoding=fmt.encoding)
+    options: dict[str, Any] = dict(
+        sep=fmt.delimiter, dtype=str, index_col=False, keep_default_na=False,
+        na_filter=False, engine="c", skip_blank_lines=True, encoding=fmt.encoding)
     if chunksize is None:
         frame = _parsing(path, where, fmt, lambda: pd.read_csv(path, nrows=nrows, **options))
         if len(fmt.header) == frame.shape[1]:

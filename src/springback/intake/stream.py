@@ -16,6 +16,7 @@ from collections import Counter
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from itertools import chain
+from typing import Any, cast
 
 import pandas as pd
 
@@ -138,14 +139,15 @@ def _by_participant(chunks: TableChunks, settings: StudySettings) -> Frames:
         return MemoryFrames(pd.DataFrame())
     second = next(chunks.chunks, None)
     if second is None:
-        frame = first.frame.assign(**{
-            _ROW: first.rows, _KEY: as_text(first.frame[column], missing).fillna("")})
+        frame = first.frame.assign(**cast(dict[str, Any], {
+            _ROW: first.rows, _KEY: as_text(first.frame[column], missing).fillna("")}))
         return MemoryFrames(frame, key=_KEY)
     spill = DiskFrames()
     try:
         for table in chain([first, second], chunks.chunks):
             key = as_text(table.frame[column], missing).fillna("")
-            spill.append(table.frame.assign(**{_ROW: table.rows, _KEY: key}), key)
+            columns = cast(dict[str, Any], {_ROW: table.rows, _KEY: key})
+            spill.append(table.frame.assign(**columns), key)
     except BaseException:
         spill.close()
         raise

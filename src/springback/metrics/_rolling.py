@@ -7,6 +7,7 @@ from a handful of array passes: no per-window or per-series Python loop.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import cast
 
 import numpy as np
 
@@ -36,7 +37,7 @@ def detrend(hours: np.ndarray, x: np.ndarray, method: str,
             kernel_sd_hours: float | None) -> np.ndarray:
     """Residuals after removing the slow trend ('gaussian', 'linear' or 'none')."""
     if method == "gaussian":
-        return x - gaussian_trend(hours, x, float(kernel_sd_hours))
+        return x - gaussian_trend(hours, x, float(cast(float, kernel_sd_hours)))
     if method == "linear":
         return x - linear_trend(hours, x)
     return x - x.mean(axis=0)
@@ -103,8 +104,8 @@ def prefix_sums(y: np.ndarray, admissible: np.ndarray, third: bool = False,
     windows in a trend test.
     """
     y = y.reshape(len(y), -1).astype(dtype, copy=False)
-    w = admissible.astype(dtype)[:, None]
-    q = np.zeros((y.shape[0], 8 if third else 7, y.shape[1]), dtype=dtype)
+    w: np.ndarray = admissible.astype(dtype)[:, None]
+    q: np.ndarray = np.zeros((y.shape[0], 8 if third else 7, y.shape[1]), dtype=dtype)
     q[:, S1], q[:, S2] = y, y * y
     a, b = y[:-1] * w, y[1:] * w
     q[:-1, PA], q[:-1, PB], q[:-1, PAA], q[:-1, PBB], q[:-1, PAB] = a, b, a * a, b * b, a * b

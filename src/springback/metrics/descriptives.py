@@ -163,7 +163,9 @@ def _daily(series: Series, settings: StudySettings) -> pd.DataFrame:
 
 def _diurnal(series: Series) -> pd.DataFrame:
     """Mean rating per local clock hour (0..23) with the number of answers."""
-    hours = pd.DatetimeIndex(series.local_time).hour.to_numpy(dtype=int) if series.n else []
+    hours: np.ndarray | list[int] = (
+        pd.DatetimeIndex(series.local_time).hour.to_numpy(dtype=int) if series.n else []
+    )
     frame = pd.DataFrame({"hour": hours, "x": series.value})
     g = frame.groupby("hour", sort=True)["x"]
     return pd.DataFrame({"mean": g.mean(), "n": g.size()}).reset_index()

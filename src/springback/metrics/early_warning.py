@@ -35,6 +35,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -131,7 +132,8 @@ def _cell(series: Series, det: _Detrended, share: float, min_prompts: int) -> _C
         tau[name] = float(kendall_tau_columns(obs[name][tested])[0])
     for name in TESTED:
         null = kendall_tau_columns(sur[name])
-        p_kind[name] = tuple(surrogate_pvalue(tau[name], null[det.kind == k]) for k in (0, 1))
+        p_kind[name] = cast(tuple[float, float],
+                            tuple(surrogate_pvalue(tau[name], null[det.kind == k]) for k in (0, 1)))
         p[name] = surrogate_pvalue(tau[name], null)
     return _Cell(share, det.bandwidth, len(ends), skipped, used, tested, obs, tau, p, p_kind)
 
@@ -172,6 +174,7 @@ def early_warnings(series: Series, settings: StudySettings, participant: str) ->
     def detrended(bw: float | None) -> _Detrended:
         return _detrended(series, method, bw, m.surrogates, m.seed, participant)
 
+    params: dict[str, Any]
     params = {"window": m.window, "detrend": method, "bandwidth_days": main_bw,
               "surrogates": m.surrogates, "surrogate_kinds": list(KINDS),
               "crosscorr_surrogates": "multivariate phase-randomised", "seed": m.seed,

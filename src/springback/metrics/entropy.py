@@ -118,7 +118,7 @@ def valid_patterns(admissible: np.ndarray, order: int, delay: int) -> np.ndarray
     span = (order - 1) * delay + 1
     if len(admissible) + 1 < span:
         return np.zeros(0, bool)
-    return sliding_window_view(np.asarray(admissible, bool), span - 1).all(axis=1)
+    return np.asarray(sliding_window_view(np.asarray(admissible, bool), span - 1).all(axis=1))
 
 
 def _remap(surrogates: np.ndarray, x: np.ndarray) -> np.ndarray:

@@ -34,7 +34,7 @@ from __future__ import annotations
 import itertools
 import math
 from collections.abc import Mapping
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -117,7 +117,7 @@ def _value(family: Family | None, name: str) -> float | None:
     if family is None or name not in family.estimates:
         return None
     est: Estimate = family.estimates[name]
-    return float(est.value) if est.ok else None
+    return float(cast(float, est.value)) if est.ok else None
 
 
 def _slowing(warnings: Family | None, alpha: float) -> tuple[bool, list[dict[str, Any]]]:
@@ -220,7 +220,7 @@ def pattern_family(families: Mapping[str, Family], settings: StudySettings) -> F
         sw.append({"code": "alternating", "n": len(dirs)})
     shift_ev: list[dict[str, Any]] = []
     largest_first = big.iloc[np.argsort(-np.abs(big["size"].to_numpy(float)), kind="stable")]
-    for row in largest_first.itertuples():
+    for row in cast(Any, largest_first.itertuples()):
         shift_ev.append({"code": f"shift_{row.direction}", "size": abs(row.size),
                          "date": row.study_day.date().isoformat(), "factor": SWING_FACTOR})
         if row.questionnaire_nearby:

@@ -208,7 +208,7 @@ def shift_family(
                   settings.metrics.pelt_penalty else "2 s^2 ln n (BIC-type)",
                   noise_sd=s, within_segment_sd=pooled, optimality_check=check)
     events = _sudden_events(questionnaires)
-    rows = []
+    rows: list[dict[str, Any]] = []
     for i in starts:
         size = worse_sign * float(level[i] - level[i - 1])
         day = pd.Timestamp(daily["study_day"].iloc[i])

@@ -6,7 +6,7 @@ import datetime as dt
 import math
 import xml.etree.ElementTree as ET
 from dataclasses import dataclass, replace
-from typing import Any, Protocol, TypedDict
+from typing import Any, Protocol, TypedDict, cast
 
 import pandas as pd
 
@@ -166,7 +166,8 @@ def build_context(
         event_kinds=_event_kinds(data),
         questionnaires=_questionnaires(settings, results, language),
         quality=_quality(data),
-        set_aside=data.set_aside.head(50).to_dict("records") if len(data.set_aside) else [],
+        set_aside=(cast(list[dict[str, Any]], data.set_aside.head(50).to_dict("records"))
+                   if len(data.set_aside) else []),
         flags=own_flags,
         refer=refer,
         review_state=review_state,
@@ -280,7 +281,7 @@ def _records(results: ParticipantResults, family: str, table: str) -> list[dict[
     fam = results.families.get(family)
     if fam is None or table not in fam.tables:
         return []
-    return fam.tables[table].to_dict("records")
+    return cast(list[dict[str, Any]], fam.tables[table].to_dict("records"))
 
 
 def _event_kinds(data: ParticipantData) -> list[tuple[str, int]]:
@@ -294,7 +295,8 @@ def _event_kinds(data: ParticipantData) -> list[tuple[str, int]]:
 def _quality(data: ParticipantData) -> dict[str, Any]:
     if data.quality.empty:
         return {}
-    return {k: v for k, v in data.quality.iloc[0].to_dict().items() if k != "participant"}
+    return {cast(str, k): v for k, v in data.quality.iloc[0].to_dict().items()
+            if k != "participant"}
 
 
 def _questionnaires(

@@ -146,7 +146,7 @@ def unknown_keys(model: type[BaseModel], raw: Any, prefix: str = "") -> list[Pro
 
 def _section_type(annotation: Any) -> tuple[str, type[BaseModel]] | None:
     origin = getattr(annotation, "__origin__", None)
-    args = getattr(annotation, "__args__", ())
+    args: tuple[Any, ...] = getattr(annotation, "__args__", ())
     if isinstance(annotation, type) and issubclass(annotation, BaseModel):
         return ("one", annotation)
     if origin is dict and len(args) == 2 and isinstance(args[1], type) and issubclass(

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import difflib
 from pathlib import Path
-from typing import Literal
+from typing import Literal, cast
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator
@@ -183,10 +183,14 @@ class Booklet(Section):
         None, description="The composite or item the booklet is about (default: first composite)."
     )
     editions: list[Literal["participant", "therapist"]] = Field(
-        default_factory=lambda: ["participant", "therapist"], description="Editions to make."
+        default_factory=lambda: cast(
+            list[Literal["participant", "therapist"]], ["participant", "therapist"]
+        ),
+        description="Editions to make."
     )
     formats: list[Literal["html", "pdf"]] = Field(
-        default_factory=lambda: ["html", "pdf"], description="Output formats."
+        default_factory=lambda: cast(list[Literal["html", "pdf"]], ["html", "pdf"]),
+        description="Output formats."
     )
     paper: Literal["A4", "Letter"] = Field("A4", description="PDF paper size.")
     large_print: bool = Field(False, description="Body text 16 pt or larger.")
