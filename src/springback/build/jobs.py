@@ -108,7 +108,7 @@ def _run_job(job: Job) -> ParticipantOutcome:
         shift_rows=shift_rows(results),
         review_state=state,
         compliance=_compliance(results),
-        flags=[_flag_dict(f) for f in flags],
+        flags=[f.record() for f in flags],
         **base,
     )
     if not data.feedback:
@@ -178,6 +178,3 @@ def _compliance(results: Any) -> float | None:
         return None
     return est.value if est.ok else None
 
-
-def _flag_dict(flag: Any) -> dict[str, Any]:
-    return {k: getattr(flag, k) for k in ("rule", "action", "value", "when", "detail")}

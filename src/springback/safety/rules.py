@@ -55,6 +55,20 @@ class Flag:
     detail: str
     """Plain words: what was found, for the therapist edition and the overview."""
 
+    def row(self) -> dict[str, Any]:
+        """The flag as a row of out/flags.csv (columns `FLAG_CSV_COLUMNS`)."""
+        return {k: getattr(self, k) for k in FLAG_CSV_COLUMNS}
+
+    def record(self) -> dict[str, Any]:
+        """The flag as the archive's manifest keeps it (the participant is the record's key)."""
+        return {k: getattr(self, k) for k in FLAG_RECORD_KEYS}
+
+
+FLAG_CSV_COLUMNS = ("participant", "rule", "action", "value", "when")
+"""Columns of out/flags.csv, in order."""
+FLAG_RECORD_KEYS = ("rule", "action", "value", "when", "detail")
+"""Keys of a flag in the manifest and in the outcome a build carries."""
+
 
 def _local(times: pd.Series, timezone: str) -> pd.Series:
     times = pd.to_datetime(times)
@@ -224,9 +238,8 @@ def evaluate(data: ParticipantData, results: ParticipantResults, settings: Study
 
 
 def flags_rows(flags: list[Flag]) -> list[dict[str, Any]]:
-    """Rows of out/flags.csv: participant, rule, action, value, when."""
-    return [{"participant": f.participant, "rule": f.rule, "action": f.action,
-             "value": f.value, "when": f.when} for f in flags]
+    """Rows of out/flags.csv, one per flag."""
+    return [f.row() for f in flags]
 
 
 def referral_problems(study: Study) -> list[Problem]:
