@@ -106,5 +106,9 @@ class ArchiveError(SpringbackError):
     """The audit archive is inconsistent or cannot be written."""
 
 
+class OutputFolderError(SpringbackError):
+    """The output folder cannot be replaced without losing files springback did not make."""
+
+
 class DeliveryError(SpringbackError):
     """Booklets could not be sent."""

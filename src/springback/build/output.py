@@ -22,6 +22,58 @@ if TYPE_CHECKING:
     from springback.build.records import Job, ParticipantOutcome
     from springback.model import Study
 
+OUT_MARKER = ".springback-out"
+"""A file springback writes into every output folder it makes; only such a folder is replaced."""
+
+MARKER_TEXT = ("This folder was made by springback. Each build replaces it whole, so keep "
+               "nothing else in it.\n")
+
+# Entries of an output folder made before the marker existed; such a folder is still ours.
+_OWN_ENTRIES = {"booklets", "index.html", "metrics.csv", "flags.csv", "shifts.csv",
+                "quality.csv", "set_aside.csv", "release"}
+
+
+def _inside(path: Path, folder: Path) -> bool:
+    return path == folder or folder in path.parents
+
+
+def check_out_dir(project: Path, out_dir: Path, archive_dir: Path) -> None:
+    """Refuse an output folder whose replacement would delete files springback did not make."""
+    from springback.errors import OutputFolderError
+
+    project, out_dir = Path(project).resolve(), Path(out_dir).resolve()
+    archive_dir = Path(archive_dir).resolve()
+    fix = ("choose a new or empty folder for --out (or out_dir under [output] in study.toml), "
+           "such as the default 'out' inside the project")
+    if _inside(project, out_dir):
+        what = "is the project folder" if out_dir == project else "contains the project folder"
+        raise OutputFolderError(f"output folder {out_dir} {what}; a build replaces its output "
+                                f"folder whole, which would delete study.toml, data/ and the "
+                                f"archive. Fix: {fix}")
+    if _inside(out_dir, archive_dir) or _inside(archive_dir, out_dir):
+        raise OutputFolderError(f"output folder {out_dir} overlaps the archive folder "
+                                f"{archive_dir}; replacing it would damage the audit archive. "
+                                f"Fix: {fix}")
+    for name in ("data", "templates"):
+        if _inside(out_dir, project / name):
+            raise OutputFolderError(f"output folder {out_dir} is inside the project's {name}/ "
+                                    f"folder, which holds the study's inputs. Fix: {fix}")
+    if not out_dir.exists():
+        return
+    if not out_dir.is_dir():
+        raise OutputFolderError(f"output folder {out_dir} is a file, not a folder. Fix: {fix}")
+    entries = {entry.name for entry in out_dir.iterdir()}
+    visible = {name for name in entries if not name.startswith(".")}
+    if not entries or OUT_MARKER in entries or (
+            "index.html" in visible and visible <= _OWN_ENTRIES):
+        return
+    shown = ", ".join(sorted(entries)[:5]) + (", ..." if len(entries) > 5 else "")
+    raise OutputFolderError(
+        f"output folder {out_dir} is not empty and was not made by springback (it has no "
+        f"{OUT_MARKER} file; it holds {shown}); a build replaces this folder whole, so these "
+        f"files would be lost. Fix: {fix}, or move the files away first")
+
+
 REUSABLE = ("built", "no feedback", "not enough data", "withdrawn")
 """Outcomes that can be carried over from the last build when nothing they depend on changed."""
 

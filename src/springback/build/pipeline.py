@@ -21,8 +21,11 @@ from springback.build.fingerprints import (
 )
 from springback.build.jobs import run_job, warm_engines
 from springback.build.output import (
+    MARKER_TEXT,
+    OUT_MARKER,
     Previous,
     archive_staged,
+    check_out_dir,
     render_overview,
     stage_files,
     study_tables,
@@ -61,6 +64,7 @@ def build(
     settings = study.settings
     out_dir = (project / (out or settings.output.out_dir)).resolve()
     archive_dir = project / settings.output.archive_dir
+    check_out_dir(project, out_dir, archive_dir)
     report = progress or (lambda _p, _s: None)
     with BuildLock(archive_dir):
         started = archive.build_time()
@@ -108,6 +112,8 @@ def build(
                 project, out_dir, staging, study=study, outcomes=outcomes, started=started,
                 ended=ended, templates=tmpl,
             )
+            # Written after archiving, so the archived outputs stay the booklets and tables.
+            (staging / OUT_MARKER).write_text(MARKER_TEXT, encoding="utf-8")
     return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
 
 
