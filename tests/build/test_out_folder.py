@@ -82,3 +82,15 @@ def test_build_refuses_before_touching_anything(quick_example: Path, tmp_path: P
     assert (report.out_dir / OUT_MARKER).is_file()
     again = build(quick_example, participants=["P01"], jobs=1)  # our own folder is replaced
     assert (again.out_dir / OUT_MARKER).is_file() and (again.out_dir / "index.html").is_file()
+
+
+def test_check_names_an_out_dir_that_would_replace_the_project(quick_example: Path) -> None:
+    """Check `springback check` reports out_dir = "." under [output] as an error."""
+    toml = quick_example / "study.toml"
+    text = toml.read_text(encoding="utf-8")
+    assert "[output]" not in text
+    toml.write_text(text + '\n[output]\nout_dir = "."\n', encoding="utf-8")
+    result = CliRunner().invoke(main, ["check", str(quick_example)])
+    assert result.exit_code == 1 and "Traceback" not in result.output
+    words = " ".join(result.output.split())
+    assert "study.toml: output.out_dir" in words and "is the project folder" in words

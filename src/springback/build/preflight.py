@@ -33,8 +33,24 @@ def preflight(project: Path, *, strict: bool = False) -> CheckReport:
     report = check_study(project, strict=strict)
     if report.study is None:
         return report
-    extra = study_problems(Path(project), report.study)
+    extra = study_problems(Path(project), report.study) + _out_problems(Path(project),
+                                                                        report.study)
     return CheckReport(problems=(*report.problems, *extra), study=report.study, strict=strict)
+
+
+def _out_problems(project: Path, study: Study) -> list[Problem]:
+    """The configured output folder, checked as the build will check it."""
+    from springback.build.output import check_out_dir
+    from springback.errors import OutputFolderError, error
+
+    output = study.settings.output
+    project = project.resolve()
+    try:
+        check_out_dir(project, project / output.out_dir, project / output.archive_dir)
+    except OutputFolderError as exc:
+        what, _, fix = str(exc).partition(". Fix: ")
+        return [error("study.toml: output.out_dir", what, fix=fix, code="unsafe-out-dir")]
+    return []
 
 
 def require_buildable(project: Path, study: Study) -> None:
