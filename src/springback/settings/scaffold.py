@@ -5,6 +5,7 @@ The comments come from the settings schema's field descriptions, so they never d
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 from typing import Any
 
@@ -13,6 +14,7 @@ from pydantic_core import PydanticUndefined
 
 from springback.errors import SpringbackError
 from springback.settings import SETTINGS_FILE, StudySettings
+from springback.settings.sections import Composite, Item, Questionnaire, Referral, SafetyRule
 
 _EXAMPLE_TABLES = {
     "items": (
@@ -55,6 +57,12 @@ _EXAMPLE_TABLES = {
         'emergency = "Call your local emergency number"\n'
     ),
 }
+
+_TABLE_MODELS: dict[str, type[BaseModel]] = {
+    "items": Item, "composites": Composite, "questionnaires": Questionnaire,
+    "safety": SafetyRule, "referral": Referral,
+}
+"""The model of each table with an example above: its other keys are listed after the example."""
 
 _DATA_TEMPLATES = {
     "momentary.csv": "participant,timestamp,scheduled,down,cheerful\n"
@@ -117,6 +125,18 @@ def _section(model: type[BaseModel], name: str) -> list[str]:
     return lines
 
 
+def _more_keys(model: type[BaseModel], shown: str) -> str:
+    """Commented lines for the keys of a table's model that its example does not set."""
+    lines = []
+    for key, info in model.model_fields.items():
+        if re.search(rf"^(# )?{key} =", shown, re.M):
+            continue
+        default = info.get_default(call_default_factory=True)
+        rendered = None if default in (PydanticUndefined, None) else _toml_value(default)
+        lines += [*_comment(info.description or key), f"# {key} = {rendered or ''}".rstrip()]
+    return "\n".join(lines) + "\n" if lines else ""
+
+
 def commented_settings() -> str:
     """A complete study.toml: every section with its keys, defaults and meaning as comments."""
     out = [
@@ -128,7 +148,9 @@ def commented_settings() -> str:
         annotation = info.annotation
         out += _comment(info.description or key)
         if key in _EXAMPLE_TABLES:
-            out.append(_EXAMPLE_TABLES[key])
+            example = _EXAMPLE_TABLES[key]
+            table = _TABLE_MODELS.get(key)
+            out.append(example + (_more_keys(table, example) if table else ""))
         elif isinstance(annotation, type) and issubclass(annotation, BaseModel):
             out += _section(annotation, key)
         else:
