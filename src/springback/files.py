@@ -87,13 +87,34 @@ def _fsync_dir(folder: Path) -> None:
             os.close(fd)
 
 
-def atomic_write_bytes(path: Path, data: bytes) -> None:
-    """Write bytes to a temporary file beside `path`, flush it to disk, then rename over it."""
+PRIVATE_FILE = 0o600
+"""Mode of files only the study team's account may read (archived inputs, the key store)."""
+PRIVATE_FOLDER = 0o700
+
+
+def make_private(path: Path) -> None:
+    """Let only the owner read `path` (a file, or a folder and everything in it)."""
+    path = Path(path)
+    if path.is_dir():
+        path.chmod(PRIVATE_FOLDER)
+        for inner in path.rglob("*"):
+            inner.chmod(PRIVATE_FOLDER if inner.is_dir() else PRIVATE_FILE)
+    else:
+        path.chmod(PRIVATE_FILE)
+
+
+def atomic_write_bytes(path: Path, data: bytes, *, private: bool = False) -> None:
+    """Write bytes to a temporary file beside `path`, flush it to disk, then rename over it.
+
+    With `private` the file is created readable by its owner only (never briefly wider).
+    """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     tmp = path.with_name(f".{path.name}{PARTIAL}{os.getpid()}")
     try:
-        with open(tmp, "wb") as fh:
+        flags = os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_BINARY", 0)
+        fd = os.open(tmp, flags, PRIVATE_FILE if private else 0o666)
+        with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())

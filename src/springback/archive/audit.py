@@ -231,7 +231,7 @@ def subject(archive: Path, participant: str, create: bool = False) -> str | None
         with file_lock(archive / LOCK, wait_seconds=60.0, what="another audit-log write"):
             known = _subjects(archive)
             known.setdefault(participant, {"key": secrets.token_hex(32), "notes": {}})
-            atomic_write_bytes(archive / SUBJECTS, json_bytes(known))
+            atomic_write_bytes(archive / SUBJECTS, json_bytes(known), private=True)
     return _token(known[participant]["key"], participant)
 
 
@@ -243,7 +243,7 @@ def drop_subject(archive: Path, participant: str) -> str | None:
         entry = known.pop(participant, None)
         if entry is None:
             return None
-        atomic_write_bytes(archive / SUBJECTS, json_bytes(known))
+        atomic_write_bytes(archive / SUBJECTS, json_bytes(known), private=True)
     return _token(entry["key"], participant)
 
 
@@ -255,7 +255,7 @@ def save_note(archive: Path, participant: str, note: str) -> str:
     with file_lock(archive / LOCK, wait_seconds=60.0, what="another audit-log write"):
         known = _subjects(archive)
         known[participant].setdefault("notes", {})[sha] = note
-        atomic_write_bytes(archive / SUBJECTS, json_bytes(known))
+        atomic_write_bytes(archive / SUBJECTS, json_bytes(known), private=True)
     return sha
 
 

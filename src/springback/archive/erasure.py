@@ -45,6 +45,7 @@ from springback.archive.verify import (
 from springback.errors import ReviewError
 from springback.files import (
     BuildLock,
+    atomic_write_bytes,
     atomic_write_text,
     clean_stale,
     project_dirs,
@@ -120,7 +121,8 @@ def _scrub_file(path: Path, rel: str, participant: str, others: list[re.Pattern[
         if filtered is not None and not pattern.search(filtered):
             if filtered == text:
                 return "kept"
-            atomic_write_text(path, filtered)
+            # An archived input stays private when it is rewritten.
+            atomic_write_bytes(path, filtered.encode("utf-8"), private=rel.startswith("inputs/"))
             return "rewritten"
     if pattern.search(text):
         path.unlink()

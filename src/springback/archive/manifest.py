@@ -55,6 +55,7 @@ from springback.files import (
     atomic_write_text,
     clean_stale,
     json_bytes,
+    make_private,
     project_dirs,
     sha256_bytes,
     sha256_file,
@@ -214,6 +215,8 @@ def record_build(project: Path, staging_out: Path, inputs: list[Path], settings:
                 files[archived] = digest
             input_records[rel] = {"sha256": digest, "bytes": path.stat().st_size,
                                   "archived": archived}
+        if (folder / "inputs").is_dir():
+            make_private(folder / "inputs")  # the participants' own data and contact details
         plain_settings = normalised(settings)
         outputs = sorted(f[4:] for f in files if f.startswith("out/"))
         built_at = build_time() if os.environ.get("SOURCE_DATE_EPOCH") else started
