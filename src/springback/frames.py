@@ -13,6 +13,7 @@ from __future__ import annotations
 import shutil
 import tempfile
 import weakref
+from abc import ABC, abstractmethod
 from pathlib import Path
 
 import numpy as np
@@ -20,24 +21,24 @@ import pandas as pd
 import pyarrow as pa
 
 
-class Frames:
+class Frames(ABC):
     """Rows of a frame by key, in the order they were added; the same reads for every kind."""
 
+    @abstractmethod
     def names(self) -> list[str]:
         """Every key with at least one row, in the order first added."""
-        raise NotImplementedError
 
+    @abstractmethod
     def count(self, key: str) -> int:
         """How many rows the key has (0 for an unknown key)."""
-        raise NotImplementedError
 
     def rows(self, key: str) -> pd.DataFrame:
         """The key's rows with a fresh index (an empty frame of the right types if none)."""
         return self.rows_of([key])
 
+    @abstractmethod
     def rows_of(self, keys: list[str]) -> pd.DataFrame:
         """The rows of several keys, key by key, with a fresh index."""
-        raise NotImplementedError
 
     def frame(self) -> pd.DataFrame:
         """Every row, keys in sorted order (reads everything: for reports and tests)."""

@@ -81,7 +81,7 @@ def test_rejected_withdrawn_and_no_feedback_are_never_released(tmp_path: Path) -
     project = make_project(tmp_path / "study")
     extra = {"P01": {"consent": "withdrawn"}, "P03": {"feedback": False}}
     fake_build(project, tmp_path / "s1", holds=("P02",), extra=extra)
-    review.reject(project, "P02", "Dr. A. Reviewer", "wait for the next session")
+    review.reject(project, "P02", "Dr. A. Reviewer", "wait for the next appointment")
     report = review.release(project)
     assert report.released == ()
     assert dict(report.withheld) == {"P01": "consent withdrawn",

@@ -102,7 +102,7 @@ def _relative(path: Path, root: Path) -> str:
 
 
 def _archived_name(rel: str) -> str:
-    # Inputs outside the project ('../shared/x.csv') keep their shape inside inputs/.
+    # Inputs outside the project ('../common/x.csv') keep their shape inside inputs/.
     return "inputs/" + rel.replace("../", "_up_/")
 
 
