@@ -28,13 +28,11 @@ OUT_MARKER = ".springback-out"
 MARKER_TEXT = ("This folder was made by springback. Each build replaces it whole, so keep "
                "nothing else in it.\n")
 
+STUDY_TABLES = ("metrics.csv", "flags.csv", "shifts.csv", "quality.csv", "set_aside.csv")
+"""The study-wide tables of out/, in the order `study_tables` makes them."""
+
 # Entries of an output folder made before the marker existed; such a folder is still ours.
-_OWN_ENTRIES = {"booklets", "index.html", "metrics.csv", "flags.csv", "shifts.csv",
-                "quality.csv", "set_aside.csv", "release"}
-
-
-def _inside(path: Path, folder: Path) -> bool:
-    return path == folder or folder in path.parents
+_OWN_ENTRIES = {"booklets", "index.html", "release", *STUDY_TABLES}
 
 
 def check_out_dir(project: Path, out_dir: Path, archive_dir: Path) -> None:
@@ -45,17 +43,17 @@ def check_out_dir(project: Path, out_dir: Path, archive_dir: Path) -> None:
     archive_dir = Path(archive_dir).resolve()
     fix = ("choose a new or empty folder for --out (or out_dir under [output] in study.toml), "
            "such as the default 'out' inside the project")
-    if _inside(project, out_dir):
+    if project.is_relative_to(out_dir):
         what = "is the project folder" if out_dir == project else "contains the project folder"
         raise OutputFolderError(f"output folder {out_dir} {what}; a build replaces its output "
                                 f"folder whole, which would delete study.toml, data/ and the "
                                 f"archive. Fix: {fix}")
-    if _inside(out_dir, archive_dir) or _inside(archive_dir, out_dir):
+    if out_dir.is_relative_to(archive_dir) or archive_dir.is_relative_to(out_dir):
         raise OutputFolderError(f"output folder {out_dir} overlaps the archive folder "
                                 f"{archive_dir}; replacing it would damage the audit archive. "
                                 f"Fix: {fix}")
     for name in ("data", "templates"):
-        if _inside(out_dir, project / name):
+        if out_dir.is_relative_to(project / name):
             raise OutputFolderError(f"output folder {out_dir} is inside the project's {name}/ "
                                     f"folder, which holds the study's inputs. Fix: {fix}")
     if not out_dir.exists():
@@ -231,6 +229,7 @@ def frame_bytes(df: pd.DataFrame) -> bytes:
 def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[str, bytes]:
     """The study-wide CSV tables: metrics, flags, shifts, quality, set-aside rows."""
     from springback.metrics.results import METRICS_CSV_COLUMNS
+    from springback.safety.rules import FLAG_CSV_COLUMNS
 
     outcomes = list(outcomes)
     metrics_rows = [r for o in outcomes for r in o.metrics_rows]
@@ -238,9 +237,7 @@ def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[s
     shift_rows = [r for o in outcomes for r in o.shift_rows]
     tables = {
         "metrics.csv": pd.DataFrame(metrics_rows, columns=list(METRICS_CSV_COLUMNS)),
-        "flags.csv": pd.DataFrame(
-            flag_rows, columns=["participant", "rule", "action", "value", "when"]
-        ),
+        "flags.csv": pd.DataFrame(flag_rows, columns=list(FLAG_CSV_COLUMNS)),
         "shifts.csv": pd.DataFrame(
             shift_rows, columns=["participant", "date", "direction", "size", "method"]
         ),
