@@ -34,6 +34,7 @@ from springback.intake.stream import Momentary, check_momentary
 from springback.memory import release_free_memory
 from springback.model import Study, latest_time
 from springback.settings import SETTINGS_FILE, StudySettings, load_settings
+from springback.settings.data_files import IdFile
 
 __all__ = ["CheckReport", "check_study", "load_study", "quality_table", "read_prompts"]
 
@@ -182,9 +183,11 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
         withdrawn = set(roster.loc[roster["consent"] == "withdrawn", "participant"])
         listed = set(roster["participant"])
 
-        def consent(frame: pd.DataFrame, out: Sink, where: str = "") -> pd.DataFrame:
+        def consent(frame: pd.DataFrame, out: Sink, where: str = "",
+                    file: IdFile = "momentary") -> pd.DataFrame:
             return _consent_rules(where or data.momentary.as_posix(), frame, consenting,
-                                  withdrawn, listed, roster_where, settings, out)
+                                  withdrawn, listed, roster_where, data.columns.id_column(file),
+                                  out)
 
     momentary = check_momentary(momentary_chunks, settings, sink, consent, consent_sink) \
         if momentary_chunks else None
@@ -199,9 +202,9 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
     if roster is None or momentary is None or consent is None:
         return None, sink.problems
     if events is not None:
-        events = consent(events, consent_sink, events_where)
+        events = consent(events, consent_sink, events_where, "events")
     if scores is not None:
-        scores = consent(scores, consent_sink, scores_where)
+        scores = consent(scores, consent_sink, scores_where, "questionnaires")
     sink.take(consent_sink)
     _late_and_absent(data.momentary.as_posix(), momentary, roster, roster_where, settings, sink)
     zone = settings.study.timezone
@@ -248,10 +251,9 @@ def _no_scores() -> pd.DataFrame:
 
 
 def _consent_rules(where: str, frame: pd.DataFrame, consenting: set[str], withdrawn: set[str],
-                   listed: set[str], roster_where: str, settings: StudySettings,
+                   listed: set[str], roster_where: str, column: str,
                    sink: Sink) -> pd.DataFrame:
     """Rows of people not on the roster are errors; withdrawn people's rows are set aside."""
-    column = settings.data.columns.participant
     who = frame["participant"]
     # Membership of each distinct id, then spread to the rows: Series.isin with a set of
     # thousands of ids rebuilt that set for every call (a third of loading 20,000 people).
@@ -295,6 +297,7 @@ def _late_and_absent(where: str, momentary: Momentary, roster: pd.DataFrame,
             index=False):
         if person not in has_data:
             sink.add(warning(roster_where, f"participant '{person}' has no momentary answers",
-                             row=int(row), column=settings.data.columns.participant,
+                             row=int(row),
+                             column=settings.data.columns.id_column("participants"),
                              fix="check that the id is written the same in both files; "
                              "no booklet is made without data", code="no-data"))

@@ -14,14 +14,18 @@ from springback.intake.readers import Table, as_number, as_text, labelled, missi
 from springback.intake.times import parse_times, zone_texts
 from springback.model import EVENT_COLUMNS
 from springback.settings import StudySettings
+from springback.settings.data_files import IdFile
 
 
-def read_timed(table: Table, settings: StudySettings, sink: Sink,
-               required: dict[str, str]) -> tuple[pd.DataFrame, np.ndarray] | None:
+def read_timed(table: Table, settings: StudySettings, sink: Sink, required: dict[str, str],
+               file: IdFile = "events",
+               ) -> tuple[pd.DataFrame, np.ndarray] | None:
     """Participant, UTC time and source row of each row, plus a mask of rows still usable."""
     cols = settings.data.columns
     missing = settings.data.missing_values
-    wanted = {cols.participant: "participant", cols.timestamp: "timestamp"} | required
+    id_column = cols.id_column(file)
+    id_key = f"{file}_participant" if id_column != cols.participant else "participant"
+    wanted = {id_column: id_key, cols.timestamp: "timestamp"} | required
     present = list(table.frame.columns)
     absent = [n for n in wanted if n not in present]
     for name in absent:
@@ -36,11 +40,11 @@ def read_timed(table: Table, settings: StudySettings, sink: Sink,
         return None
     frame = table.frame
     rows = table.rows
-    pid = as_text(labelled(table, cols.participant), missing)
+    pid = as_text(labelled(table, id_column), missing)
     who = pid.fillna("").to_numpy()
     nobody = pid.isna().to_numpy()
     sink.bad_rows(table.where, rows[nobody], who[nobody], [""] * int(nobody.sum()),
-                  what="the participant id is missing", column=cols.participant,
+                  what="the participant id is missing", column=id_column,
                   expected="an id from the roster", code="missing-participant")
     zones = zone_texts(frame[cols.timezone]) if cols.timezone in present else None
     gone = missing_mask(frame[cols.timestamp], missing)

@@ -20,7 +20,8 @@ def read_questionnaires(table: Table, settings: StudySettings,
     """Check every questionnaire row and give it one score inside the questionnaire's range."""
     cols = settings.data.columns
     missing = settings.data.missing_values
-    got = read_timed(table, settings, sink, {cols.questionnaire: "questionnaire"})
+    got = read_timed(table, settings, sink, {cols.questionnaire: "questionnaire"},
+                     "questionnaires")
     if got is None:
         return None
     out, usable = got

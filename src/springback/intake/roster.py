@@ -65,7 +65,9 @@ def read_roster(table: Table, settings: StudySettings, problems: list) -> pd.Dat
     missing = settings.data.missing_values
     present = list(table.frame.columns)
     ok = True
-    for name, role in ((cols.participant, "participant"), (cols.consent, "consent")):
+    id_column = cols.id_column("participants")
+    id_key = "roster_participant" if id_column != cols.participant else "participant"
+    for name, role in ((id_column, id_key), (cols.consent, "consent")):
         if name not in present:
             ok = False
             close = difflib.get_close_matches(name, present, n=1)
@@ -89,25 +91,25 @@ def read_roster(table: Table, settings: StudySettings, problems: list) -> pd.Dat
         return as_text(labelled(table, name), missing) if name in present else \
             pd.Series(np.nan, index=table.frame.index, dtype="str")
 
-    pid = text(cols.participant)
+    pid = text(id_column)
     out = pd.DataFrame({"participant": pid.fillna("")})
     for r in rows[pid.isna().to_numpy()]:
         problems.append(error(table.where, "the participant id is missing", row=int(r),
-                              column=cols.participant, fix="fill in the id or delete the row",
+                              column=id_column, fix="fill in the id or delete the row",
                               code="missing-participant"))
     for r, who in zip(rows[pid.notna().to_numpy()], pid[pid.notna()], strict=True):
         reason = id_problem(str(who))
         if reason:
             problems.append(error(
                 table.where, f"participant id '{_shown(str(who))}' cannot be used as a folder "
-                "name", expected=ID_RULE, found=reason, row=int(r), column=cols.participant,
+                "name", expected=ID_RULE, found=reason, row=int(r), column=id_column,
                 fix="give the participant a plain id such as P01, the same in every data file",
                 code="unsafe-participant"))
     twice = pid.notna() & pid.duplicated(keep=False)
     for who, group in pd.Series(rows[twice.to_numpy()]).groupby(pid[twice].to_numpy()):
         problems.append(error(table.where, f"participant '{who}' is listed more than once",
                               found=rows_list(group.tolist()), row=int(group.iloc[0]),
-                              column=cols.participant, fix="keep one row per participant",
+                              column=id_column, fix="keep one row per participant",
                               code="duplicate-participant"))
     consent = text(cols.consent).str.lower()
     out["consent"] = consent.map(CONSENT)

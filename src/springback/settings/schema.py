@@ -12,12 +12,12 @@ from typing import Any
 from pydantic import BaseModel, Field, ValidationError
 
 from springback.errors import Problem, SettingsError, Severity, error, warning
+from springback.settings.data_files import DataFiles, data_checks
 from springback.settings.sections import (
     SETTINGS_FILE,
     Archive,
     Booklet,
     Composite,
-    DataFiles,
     Delivery,
     Events,
     Item,
@@ -25,6 +25,7 @@ from springback.settings.sections import (
     Output,
     Questionnaire,
     Referral,
+    Review,
     Safety,
     Section,
     StudyInfo,
@@ -48,6 +49,7 @@ class StudySettings(Section):
     referral: list[Referral] = Field(
         default_factory=list, description="Referral texts per region and language."
     )
+    review: Review = Field(default_factory=Review, description="Who reviews held booklets.")
     archive: Archive = Field(default_factory=Archive, description="Audit archive.")
     delivery: Delivery = Field(default_factory=Delivery, description="Sending booklets.")
     output: Output = Field(default_factory=Output, description="Output folders.")
@@ -275,6 +277,7 @@ def cross_checks(s: StudySettings) -> list[Problem]:
                 error(key, f"rule '{rule.name}' needs at_least or at_most",
                       code="rule-threshold")
             )
+    out += data_checks(s.data, where)
     if s.events.daily_load not in (None, "events") and s.events.daily_load not in s.items:
         out.append(
             error(where + "events.daily_load",

@@ -7,6 +7,7 @@ a new `study.toml`, and errors quote the key. Paths are relative to the project 
 from __future__ import annotations
 
 import difflib
+import math
 from pathlib import Path
 from typing import Literal, cast
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
@@ -88,71 +89,6 @@ class StudyInfo(Section):
         return v
 
 
-class Columns(Section):
-    participant: str = Field("participant", description="Column with the participant id.")
-    timestamp: str = Field("timestamp", description="Column with the time of the answer.")
-    scheduled: str = Field("scheduled", description="Optional column: when the prompt was sent.")
-    answered: str = Field("answered", description="Optional column: when it was answered.")
-    item: str = Field("item", description="Long layout only: column naming the item.")
-    value: str = Field("value", description="Long layout only: column holding the rating.")
-    language: str = Field("language", description="Roster column with the booklet language.")
-    consent: str = Field("consent", description="Roster column: 'yes' or 'withdrawn'.")
-    feedback: str = Field("feedback", description="Roster column: wants a booklet, yes/no.")
-    therapist: str = Field("therapist", description="Roster column: therapist edition, yes/no.")
-    region: str = Field("region", description="Roster column selecting the referral texts.")
-    kind: str = Field("kind", description="Events column: what kind of event.")
-    intensity: str = Field("intensity", description="Events column: how upsetting (number).")
-    questionnaire: str = Field("questionnaire", description="Questionnaires column: which one.")
-    score: str = Field("score", description="Questionnaires column: the total score.")
-    timezone: str = Field(
-        "timezone",
-        description="Optional column giving each row's time zone for times written without "
-        "one: an IANA name (Europe/Paris), an offset (+03, +02:00), a fixed-offset abbreviation "
-        "(CET, CEST, EET, MSK) or a time ending in one (a device's own clock).",
-    )
-
-
-class DataFiles(Section):
-    momentary: Path = Field(
-        Path("data/momentary.csv"),
-        description="Momentary ratings, one row per answered prompt (CSV, XLSX, Parquet or SAV).",
-    )
-    participants: Path = Field(Path("data/participants.csv"), description="The roster.")
-    events: Path | None = Field(
-        Path("data/events.csv"), description="Optional: event markers (skipped if absent)."
-    )
-    questionnaires: Path | None = Field(
-        Path("data/questionnaires.csv"),
-        description="Optional: periodic questionnaires (skipped if absent).",
-    )
-    layout: Literal["wide", "long"] = Field(
-        "wide",
-        description="'wide': one column per item; 'long': one row per item with item/value "
-        "columns.",
-    )
-    sheet: str | None = Field(None, description="Excel only: the sheet to read (default: first).")
-    on_bad_rows: Literal["error", "set aside"] = Field(
-        "error",
-        description="What to do with rows that cannot be used: 'error' stops the build; "
-        "'set aside' goes on and lists each row in the quality report.",
-    )
-    missing_values: list[str] = Field(
-        default_factory=lambda: ["", "NA", "N/A", "NaN", "nan", "NULL", "null", "."],
-        description="Cell texts that mean 'no answer' (compared after trimming spaces), e.g. "
-        "add 'Expired' or '-99' if the export writes those.",
-    )
-    timestamp_format: str | None = Field(
-        None,
-        description="Pattern for times that are not ISO 8601, e.g. '%d/%m/%Y %H:%M' "
-        "(Python strftime codes). Default: ISO 8601 (2024-03-04 09:15, with an optional "
-        "offset or zone after it).",
-    )
-    late_after_minutes: float = Field(
-        60.0, gt=0, description="An answer this long after its prompt is reported as late."
-    )
-    columns: Columns = Field(default_factory=Columns, description="Column names in the files.")
-
-
 class Item(Section):
     scale: tuple[float, float] = Field(description="Lowest and highest possible rating.")
     reverse: bool = Field(False, description="Reverse-score this item in composites.")
@@ -162,6 +98,8 @@ class Item(Section):
     @field_validator("scale")
     @classmethod
     def _ordered(cls, v: tuple[float, float]) -> tuple[float, float]:
+        if not all(math.isfinite(x) for x in v):
+            raise ValueError(f"both ends must be finite numbers, found [{v[0]}, {v[1]}]")
         if not v[0] < v[1]:
             raise ValueError(f"the low end must be below the high end, found [{v[0]}, {v[1]}]")
         return v
@@ -287,7 +225,10 @@ class Metrics(Section):
     min_window_prompts: int = Field(
         20, ge=5, description="A rolling window with fewer answered prompts is skipped."
     )
-    surrogates: int = Field(1000, ge=19, description="Surrogate series per significance test.")
+    surrogates: int = Field(
+        1000, ge=19, le=100_000,
+        description="Surrogate series per significance test (19 to 100,000).",
+    )
     seed: int = Field(20240917, description="Seed for every random step (reproducible builds).")
     alpha: float = Field(0.05, gt=0, lt=1, description="Significance level.")
     dip_k: float = Field(
@@ -335,6 +276,19 @@ class Referral(Section):
     feeling_worse: str = Field(description="Where to go when feeling worse for a while.")
     self_harm: str = Field(description="Same-day help when thinking of harming yourself.")
     emergency: str = Field(description="The local emergency number.")
+
+
+class Reviewer(Section):
+    name: str = Field(description="The reviewer's name, as they sign a decision (--by NAME).")
+    role: str = Field("", description="Their role, such as 'clinical psychologist'.")
+
+
+class Review(Section):
+    reviewers: list[Reviewer] = Field(
+        default_factory=list,
+        description="Who may approve or reject held booklets and close actions (name, role); "
+        "when the list is empty, anyone named with --by may decide.",
+    )
 
 
 class Archive(Section):
