@@ -9,6 +9,7 @@ Public functions (build.py calls these while holding a `fsutil.BuildLock`):
                  started: datetime, ended: datetime) -> str          # the build id
     builds(project: Path) -> list[str]          # recorded build ids, oldest first
     load_manifest(project: Path, build_id: str) -> dict ; latest_manifest(project) -> dict | None
+    trusted_manifest(project: Path) -> dict | None  # the latest, only if the log vouches for it
     verify(project: Path, rebuild: bool = False,
            rebuild_fn: Callable[[Path], Path | None] | None = None) -> list[Mismatch]
     expired_builds(project: Path, settings: StudySettings, now: datetime | None = None)
@@ -38,7 +39,7 @@ from pathlib import Path, PurePosixPath
 from typing import Any
 
 from springback import __version__
-from springback.archive.audit import Mismatch, append, read_entries, utc_stamp
+from springback.archive.audit import Mismatch, append, check_chain, read_entries, utc_stamp
 from springback.archive.manifest_page import manifest_html
 from springback.archive.verify import (
     MANIFEST,
@@ -71,7 +72,7 @@ KEY_DEPENDENCIES = (
 )
 BUILD_ID = re.compile(r"\d{4,}-\d{8}T\d{6}Z")
 __all__ = ["Mismatch", "booklet_version", "build_time", "builds", "expired_builds",
-           "latest_manifest", "load_manifest", "record_build", "verify"]
+           "latest_manifest", "load_manifest", "record_build", "trusted_manifest", "verify"]
 
 
 def build_time(now: bool = False) -> datetime:
@@ -156,6 +157,35 @@ def latest_manifest(project: Path) -> dict[str, Any] | None:
     """The manifest of the most recent recorded build (None before the first build)."""
     ids = builds(project)
     return load_manifest(project, ids[-1]) if ids else None
+
+
+def trusted_manifest(project: Path) -> dict[str, Any] | None:
+    """The latest build's manifest, only when its bytes are those the audit log recorded.
+
+    Anything that lets booklets out (release, send) reads the manifest through here: a manifest
+    edited after the build (a hold flag deleted, a booklet's hash replaced) is refused, and so
+    is a log whose chain is broken. None before the first build.
+    """
+    archive = project_dirs(project).archive
+    broken = check_chain(archive)
+    if broken:
+        raise ArchiveError(f"the audit log is damaged ({broken[0].message()}), so no manifest "
+                           "can be trusted; nothing was let out. Run `springback verify` to see "
+                           "every problem and restore archive/ from a backup")
+    expected = expected_manifests(read_entries(archive))
+    if not expected:
+        return None
+    build_id = list(expected)[-1]
+    path = archive / build_id / MANIFEST
+    found = sha256_file(path) if path.is_file() else "missing"
+    if found != expected[build_id]:
+        raise ArchiveError(
+            f"archive/{build_id}/{MANIFEST} is not the manifest the audit log recorded for "
+            f"build {build_id} (expected SHA-256 {expected[build_id][:16]}, found {found[:16]}); "
+            "it was changed after the build, so nothing was let out. Run `springback verify` "
+            "to see what changed, then restore archive/ from a backup or run `springback "
+            "build` again")
+    return load_manifest(project, build_id)
 
 
 def _recover(archive: Path) -> None:

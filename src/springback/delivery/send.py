@@ -40,20 +40,19 @@ from pathlib import Path
 from typing import Any, cast
 
 from springback.archive.audit import append, read_entries, subject
-from springback.archive.manifest import latest_manifest
+from springback.archive.manifest import trusted_manifest
 from springback.delivery import mail
 from springback.delivery.contacts import (
     EMAIL,
     check_private_place,
-    full_path,
     passphrases,
     read_contacts,
     write_private,
 )
-from springback.errors import DataError, DeliveryError, Problem
+from springback.errors import DeliveryError
 from springback.files import BuildLock, project_dirs, sha256_bytes
 from springback.model import EDITIONS
-from springback.review.gate import release_gate
+from springback.review.gate import current_roster, release_gate, roster_gate
 from springback.settings import StudySettings, load_settings
 
 NOT_DONE = ("refused by server", "unconfirmed", "no address", "no passphrase", "not attempted")
@@ -112,32 +111,13 @@ class SendReport:
 # -- the gate ----------------------------------------------------------------------------------
 
 
-def _roster(project: Path, settings: StudySettings) -> dict[str, dict[str, Any]]:
-    from springback.intake.readers import read_table
-    from springback.intake.roster import read_roster
-
-    where = settings.data.participants.as_posix()
-    table = read_table(full_path(project, settings.data.participants), where)
-    problems: list[Problem] = []
-    frame = read_roster(table, settings, problems)
-    if frame is None or any(p.is_error for p in problems):
-        raise DataError(problems)
-    return {str(r["participant"]): dict(cast(dict[str, Any], r)) for r in frame.to_dict("records")}
-
-
 def _why_not(project: Path, pid: str, rec: dict[str, Any], now: dict[str, Any] | None) -> str:
     """'' when the participant's booklet may leave, else the reason in plain words.
 
     The roster as it is now can only take consent or feedback back; the rest is the release
     gate's own judgement on the archived record.
     """
-    if now is None:
-        return "no longer in the roster"
-    if now["consent"] != "yes":
-        return "consent withdrawn"
-    if not now["feedback"]:
-        return "no feedback wanted"
-    return release_gate(project_dirs(project).archive, pid, rec)[0]
+    return roster_gate(now) or release_gate(project_dirs(project).archive, pid, rec)[0]
 
 
 def _dispatch(release: Path) -> dict[str, dict[str, str]]:
@@ -153,12 +133,12 @@ def plan(project: Path) -> DeliveryPlan:
     """Check every released booklet against the latest build, the review log and the roster."""
     dirs = project_dirs(project)
     settings, _ = load_settings(dirs.root)
-    manifest = latest_manifest(dirs.root)
+    manifest = trusted_manifest(dirs.root)
     if manifest is None:
         raise DeliveryError("nothing has been built yet; run `springback build` first")
     release = dirs.out / "release"
     sheet = _dispatch(release)
-    roster = _roster(dirs.root, settings)
+    roster = current_roster(dirs.root, settings)
     hashes: dict[str, str] = manifest.get("files", {})
     messages: list[Planned] = []
     refused: list[tuple[str, str]] = []

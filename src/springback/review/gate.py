@@ -8,12 +8,14 @@ Public functions:
     approve(project: Path, participant: str, by: str, note: str = "") -> dict   # the log entry
     reject(project: Path, participant: str, by: str, note: str = "") -> dict
     release(project: Path, by: str = "") -> ReleaseReport  # rewrites out/release/ atomically
+    current_roster(project: Path, settings=None) -> dict[str, dict]  # the roster as it is now
 
 Decisions live only in the audit log (`review` entries), keyed by the participant's log token
 and the booklet fingerprint, so a booklet whose data, settings, templates or tool version
 changed after approval is held again. Release copies from the archived copy of the latest build
-(hash-checked), never from the working out/ folder; withdrawn participants, those who want no
-feedback, and held or rejected booklets are never copied.
+(hash-checked), never from the working out/ folder, and reads only a manifest whose hash the
+audit log recorded for that build; withdrawn participants (in the manifest or in the roster as
+it is now), those who want no feedback, and held or rejected booklets are never copied.
 """
 
 from __future__ import annotations
@@ -26,8 +28,8 @@ from pathlib import Path
 from typing import Any
 
 from springback.archive.audit import append, note_text, read_entries, save_note, subject
-from springback.archive.manifest import latest_manifest
-from springback.errors import ArchiveError, ReviewError
+from springback.archive.manifest import trusted_manifest
+from springback.errors import ArchiveError, DataError, Problem, ReviewError
 from springback.files import BuildLock, atomic_write_bytes, project_dirs, sha256_file, staging_dir
 
 NOT_NEEDED, HELD, APPROVED, REJECTED = "not needed", "held", "approved", "rejected"
@@ -103,7 +105,7 @@ def review_state(project: Path, participant: str, fingerprint: str, flags: list[
 
 
 def _current(project: Path) -> dict[str, Any]:
-    manifest = latest_manifest(project)
+    manifest = trusted_manifest(project)
     if manifest is None:
         raise ReviewError("nothing has been built yet; run `springback build` first")
     return manifest
@@ -181,6 +183,36 @@ def release_gate(archive: Path, pid: str, rec: dict[str, Any]) -> tuple[str, str
     return ("held for review", "")
 
 
+def current_roster(project: Path, settings: Any = None) -> dict[str, dict[str, Any]]:
+    """The roster file as it is now: id -> its row (consent, feedback, therapist, language)."""
+    from springback.intake.readers import read_table
+    from springback.intake.roster import read_roster
+    from springback.settings import load_settings
+
+    root = project_dirs(project).root
+    settings = settings if settings is not None else load_settings(root)[0]
+    path = Path(settings.data.participants).expanduser()
+    table = read_table((path if path.is_absolute() else root / path).resolve(),
+                       settings.data.participants.as_posix())
+    problems: list[Problem] = []
+    frame = read_roster(table, settings, problems)
+    if frame is None or any(p.is_error for p in problems):
+        raise DataError(problems)
+    return {str(r["participant"]): {str(k): v for k, v in r.items()}
+            for r in frame.to_dict("records")}
+
+
+def roster_gate(row: dict[str, Any] | None) -> str:
+    """'' when the roster as it is now still lets a booklet out, else the reason."""
+    if row is None:
+        return "no longer in the roster"
+    if row.get("consent") != "yes":
+        return "consent withdrawn"
+    if not row.get("feedback"):
+        return "no feedback wanted"
+    return ""
+
+
 def _names(files: list[str]) -> dict[str, str]:
     """Archived output path -> name inside release/<participant>/ (base names when unique)."""
     bases = [Path(f).name for f in files]
@@ -194,6 +226,7 @@ def release(project: Path, by: str = "") -> ReleaseReport:
     by = by.strip() or getpass.getuser()
     with BuildLock(project):
         manifest = _current(project)
+        roster = current_roster(dirs.root)
         build = str(manifest["build"])
         source = dirs.archive / build / "out"
         hashes = manifest.get("files", {})
@@ -203,6 +236,7 @@ def release(project: Path, by: str = "") -> ReleaseReport:
         with staging_dir(dirs.out / "release") as staging:
             for pid, rec in sorted(manifest.get("participants", {}).items()):
                 reason, approver = release_gate(dirs.archive, pid, rec)
+                reason = roster_gate(roster.get(pid)) or reason
                 if reason:
                     withheld.append((pid, reason))
                     continue
