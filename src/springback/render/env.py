@@ -1,4 +1,10 @@
-"""The one Jinja environment factory: template search path, autoescaping, gettext and filters."""
+"""The one Jinja environment factory: template search path, autoescaping, gettext and filters.
+
+Templates are a study's own code, so they run in Jinja's sandbox (no attribute that starts with
+'_', no calls that reach Python's internals) and are read only from inside the project's
+`templates/` folder and springback's packaged templates: a link leading out of them is refused.
+Both refusals raise `TemplateRefused`, a message that names the template and how to fix it.
+"""
 
 from __future__ import annotations
 
@@ -6,15 +12,18 @@ import base64
 import datetime as dt
 import gettext
 import math
+import sys
 from collections.abc import Callable
 from functools import cache
 from pathlib import Path
 from typing import Any
 
 import jinja2
+import jinja2.sandbox
 import markupsafe
 import pandas as pd
 
+from springback.errors import SpringbackError
 from springback.i18n import language as i18n
 from springback.render import phrases
 
@@ -25,13 +34,74 @@ FONT_FAMILY = "Atkinson Hyperlegible"
 _FONT_FACES = (("Regular", "normal", 400), ("Bold", "normal", 700), ("Italic", "italic", 400))
 
 
+class TemplateRefused(SpringbackError):
+    """A template tried something a booklet template may not do (reported, never run)."""
+
+
+def _shown(path: Path) -> str:
+    """A template's path from its templates/ folder on (templates/sections/mood.html)."""
+    parts = path.parts
+    at = max((i for i, part in enumerate(parts) if part == "templates"), default=len(parts) - 1)
+    return "/".join(parts[at:])
+
+
+class _ConfinedLoader(jinja2.FileSystemLoader):
+    """A file loader that refuses any template whose real path is outside its folders."""
+
+    def __init__(self, folders: list[Path]):
+        super().__init__([str(f) for f in folders])
+        self.roots = [(f, _real_root(f)) for f in folders]
+
+    def get_source(self, environment: jinja2.Environment,
+                   template: str) -> tuple[str, str, Callable[[], bool]]:
+        source, filename, uptodate = super().get_source(environment, template)
+        real = Path(filename).resolve()
+        if not any(real.is_relative_to(root) for _, root in self.roots):
+            folder = next((f for f, _ in self.roots
+                           if Path(filename).is_relative_to(f)), Path(filename).parent)
+            raise TemplateRefused(
+                f"{folder.name}/{template}: the template leads to {real}, outside the project's "
+                "templates/ folder and springback's own templates, so it was not read. Fix: "
+                "copy the file into templates/ instead of linking to it")
+        return source, filename, uptodate
+
+
+def _real_root(folder: Path) -> Path:
+    """Where a template folder really is; a project's templates/ must lie in the project."""
+    if folder == PACKAGED_TEMPLATES:
+        return PACKAGED_TEMPLATES.resolve()
+    return Path(folder).absolute().parent.resolve() / Path(folder).name
+
+
+def _template_in_use() -> str:
+    """The name of the template whose code is running (from the call stack), or ''."""
+    frame = sys._getframe(1)
+    while frame is not None:
+        name = frame.f_code.co_filename
+        if name.endswith((".html", ".htm", ".xml", ".css", ".txt")):
+            return _shown(Path(name))
+        frame = frame.f_back  # type: ignore[assignment]
+    return ""
+
+
+class _Sandbox(jinja2.sandbox.SandboxedEnvironment):
+    """Jinja's sandbox, refusing an unsafe attribute at once with a message a user can act on."""
+
+    def unsafe_undefined(self, obj: Any, attribute: str) -> jinja2.Undefined:
+        where = _template_in_use() or "a template"
+        raise TemplateRefused(
+            f"{where}: the template reaches for '{attribute}' of a {type(obj).__name__} value, "
+            "which booklet templates may not use (they run in a sandbox, so they cannot run "
+            "programs or read files). Fix: remove that expression from the template in "
+            "templates/; a template may use the values and filters springback gives it")
+
+
 def make_environment(
     project_templates: Path | None, language: str, *, timezone: str = "UTC"
 ) -> jinja2.Environment:
     """Build the Jinja environment: project templates first, then packaged; i18n and filters on."""
-    search = [str(p) for p in template_search_path(project_templates)]
-    env = jinja2.Environment(
-        loader=jinja2.FileSystemLoader(search),
+    env = _Sandbox(
+        loader=_ConfinedLoader(template_search_path(project_templates)),
         autoescape=jinja2.select_autoescape(["html", "htm", "xml"], default_for_string=True),
         extensions=["jinja2.ext.i18n"],
         undefined=jinja2.StrictUndefined,
