@@ -38,8 +38,10 @@ def test_inertia_same_day_pairs_worked_values():
     assert len(fam.tables["pairs"]) == 5
 
 
-def test_inertia_equals_scipy_pearson_on_admissible_pairs():
-    """Check inertia equals scipy.stats.pearsonr on the admissible pairs, inside its interval."""
+def test_inertia_is_the_day_jackknife_of_scipy_pearson_on_admissible_pairs():
+    """Check inertia against scipy.stats.pearsonr on the pairs, deleting one day at a time."""
+    # Delete-one-group jackknife (Quenouille 1956, Biometrika 43:353-360; Tukey 1958 for the
+    # standard error, from memory), recomputed here by brute force with scipy's Pearson r.
     rng = np.random.default_rng(11)
     hours = prompt_hours(40, 5, rng)
     x = simulate_ou(hours, 0.25, 1.0, 3.0, rng)
@@ -47,11 +49,21 @@ def test_inertia_equals_scipy_pearson_on_admissible_pairs():
     series = prepare(participant(hours, x), settings)
     fam = carry_over(series, settings, "p11")
     ok = series.admissible
-    want = stats.pearsonr(series.value[:-1][ok], series.value[1:][ok]).statistic
+    a, b, day = series.value[:-1][ok], series.value[1:][ok], series.day_index[:-1][ok]
+    full = stats.pearsonr(a, b).statistic
+    days = np.unique(day)
+    loo = np.array([stats.pearsonr(a[day != d], b[day != d]).statistic for d in days])
+    d = len(days)
+    want = d * full - (d - 1) * loo.mean()
+    se = math.sqrt((d - 1) / d * np.sum((loo - loo.mean()) ** 2))
+    q = stats.t.ppf(0.975, d - 1)
     est = fam.estimates["inertia"]
-    assert est.value == pytest.approx(want, abs=1e-12)
-    assert est.lower < est.value < est.upper
-    assert carry_over(series, settings, "p11").estimates["inertia"] == est  # seeded
+    assert fam.params["inertia_uncorrected"] == pytest.approx(full, abs=1e-12)
+    assert est.value == pytest.approx(want, abs=1e-10)
+    assert est.lower == pytest.approx(want - q * se, abs=1e-10)
+    assert est.upper == pytest.approx(want + q * se, abs=1e-10)
+    assert est.value > full  # the correction undoes the low bias of r on a short series
+    assert carry_over(series, settings, "p11").estimates["inertia"] == est  # deterministic
 
 
 def test_inertia_interval_matches_the_spread_of_estimates():
@@ -166,18 +178,23 @@ def test_half_life_interval_covers_truth_about_95_percent():
     assert 0.85 <= np.mean(covered) <= 1.0
 
 
-def test_gradual_change_of_level_is_not_read_as_slow_recovery():
-    """Check a steady 3-point worsening over 60 days leaves the detrended half-life near truth."""
-    # Simulated OU (half-life 3 h) plus a linear drift of the level: without detrending the
-    # drift looks like carry-over and inflates the half-life; with the Gaussian trend removed
-    # (kernel SD 7 days) the estimate stays close to the known value.
+def test_carry_over_is_not_detrended_whatever_the_rolling_indicators_use():
+    """Check inertia and half-life are the same under every `detrend` setting (raw ratings)."""
+    # The detrend setting is for the rolling early-warning indicators only: a 7-day Gaussian
+    # trend also removes part of a stationary person's carry-over (see the calibration test in
+    # test_metrics_inertia.py). A straight drift of the level therefore raises inertia.
     rng = np.random.default_rng(21)
-    hours = prompt_hours(120, 5, rng)
-    x = simulate_ou(hours, math.log(2) / 3, 0.7, 3.0, rng) + 3.0 * hours / hours[-1]
+    hours = prompt_hours(60, 5, rng)
+    x = simulate_ou(hours, math.log(2) / 3, 0.7, 3.0, rng)
     data = participant(hours, x)
-    raw = carry_over(prepare(data, _with()), _with()).estimates["half_life_hours"].value
-    settings = settings_for(detrend="gaussian", bandwidth_days=7.0)
-    fam = carry_over(prepare(data, settings), settings)
-    assert abs(fam.estimates["half_life_hours"].value / 3.0 - 1) < 0.2
-    assert raw > 2 * fam.estimates["half_life_hours"].value
-    assert fam.params["detrend"] == "gaussian"
+    got = {}
+    for how in ("gaussian", "linear", "none"):
+        settings = settings_for(detrend=how)
+        got[how] = carry_over(prepare(data, settings), settings).estimates
+    for name in ("inertia", "half_life_hours"):
+        assert got["gaussian"][name] == got["linear"][name] == got["none"][name]
+    drifting = participant(hours, x + 3.0 * hours / hours[-1])
+    settings = settings_for()
+    moved = carry_over(prepare(drifting, settings), settings)
+    assert moved.estimates["inertia"].value > got["none"]["inertia"].value
+    assert moved.params["detrend"].startswith("none")

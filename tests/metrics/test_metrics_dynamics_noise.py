@@ -12,6 +12,7 @@ from scipy import optimize, stats
 
 from springback.metrics._series import prepare
 from springback.metrics.dynamics import (
+    CANNOT_TELL,
     LOG_KAPPA_BOUNDS,
     _concentrated,
     carry_over,
@@ -143,23 +144,50 @@ def test_half_life_with_answer_noise_is_unbiased_and_its_interval_calibrated():
 
 
 def test_mostly_noise_or_no_carry_over_is_missing_with_a_reason():
-    """Check white noise, or answers that are mostly noise, give reasons and no number."""
+    """Check white noise, or answers that are mostly noise, give a status, a reason, no number."""
     # White noise has no carry-over at all; with 95% answer noise the rate trades off against
     # the noise along a flat likelihood (an identifiability limit, Oravecz et al. 2011, from
-    # memory). Either way the half-life is withheld and the reason says why.
+    # memory). Either way the half-life is withheld, and never as "no return": white noise is
+    # as likely a fast return as a slow one hidden in noise (profile open on both sides).
     settings = _with()
     rng = np.random.default_rng(0)
     hours = prompt_hours(120, 5, rng)
     fam = carry_over(prepare(participant(hours, rng.normal(3, 1, len(hours))), settings),
                      settings)
     est = fam.estimates["half_life_hours"]
-    assert est.value is None and "no measurable carry-over" in est.note
+    assert est.value is None and est.status in {"no_carry_over", "cannot_tell"}
     assert fam.estimates["recovery_rate_per_hour"].value is None
+    assert fam.estimates["recovery_rate_per_hour"].status == est.status
     hours, y = _ou_with_noise(1, 3.0, 0.95)
     fam = carry_over(prepare(participant(hours, y), settings), settings)
     est = fam.estimates["half_life_hours"]
     assert fam.params["noise_share"] > fam.params["max_noise_share"]
-    assert est.value is None and "answer noise" in est.note
+    assert est.value is None and est.status == "cannot_tell"
+    assert est.note.startswith(CANNOT_TELL)
+
+
+def test_flat_profile_is_cannot_tell_and_persistence_is_no_return():
+    """Check the statuses: noisy slow OU 'cannot_tell', a random walk within days 'no_return'."""
+    # Simulated OU (Gillespie 1996 exact transition) with half-life 12-24 h and half or more
+    # of the variance answer noise over 20 days: the profile likelihood of the rate stays
+    # within the chi-square cut-off up to the slowest rate searched, so the data cannot tell
+    # slow return from noise. A within-day random walk (half-life 2000 h, no noise; Brownian
+    # motion is the OU limit at rate 0, Uhlenbeck & Ornstein 1930, from memory) is persistence.
+    settings = _with()
+    statuses = []
+    for seed, (half, share) in enumerate([(12, 0.5), (12, 0.5), (24, 0.7), (24, 0.7)]):
+        hours, y = _ou_with_noise(seed, half, share, days=20)
+        est = carry_over(prepare(participant(hours, y), settings),
+                         settings).estimates["half_life_hours"]
+        statuses.append(est.status)
+        assert est.value is None and est.status != "no_return"
+    assert statuses.count("cannot_tell") >= 3
+    rng = np.random.default_rng(3)
+    hours = prompt_hours(30, 5, rng)
+    walk = np.concatenate([np.cumsum(rng.normal(0, 1, 5)) for _ in range(30)])
+    est = carry_over(prepare(participant(hours, 3 + walk), settings),
+                     settings).estimates["half_life_hours"]
+    assert est.value is None and est.status == "no_return", est
 
 
 def test_example_study_intervals_cover_the_simulated_half_lives():

@@ -1,7 +1,9 @@
 """Frozen result records shared by every metric family, the safety rules and the renderer.
 
 An `Estimate` is either a number (with optional interval and n) or "not enough data" with the
-reason in `note`: never a made-up number.
+reason in `note`: never a made-up number. `status` is the machine-readable state behind a
+missing value (a fixed code, the same in every language), so later stages can tell apart
+reasons that read alike; each family's module lists the codes it uses.
 """
 
 from __future__ import annotations
@@ -23,15 +25,18 @@ class Estimate:
     n: int | None = None
     note: str = ""
     """Why the value is missing, or how it was computed (method, rule used)."""
+    status: str = ""
+    """'' for a reported number; for a missing value a fixed code ('missing' unless the family
+    names the reason, e.g. dynamics' 'cannot_tell' versus 'no_return')."""
 
     @property
     def ok(self) -> bool:
         return self.value is not None and math.isfinite(self.value)
 
     @classmethod
-    def missing(cls, reason: str, n: int | None = None) -> Estimate:
-        """Not enough data (or undefined), with the reason a reader sees."""
-        return cls(None, n=n, note=reason)
+    def missing(cls, reason: str, n: int | None = None, status: str = "missing") -> Estimate:
+        """Not enough data (or undefined), with the reason a reader sees and its code."""
+        return cls(None, n=n, note=reason, status=status)
 
 
 @dataclass(frozen=True)
