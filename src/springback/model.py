@@ -22,13 +22,18 @@ Edition = Literal["participant", "therapist"]
 EDITIONS: tuple[Edition, ...] = ("participant", "therapist")
 """The two booklets a participant can get: their own and their therapist's."""
 
-MOMENTARY_COLUMNS = ("participant", "time", "local_time", "study_day", "scheduled", "source_row")
+MOMENTARY_COLUMNS = ("participant", "time", "local_time", "study_day", "period", "scheduled",
+                     "source_row")
 """Fixed columns of `Study.momentary`; then one float column per item, then one per composite.
 
 - participant: str
-- time: datetime64[ns, UTC], when the prompt was answered
+- time: datetime64[ns, UTC], when the prompt was answered (the scheduled time when the study's
+  times come from day and prompt numbers: `Study.times_scheduled`)
 - local_time: the same instant in the study's time zone (tz-aware)
 - study_day: datetime64[ns] (naive midnight) of the local date after shifting by day_start
+- period: int64, the measurement period (1, 2, ...): the place of the row's value in the sorted
+  values of the period column, or else counted per participant, a new one after a gap of at
+  least `[data] new_period_after_days` days with no prompt
 - scheduled: datetime64[ns, UTC] or NaT, when the prompt was sent
 - source_row: int, the 1-based row in the source file (header = 1), for error messages
 - <item>: float, raw rating as given (NaN = not answered)
@@ -42,6 +47,12 @@ ROSTER_COLUMNS = ("participant", "language", "consent", "feedback", "therapist",
 """Roster: participant str; language str; consent 'yes'|'withdrawn'; feedback bool;
 therapist bool; region str ('default' when absent)."""
 
+SCHEDULE_COLUMNS = ("participant", "period", "study_day", "answered", "sent")
+"""Prompts per participant and day (`Study.schedule`), by the rule in `intake.schedule`:
+participant str; period int64; study_day datetime64[ns] (naive midnight); answered int64;
+sent float (NaN when the number sent is not known). Days with nothing sent or answered are
+left out; `quality` sums these rows and its compliance is answered / sent."""
+
 SET_ASIDE_COLUMNS = ("file", "row", "column", "participant", "reason")
 QUALITY_COLUMNS = (
     "participant", "answered", "scheduled", "compliance", "first_day", "last_day",
@@ -49,7 +60,7 @@ QUALITY_COLUMNS = (
 )
 
 
-_SLICED_FRAMES = ("quality", "set_aside")
+_SLICED_FRAMES = ("quality", "set_aside", "schedule")
 
 
 @dataclass(frozen=True)
@@ -77,6 +88,11 @@ class Study:
     """The latest answer or scheduled prompt time of anyone (UTC), or None without prompts."""
     last_score: pd.Timestamp | None = None
     """The latest questionnaire time of anyone (UTC), or None without scores."""
+    schedule: pd.DataFrame = field(default_factory=lambda: empty_schedule())
+    """Prompts sent and answered per participant and day (`SCHEDULE_COLUMNS`)."""
+    times_scheduled: bool = False
+    """True when prompt times were built from day and prompt numbers: they are the scheduled
+    times of the design, not the moments of answering (booklets say so)."""
 
     def __post_init__(self) -> None:
         for name, latest in (("momentary_rows", "last_prompt"),
@@ -160,6 +176,8 @@ class Study:
             questionnaires=self._rows("questionnaire_rows").rows(participant),
             quality=rows("quality"),
             set_aside=rows("set_aside"),
+            schedule=rows("schedule"),
+            times_scheduled=self.times_scheduled,
         )
 
     def rows_of(self, participant: str) -> int:
@@ -191,3 +209,15 @@ class ParticipantData:
     questionnaires: pd.DataFrame
     quality: pd.DataFrame
     set_aside: pd.DataFrame
+    schedule: pd.DataFrame = field(default_factory=lambda: empty_schedule())
+    """The participant's prompts sent and answered per day (`SCHEDULE_COLUMNS`)."""
+    times_scheduled: bool = False
+    """True when times are the design's scheduled times (built from day and prompt numbers)."""
+
+
+def empty_schedule() -> pd.DataFrame:
+    """A schedule table without rows, with the contract's column types."""
+    return pd.DataFrame({"participant": pd.Series(dtype="str"),
+                         "period": pd.Series(dtype="int64"),
+                         "study_day": pd.Series(dtype="datetime64[ns]"),
+                         "answered": pd.Series(dtype="int64"), "sent": pd.Series(dtype=float)})

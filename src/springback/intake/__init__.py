@@ -18,6 +18,7 @@ from springback.frames import DiskFrames
 from springback.intake import stream
 from springback.intake.events import event_frame, read_events
 from springback.intake.momentary import read_momentary
+from springback.intake.numbers import from_numbers, roster_first_days
 from springback.intake.problems import Sink, Slot
 from springback.intake.quality import quality_frame, quality_table
 from springback.intake.questionnaires import questionnaire_frame, read_questionnaires
@@ -189,8 +190,9 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
                                   withdrawn, listed, roster_where, data.columns.id_column(file),
                                   out)
 
-    momentary = check_momentary(momentary_chunks, settings, sink, consent, consent_sink) \
-        if momentary_chunks else None
+    first_days = roster_first_days(roster_table, settings, sink)
+    momentary = check_momentary(momentary_chunks, settings, sink, consent, consent_sink,
+                                first_days) if momentary_chunks else None
     events_table = table(data.events, "events", events_slot)
     events = read_events(events_table, settings, sink) if events_table else None
     events_where = events_table.where if events_table else ""
@@ -214,8 +216,11 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
     score_rows = _spill(scores_out)
     del events, scores, scores_out
     set_aside = sink.set_aside_frame()
-    quality = quality_frame(roster, momentary.summary, momentary.late["late"],
-                            momentary.scheduled, set_aside, settings)
+    schedule = momentary.schedule
+    schedule = schedule[schedule["participant"].isin(set(roster["participant"]))]
+    schedule = schedule.sort_values(["participant", "study_day"]).reset_index(drop=True)
+    quality = quality_frame(roster, momentary.summary, momentary.late["late"], schedule,
+                            set_aside)
     study = Study(
         root=project.resolve(), settings=settings,
         roster=roster.drop(columns="_row").sort_values("participant").reset_index(drop=True),
@@ -223,6 +228,7 @@ def _load(project: Path) -> tuple[Study | None, list[Problem]]:
         set_aside=set_aside, quality=quality,
         warnings=tuple(p for p in sink.problems if not p.is_error),
         input_files=tuple(read), last_prompt=momentary.last_prompt, last_score=last_score,
+        schedule=schedule, times_scheduled=from_numbers(settings),
     )
     return study, sink.problems
 

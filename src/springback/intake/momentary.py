@@ -11,6 +11,13 @@ import numpy as np
 import pandas as pd
 
 from springback.errors import Problem, error, warning
+from springback.intake.numbers import (
+    DayOne,
+    build_times,
+    period_of,
+    sorted_periods,
+    time_columns,
+)
 from springback.intake.problems import Sink, rows_list
 from springback.intake.readers import Table, as_number, as_text, missing_mask
 from springback.intake.times import ISO_EXAMPLE, parse_times, zone_texts
@@ -23,6 +30,8 @@ TIME_PROBLEMS = {
     "ambiguous-time": "this local time happens twice (the clocks were put back)",
 }
 LOCAL_TIME_CODES = ("nonexistent-time", "ambiguous-time")
+EARLY = pd.Timedelta(minutes=1)
+"""An answer more than this before its prompt was sent is reported (device clocks)."""
 ZONE_EXPECTED = ("an IANA zone such as Europe/Amsterdam, an offset such as +02:00, or a "
                  "fixed-offset abbreviation such as CET")
 
@@ -32,14 +41,16 @@ class Prompts:
     """Every usable prompt row (answered or not), repeated prompts resolved, before the roster.
 
     Columns: participant, time (UTC, answer time), scheduled (UTC or NaT), source_row,
-    answered (bool), late (bool), then one float column per item key.
+    answered (bool), late (bool), early (bool: answered over a minute before the prompt was
+    sent), then one float column per item key; with a period column `period` (its 1-based
+    place in the sorted periods), with day numbers `_day_number`.
     """
 
     frame: pd.DataFrame
     from_rows: bool
-    """True when the file lists unanswered prompts too, so it is the schedule itself."""
-    scheduled: pd.Series
-    """Distinct prompts per participant in the file (index: participant)."""
+    """True when the rows list unanswered prompts too (rows with a time and no answer)."""
+    has_scheduled: bool
+    """True when the file has a column saying when each prompt was sent."""
 
 
 def read_momentary(table: Table, settings: StudySettings, sink: Sink) -> Prompts | None:
@@ -56,7 +67,7 @@ def has_momentary_columns(where: str, present: list[str], settings: StudySetting
                           sink: Sink) -> bool:
     """Whether the file has every column the study needs (each missing one is an error)."""
     cols = settings.data.columns
-    needed = {cols.participant: "participant", cols.timestamp: "timestamp"}
+    needed = {cols.participant: "participant"} | time_columns(settings)
     if settings.data.layout == "long":
         wanted = needed | {cols.item: "item", cols.value: "value"}
     else:
@@ -81,25 +92,45 @@ def has_momentary_columns(where: str, present: list[str], settings: StudySetting
 
 
 def check_prompts(table: Table, settings: StudySettings, sink: Sink,
-                  unknown: Counter[str | None]) -> Prompts:
+                  unknown: Counter[str | None], day_one: DayOne | None = None) -> Prompts:
     """Check and convert rows of a momentary file that has every needed column.
 
     The rows may be all of the file or every row of some participants; rows of items the
     study does not define (long layout) are counted in `unknown` for `unknown_items`.
+    `day_one` places day numbers on the calendar (see `intake.numbers`).
     """
     cols = settings.data.columns
     item_cols = {k: (v.column or k) for k, v in settings.items.items()}
-    needed = {cols.participant, cols.timestamp}
+    timed = time_columns(settings)
+    needed = {cols.participant, *timed}
     if settings.data.layout == "long":
         needed |= {cols.item, cols.value}
     frame = table.frame
-    raw = pd.DataFrame({"participant": frame[cols.participant],
-                        "timestamp": frame[cols.timestamp]})
+    raw = pd.DataFrame({"participant": frame[cols.participant]})
+    for name, key in timed.items():
+        raw[key] = frame[name]
     for name, key in ((cols.scheduled, "scheduled"), (cols.answered, "answered"),
                       (cols.timezone, "zone")):
         if name in frame.columns and name not in needed:
             raw[key] = frame[name]
     raw["source_row"] = table.rows
+    if "timestamp" not in timed.values():
+        missing = settings.data.missing_values
+        values = [frame[cols.value]] if settings.data.layout == "long" else \
+            [frame[c] for c in item_cols.values()]
+        given = np.zeros(len(frame), bool)
+        for v in values:
+            given |= ~missing_mask(v, missing).to_numpy()
+        raw["_bad_time"] = build_times(table.where, raw, given, settings, day_one or DayOne(),
+                                       sink)
+        if "day" in raw.columns:
+            raw["_day_number"] = as_number(raw["day"], missing)[0].to_numpy()
+        raw = raw.drop(columns=[c for c in ("day", "prompt", "date", "clock") if c in raw])
+    if cols.period is not None and cols.period in frame.columns:
+        missing = settings.data.missing_values
+        order = list((day_one or DayOne()).periods) or sorted_periods(frame[cols.period],
+                                                                       missing)
+        raw["period"] = period_of(frame[cols.period], order, missing)
     if settings.data.layout == "long":
         raw = _widen(table, raw, item_cols, settings, sink, unknown)
     else:
@@ -224,7 +255,11 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
                   what="the participant id is missing", column=cols.participant,
                   expected="an id from the roster", code="missing-participant")
     bad |= participant.isna().to_numpy()
-    zones = zone_texts(raw["zone"]) if "zone" in raw.columns else None
+    built = "_bad_time" in raw.columns  # times made from numbers, their problems told
+    placed = raw["_bad_time"].to_numpy(dtype=bool) if built else np.zeros(len(raw), bool)
+    bad |= placed
+    zones = zone_texts(raw["zone"].mask(missing_mask(raw["zone"], missing))) \
+        if "zone" in raw.columns else None  # an empty zone cell: the study's zone
     times = {}
     for key in ("timestamp", "scheduled", "answered"):
         if key in raw.columns:
@@ -233,7 +268,8 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
                                       row_zones=zones, fmt=settings.data.timestamp_format,
                                       missing=gone), gone.to_numpy())
     for key, (parsed, _gone) in times.items():
-        name = getattr(cols, key)
+        name = getattr(cols, key) if not (built and key == "timestamp") else \
+            (cols.prompt or cols.clock)
         for code, what in TIME_PROBLEMS.items():
             hit = given & (parsed.problem == code).to_numpy()
             found = [f"'{v}'" + (f" in {z}" if code in LOCAL_TIME_CODES else "")
@@ -247,7 +283,7 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
     if "answered" in times:
         answer = times["answered"][0].utc.fillna(stamp.utc)
         stamp_gone = stamp_gone & times["answered"][1]
-    no_time = given & stamp_gone
+    no_time = given & stamp_gone & ~placed
     sink.bad_rows(where, rows[no_time], pid[no_time], [""] * int(no_time.sum()),
                   what="the time is missing", column=cols.timestamp,
                   expected="when the prompt was answered", code="missing-time")
@@ -255,12 +291,14 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
     out["time"] = answer
     if "scheduled" in times:
         out["scheduled"] = times["scheduled"][0].utc
-    elif "answered" in times:
+    elif "answered" in times or (built and settings.data.columns.day is not None):
         out["scheduled"] = stamp.utc
     else:
         out["scheduled"] = pd.Series(pd.NaT, index=out.index, dtype="datetime64[ns, UTC]")
     out["source_row"] = rows
     out["answered"] = given
+    if "period" in raw.columns:
+        out["period"] = raw["period"].to_numpy(dtype=np.int64)
     key_col = "scheduled" if "scheduled" in raw.columns else "timestamp"
     key_text = as_text(raw[key_col], missing)
     no_key = key_text.isna().to_numpy()
@@ -268,22 +306,22 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
         key_text = key_text.copy()
         key_text[no_key] = [f"row {r}" for r in rows[no_key]]
     out["_key"] = key_text
+    if "_day_number" in raw.columns:
+        out["_day_number"] = raw["_day_number"].to_numpy(dtype=float)
     keep = ~bad & (participant.notna().to_numpy())
-    named = out.loc[participant.notna().to_numpy(), ["participant", "_key"]]
-    scheduled = named.drop_duplicates().groupby("participant").size()
-    del named
     empty = participant.isna().to_numpy() & ~given
     sink.aside(where, rows[empty], [""] * int(empty.sum()), "an empty row")
-    from_rows = bool((~given).any()) or (
-        "scheduled" in raw.columns and settings.study.prompts_per_day is None)
+    listed = ~given & (out["time"].notna() | out["scheduled"].notna()).to_numpy() & keep
+    from_rows = bool(listed.any())
     kept = out[keep].reset_index(drop=True)
     del out  # large studies: never hold the checked rows twice while repeats are resolved
     frame = _resolve_repeats(where, kept, settings, sink)
     del kept
     late_after = pd.Timedelta(minutes=settings.data.late_after_minutes)
     frame["late"] = (frame["answered"] & ((frame["time"] - frame["scheduled"]) > late_after))
+    frame["early"] = (frame["answered"] & ((frame["scheduled"] - frame["time"]) > EARLY))
     frame = frame.drop(columns="_key")
-    return Prompts(frame, from_rows, scheduled)
+    return Prompts(frame, from_rows, "scheduled" in raw.columns)
 
 
 def _expected(code: str, fmt: str | None) -> str:
@@ -314,12 +352,21 @@ def _resolve_repeats(where: str, frame: pd.DataFrame, settings: StudySettings,
     drop: list[int] = []
     for _, group in frame[repeated].groupby(["participant", "_key"], sort=False):
         drop += _one_repeat(where, group, items, settings, sink)
-    return frame.drop(index=drop).reset_index(drop=True)
+    # A prompt whose rows clash was still sent: its first row stays, without the answers.
+    sent = [i for i in drop if i < 0]
+    if sent:
+        blank = [-1 - i for i in sent]
+        frame.loc[blank, items] = np.nan
+        frame.loc[blank, "answered"] = False
+    return frame.drop(index=[i for i in drop if i >= 0]).reset_index(drop=True)
 
 
 def _one_repeat(where: str, group: pd.DataFrame, items: list[str], settings: StudySettings,
                 sink: Sink) -> list[int]:
-    """Decide which rows of one repeated prompt to drop, and report it."""
+    """Decide which rows of one repeated prompt to drop, and report it.
+
+    A row to keep without its answers (the first of clashing rows) comes as -1 - its index.
+    """
     who = group["participant"].iloc[0]
     when = group["_key"].iloc[0]
     rows = group["source_row"].tolist()
@@ -343,7 +390,7 @@ def _one_repeat(where: str, group: pd.DataFrame, items: list[str], settings: Stu
                           code="conflicting-rows")
             sink.aside(where, rows[1:], [who] * (len(rows) - 1),
                        "the same prompt with different answers")
-            return group.index.tolist()
+            return [-1 - group.index[0], *group.index[1:].tolist()]
     kept = (answered if len(answered) else group).index[0]
     dropped = [i for i in group.index if i != kept]
     kept_row = int(group.loc[kept, "source_row"])

@@ -4,19 +4,12 @@ from __future__ import annotations
 
 from typing import Any, cast
 
-import numpy as np
 import pandas as pd
 from rich.table import Table as RichTable
 
+from springback.intake.schedule import compliance, study_days
 from springback.model import MOMENTARY_COLUMNS, QUALITY_COLUMNS, Study
 from springback.settings import StudySettings
-
-
-def study_days(local_time: pd.Series, day_start: str) -> pd.Series:
-    """Local calendar date of each time after moving midnight to `day_start` (naive midnight)."""
-    hh, mm = (int(x) for x in day_start.split(":"))
-    wall = local_time.dt.tz_localize(None)
-    return (wall - pd.Timedelta(hours=hh, minutes=mm)).dt.normalize().astype("datetime64[ns]")
 
 
 def composite_scores(items: pd.DataFrame, settings: StudySettings) -> pd.DataFrame:
@@ -45,6 +38,8 @@ def momentary_frame(prompts: pd.DataFrame, settings: StudySettings) -> pd.DataFr
     })
     out["local_time"] = out["time"].dt.tz_convert(zone)
     out["study_day"] = study_days(out["local_time"], settings.study.day_start)
+    out["period"] = (answered["period"].astype("int64") if "period" in answered.columns
+                     else pd.Series(1, index=answered.index, dtype="int64"))
     out["scheduled"] = answered["scheduled"].astype("datetime64[ns, UTC]")
     out["source_row"] = answered["source_row"].astype("int64")
     items = answered[list(settings.items)].astype(float)
@@ -75,13 +70,11 @@ def momentary_summary(momentary: pd.DataFrame) -> pd.DataFrame:
 
 
 def quality_frame(roster: pd.DataFrame, summary: pd.DataFrame, late: pd.Series,
-                  scheduled: pd.Series | None, set_aside: pd.DataFrame,
-                  settings: StudySettings) -> pd.DataFrame:
+                  schedule: pd.DataFrame, set_aside: pd.DataFrame) -> pd.DataFrame:
     """One row per roster participant: answered, scheduled, compliance, days, gaps, late, aside.
 
-    `summary` is `momentary_summary` of every participant's rows. `scheduled` counts distinct
-    prompts per participant when the file lists every prompt; otherwise prompts_per_day x the
-    days from first to last answer (NaN when neither is known).
+    `summary` is `momentary_summary` of every participant's rows; `schedule` the prompts sent
+    per day by the rule in `intake.schedule` (scheduled is their sum, NaN when not known).
     """
     ids = pd.Index(sorted(roster["participant"].astype(str)), name="participant")
     answered = summary["answered"].reindex(ids, fill_value=0).astype("int64")
@@ -89,21 +82,18 @@ def quality_frame(roster: pd.DataFrame, summary: pd.DataFrame, late: pd.Series,
     last = summary["last_day"].reindex(ids).astype("datetime64[ns]")
     days = summary["days_covered"].reindex(ids, fill_value=0).astype("int64")
     longest = summary["longest_gap_hours"].reindex(ids).astype(float)
-    if scheduled is not None:
-        planned = scheduled.reindex(ids, fill_value=0).astype(float)
-    elif settings.study.prompts_per_day is not None:
-        span = ((last - first).dt.days + 1).astype(float)
-        planned = (span * settings.study.prompts_per_day).fillna(0.0)
-    else:
-        planned = pd.Series(np.nan, index=ids)
-    compliance = (answered / planned.where(planned > 0)).astype(float)
+    sent = schedule["sent"].groupby(schedule["participant"].astype(str)).sum(min_count=1)
+    planned = sent.reindex(ids).astype(float)
+    if schedule["sent"].notna().any():  # known for everyone: nothing sent is 0
+        planned = planned.fillna(0.0)
+    share = compliance(answered, planned)
     rows = set_aside.drop_duplicates(["file", "row"])  # a row set aside for two reasons is one
     aside = rows.groupby("participant").size().reindex(ids, fill_value=0).astype("int64")
     out = pd.DataFrame({
         "participant": ids.astype(str),
         "answered": answered.to_numpy(),
         "scheduled": planned.to_numpy(),
-        "compliance": compliance.to_numpy(),
+        "compliance": share.to_numpy(dtype=float),
         "first_day": first.to_numpy(),
         "last_day": last.to_numpy(),
         "days_covered": days.to_numpy(),

@@ -13,8 +13,9 @@ spill file that `Study.slice` reads one participant at a time.
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass
+from datetime import date
 from itertools import chain
 from typing import Any, cast
 
@@ -23,9 +24,11 @@ import pandas as pd
 from springback.errors import DataError, error
 from springback.frames import DiskFrames, Frames, MemoryFrames
 from springback.intake.momentary import check_prompts, has_momentary_columns, unknown_items
+from springback.intake.numbers import DayOne, sorted_periods
 from springback.intake.problems import Sink
 from springback.intake.quality import SUMMARY_COLUMNS, momentary_frame, momentary_summary
 from springback.intake.readers import Table, TableChunks, as_text
+from springback.intake.schedule import add_periods, odd_times, prompt_days, sent_by_rule
 from springback.model import latest_time
 from springback.settings import StudySettings
 
@@ -49,8 +52,8 @@ class Momentary:
     """`momentary_summary` of every participant with answered prompts."""
     late: pd.DataFrame
     """Per participant with late answers: how many (`late`) and the first one's row (`row`)."""
-    scheduled: pd.Series | None
-    """Distinct prompts per participant when the file lists every prompt, else None."""
+    schedule: pd.DataFrame
+    """Prompts sent and answered per participant and day (`intake.schedule.sent_by_rule`)."""
     last_prompt: pd.Timestamp | None
 
 
@@ -59,16 +62,19 @@ Consent = Callable[[pd.DataFrame, Sink], pd.DataFrame]
 
 
 def check_momentary(chunks: TableChunks, settings: StudySettings, sink: Sink,
-                    consent: Consent | None, consent_sink: Sink) -> Momentary | None:
+                    consent: Consent | None, consent_sink: Sink,
+                    first_days: Mapping[str, date] | None = None) -> Momentary | None:
     """Check every momentary row; None when the file cannot be used at all.
 
     Row problems go to `sink`; consent problems to `consent_sink` (they are reported after
     the other files' problems). Without `consent` (no usable roster) rows are only checked.
+    `first_days` are the roster's dates of day 1 (for times built from day numbers).
     """
     if not has_momentary_columns(chunks.where, chunks.columns, settings, sink):
         return None
+    periods: set[str] = set()
     try:
-        raw = _by_participant(chunks, settings)
+        raw = _by_participant(chunks, settings, periods)
     except DataError as exc:
         sink.add(exc.problems)
         return None
@@ -79,8 +85,11 @@ def check_momentary(chunks: TableChunks, settings: StudySettings, sink: Sink,
     unknown: Counter[str | None] = Counter()
     slot = sink.slot()  # item names the study lacks are told before the rows' problems
     tidy = DiskFrames()
-    summaries, lates, scheduled = [], [], []
-    from_rows = False
+    summaries, lates, days = [], [], []
+    from_rows = has_scheduled = False
+    missing = settings.data.missing_values
+    day_one = DayOne(first_days or {}, sorted_periods(pd.Series(sorted(periods), dtype=object),
+                                                      missing))
     last: list[pd.Timestamp] = []
     try:
         for keys in _groups(raw, GROUP_ROWS):
@@ -89,14 +98,16 @@ def check_momentary(chunks: TableChunks, settings: StudySettings, sink: Sink,
             table = Table(chunks.where, chunks.path, part.drop(columns=[_ROW, _KEY]),
                           chunks.value_labels, (), rows)
             del part
-            prompts = check_prompts(table, settings, sink, unknown)
+            prompts = check_prompts(table, settings, sink, unknown, day_one)
             del table
             from_rows |= prompts.from_rows
-            scheduled.append(prompts.scheduled)
+            has_scheduled |= prompts.has_scheduled
             if consent is None:
                 continue
             kept = consent(prompts.frame, consent_sink)
             del prompts
+            kept = add_periods(odd_times(chunks.where, kept, sink), settings)
+            days.append(prompt_days(kept, settings))
             late = kept[kept["answered"] & kept["late"]]
             lates.append(late.groupby("participant")["source_row"].agg(["size", "min"]))
             momentary = momentary_frame(kept, settings)
@@ -121,30 +132,44 @@ def check_momentary(chunks: TableChunks, settings: StudySettings, sink: Sink,
         rows=tidy.seal(),
         summary=pd.concat(summaries) if summaries else _no_summary(),
         late=late_table.rename(columns={"size": "late", "min": "row"}).sort_index(),
-        scheduled=pd.concat(scheduled) if from_rows else None,
+        schedule=sent_by_rule(pd.concat(days, ignore_index=True) if days else prompt_days(
+            _no_prompts(settings), settings), settings, has_scheduled=has_scheduled,
+            lists_prompts=from_rows),
         last_prompt=max(last) if last else None,
     )
 
 
-def _by_participant(chunks: TableChunks, settings: StudySettings) -> Frames:
+def _by_participant(chunks: TableChunks, settings: StudySettings, periods: set[str]) -> Frames:
     """Every row of the file filed under its participant id (as checking will read it).
 
     A file read whole stays in memory; a file read in blocks is filed on disk block by block.
-    Rows without an id are filed together under ''.
+    Rows without an id are filed together under ''. The period column's values are added to
+    `periods` (their order numbers the periods of the whole file).
     """
     column = settings.data.columns.participant
     missing = settings.data.missing_values
+    period = settings.data.columns.period
     first = next(chunks.chunks, None)
     if first is None:
         return MemoryFrames(pd.DataFrame())
+
+    def seen(table: Table) -> Table:
+        if period is not None and period in table.frame.columns:
+            periods.update(str(v) for v in as_text(table.frame[period], missing).dropna()
+                           .unique())
+        return table
+
+    first = seen(first)
     second = next(chunks.chunks, None)
+    if second is not None:
+        second = seen(second)
     if second is None:
         frame = first.frame.assign(**cast(dict[str, Any], {
             _ROW: first.rows, _KEY: as_text(first.frame[column], missing).fillna("")}))
         return MemoryFrames(frame, key=_KEY)
     spill = DiskFrames()
     try:
-        for table in chain([first, second], chunks.chunks):
+        for table in chain([first, second], map(seen, chunks.chunks)):
             key = as_text(table.frame[column], missing).fillna("")
             columns = cast(dict[str, Any], {_ROW: table.rows, _KEY: key})
             spill.append(table.frame.assign(**columns), key)
