@@ -30,7 +30,7 @@ def frame_digest(df: pd.DataFrame) -> bytes:
     return h.digest()
 
 
-BOOKLET_NEUTRAL_SETTINGS = ("delivery", "archive", "output")
+BOOKLET_NEUTRAL_SETTINGS = ("delivery", "archive", "output", "review")
 """Settings sections that cannot change a booklet's content: editing them keeps its version."""
 
 

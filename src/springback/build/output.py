@@ -32,7 +32,7 @@ STUDY_TABLES = ("metrics.csv", "flags.csv", "shifts.csv", "quality.csv", "set_as
 """The study-wide tables of out/, in the order `study_tables` makes them."""
 
 # Entries of an output folder made before the marker existed; such a folder is still ours.
-_OWN_ENTRIES = {"booklets", "index.html", "release", *STUDY_TABLES}
+_OWN_ENTRIES = {"booklets", "index.html", "release", "preview", "actions.csv", *STUDY_TABLES}
 
 
 def check_out_dir(project: Path, out_dir: Path, archive_dir: Path) -> None:
@@ -144,6 +144,41 @@ class Previous:
         folder = project_dirs(project).archive / manifest["build"]
         return cls(project, folder, manifest)
 
+    def carried(self, pid: str, staging: Path) -> ParticipantOutcome | None:
+        """A participant left out of a partial build (`--participant`), as the last build
+        had them: files copied into `staging`, the same fingerprint, version and flags, so
+        review and release still see their booklet. None if the last build lacks them."""
+        from springback.build.records import BOOKLETS, ParticipantOutcome
+        from springback.model import EDITIONS
+        from springback.review.gate import review_state
+
+        rec = self.people.get(pid)
+        if not rec:
+            return None
+        names = [str(rel) for rel in rec.get("files", [])]
+        if not all((self.folder / "out" / rel).is_file() for rel in names):
+            return None
+        for rel in names:
+            (staging / rel).parent.mkdir(parents=True, exist_ok=True)
+            shutil.copyfile(self.folder / "out" / rel, staging / rel)
+        fp, flags = str(rec.get("fingerprint", "")), list(rec.get("flags", []))
+        metrics_rows = self.rows["metrics.csv"].get(pid, [])
+        compliance = next((r["value"] for r in metrics_rows if r["measure"] == "compliance"), "")
+        period = rec.get("period", {})
+        return ParticipantOutcome(
+            participant=pid, status=str(rec.get("status", "")), reason=rec.get("reason", ""),
+            stored=tuple(sorted(names)), metrics_rows=metrics_rows,
+            flag_rows=self.rows["flags.csv"].get(pid, []),
+            shift_rows=self.rows["shifts.csv"].get(pid, []),
+            review_state=review_state(self.project, pid, fp, flags), fingerprint=fp,
+            version=int(rec.get("version", 0) or 0),
+            period=(period.get("first", ""), period.get("last", "")),
+            compliance=float(compliance) if compliance not in ("", None) else None,
+            editions=tuple(e for e in EDITIONS if f"{BOOKLETS}/{pid}/{e}.html" in names
+                           or f"{BOOKLETS}/{pid}/{e}.pdf" in names),
+            flags=flags, reused=True,
+        )
+
     def outcome(self, job: Job, staging: Path) -> ParticipantOutcome | None:
         """The participant's last outcome, its files copied into `staging`, if nothing it
         depends on changed; else None (and nothing copied)."""
@@ -245,29 +280,3 @@ def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[s
         "set_aside.csv": study.set_aside,
     }
     return {name: frame_bytes(df) for name, df in tables.items()}
-
-
-def render_overview(
-    project: Path, study: Study, outcomes: Iterable[ParticipantOutcome], built_at: datetime
-) -> str:
-    """The research team's overview page (English; the team's working language)."""
-    from springback import render
-    from springback.build.records import BOOKLETS
-
-    env = render.make_environment(project / "templates", "en")  # the page states times in UTC
-    rows = [
-        {
-            "participant": o.participant,
-            "status": o.status,
-            "reason": o.reason,
-            "compliance": o.compliance,
-            "flags": o.flags,
-            "review_state": o.review_state,
-            "editions": [f"{BOOKLETS}/{o.participant}/{e}" for e in o.editions],
-            "formats": list(study.settings.booklet.formats),
-            "version": o.version,
-            "period": o.period,
-        }
-        for o in outcomes
-    ]
-    return render.render_overview(env, rows, study.settings, built_at)

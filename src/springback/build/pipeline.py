@@ -26,11 +26,11 @@ from springback.build.output import (
     Previous,
     archive_staged,
     check_out_dir,
-    render_overview,
     stage_files,
     study_tables,
     write_files,
 )
+from springback.build.overview import overview
 from springback.build.records import BuildReport, Job, ParticipantOutcome
 from springback.model import Study
 from springback.settings import StudySettings
@@ -102,11 +102,14 @@ def build(
                 total=len(selected),
             )
             by_id = {**reused, **{o.participant: o for o in fresh}}
-            outcomes = [by_id[pid] for pid in selected]
+            if participants:
+                by_id.update(_carried(project, study, selected, staging))
+            outcomes = [by_id[pid] for pid in study.participants() if pid in by_id]
             report("", "writing the overview, tables and archive")
             tables = study_tables(study, outcomes)
-            overview = render_overview(project, study, outcomes, started)
-            write_files({**tables, "index.html": overview.encode("utf-8")}, staging)
+            page, actions = overview(project, study, outcomes, started)
+            write_files({**tables, "actions.csv": actions, "index.html": page.encode("utf-8")},
+                        staging)
             ended = archive.build_time(now=True)
             build_id = archive_staged(
                 project, out_dir, staging, study=study, outcomes=outcomes, started=started,
@@ -115,6 +118,20 @@ def build(
             # Written after archiving, so the archived outputs stay the booklets and tables.
             (staging / OUT_MARKER).write_text(MARKER_TEXT, encoding="utf-8")
     return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
+
+
+def _carried(project: Path, study: Study, selected: list[str],
+             staging: Path) -> dict[str, ParticipantOutcome]:
+    """Everyone a partial build leaves out, as the last build had them (see Previous.carried);
+    so `build --participant X` never makes review or release lose the others' booklets."""
+    last = Previous.load(project)
+    if last is None:
+        return {}
+    out = {}
+    for pid in study.participants():
+        if pid not in selected and (o := last.carried(pid, staging)) is not None:
+            out[pid] = o
+    return out
 
 
 def heaviest_first(study: Study, selected: list[str], settings: StudySettings) -> list[str]:

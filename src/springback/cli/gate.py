@@ -7,11 +7,12 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
+from typing import Any
 
 import click
 from rich.table import Table
 
-from springback.cli.core import PROJECT, _esc, err, out, reports_errors
+from springback.cli.core import PROJECT, _esc, err, out, reports_errors, show_table
 
 
 def register(main: click.Group) -> None:
@@ -25,21 +26,53 @@ def register(main: click.Group) -> None:
 @click.argument("participant", required=False)
 @click.option("--approve", "decision", flag_value="approve", help="Approve the held booklet.")
 @click.option("--reject", "decision", flag_value="reject", help="Reject the held booklet.")
+@click.option("--done", "decision", flag_value="done",
+              help="Record the participant's open refer or hold actions as done.")
+@click.option("--rule", default="", metavar="NAME", help="With --done: only this rule's action.")
+@click.option("--version", "booklet_version", default="", metavar="N",
+              help="With --approve or --reject: the booklet version you read (refused if a "
+              "newer one was built).")
 @click.option("--by", default="", metavar="NAME", help="Who decides (required to decide).")
 @click.option("--note", default="", help="Why (kept beside the log; erased with the person).")
+@click.option("--serve", is_flag=True, help="Start the local review page for reviewers.")
+@click.option("--port", type=click.IntRange(0, 65535), default=0, show_default=False,
+              help="With --serve: the port on 127.0.0.1 (default: a free one).")
 @reports_errors
-def review(project: Path, participant: str | None, decision: str | None, by: str,
-           note: str) -> None:
-    """List held booklets with their reasons, or approve or reject one."""
-    from springback.review import gate
+def review(project: Path, participant: str | None, decision: str | None, rule: str,
+           booklet_version: str, by: str, note: str, serve: bool, port: int) -> None:
+    """List held booklets and open actions, decide on one, or serve the review page."""
+    from springback.review import actions, gate
 
+    if serve:
+        from springback.review.serve import serve_page
+
+        serve_page(project, port, say=out.print)
+        return
     if participant is None:
         if decision:
-            raise click.UsageError("name the participant to approve or reject")
-        held = gate.list_held(project)
-        if not held:
-            out.print("No booklet of the latest build is held.")
-            return
+            raise click.UsageError("name the participant to approve, reject or mark done")
+        _list_review(project, gate, actions)
+        return
+    if decision is None:
+        raise click.UsageError("add --approve, --reject or --done (or leave out the participant "
+                               "to list)")
+    if decision == "done":
+        entries = actions.close(project, participant, by, note, rule)
+        for e in entries:
+            out.print(f"{_esc(participant)}: action '{_esc(str(e['rule']))}' ({e['action']}) "
+                      f"recorded as done by {_esc(str(e['by']))} at {e['time']} (audit log).")
+        return
+    entry = actions.decide_locked(project, participant, decision, by, note, booklet_version)
+    word = "approved" if decision == "approve" else "rejected"
+    out.print(f"{_esc(participant)}: booklet version {entry.get('version')} {word} by "
+              f"{_esc(entry['by'])} at {entry['time']} (recorded in the audit log).")
+
+
+def _list_review(project: Path, gate: Any, actions: Any) -> None:
+    held = gate.list_held(project)
+    if not held:
+        out.print("No booklet of the latest build is held.")
+    else:
         table = Table(title="Held booklets (latest build)")
         for column in ("participant", "version", "state", "reasons", "decided"):
             table.add_column(column)
@@ -47,18 +80,22 @@ def review(project: Path, participant: str | None, decision: str | None, by: str
             decided = f"{h.decided_by}, {h.decided_at}" if h.decided_by else ""
             table.add_row(h.participant, h.version, h.state, _esc("\n".join(h.reasons)),
                           _esc(decided))
-        out.print(table)
+        show_table(out, table)
         waiting = sum(h.state == gate.HELD for h in held)
         out.print(f"{waiting} booklet(s) wait for review. Decide with `springback review "
                   f"{project} ID --approve --by NAME` (or --reject).")
+    todo = actions.open_actions(project)
+    if not todo:
+        out.print("No open actions.")
         return
-    if decision is None:
-        raise click.UsageError("add --approve or --reject (or leave out the participant to list)")
-    act = gate.approve if decision == "approve" else gate.reject
-    entry = act(project, participant, by, note)
-    word = "approved" if decision == "approve" else "rejected"
-    out.print(f"{_esc(participant)}: booklet version {entry.get('version')} {word} by "
-              f"{_esc(entry['by'])} at {entry['time']} (recorded in the audit log).")
+    table = Table(title="Open actions (latest build)")
+    for column in ("participant", "action", "reason", "since", "booklet"):
+        table.add_column(column)
+    for a in todo:
+        table.add_row(_esc(a.participant), a.words, _esc(a.reason), a.since, _esc(a.booklet))
+    show_table(out, table)
+    out.print(f"{len(todo)} open action(s). Record one as done with `springback review "
+              f"{project} ID --done --by NAME --note TEXT`.")
 
 
 @click.command()

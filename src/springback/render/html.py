@@ -32,8 +32,12 @@ def render_overview(
     rows: Iterable[Mapping[str, Any]],
     settings: StudySettings,
     built_at: dt.datetime,
+    *,
+    actions: Iterable[Any] = (),
+    data_end: dt.date | None = None,
 ) -> str:
-    """Render the research team's overview: one row per participant, booklets linked."""
+    """Render the research team's overview: open actions first, then one row per
+    participant, booklets linked (held ones marked as held)."""
     rows = sorted(rows, key=lambda r: str(r["participant"]))
     with_booklet = [r for r in rows if r.get("status") in ("built", "unchanged")]
     without = [r for r in rows if r.get("status") not in ("built", "unchanged")]
@@ -43,6 +47,8 @@ def render_overview(
         with_booklet=with_booklet,
         without_booklet=without,
         built_at=built_at,
+        actions=list(actions),
+        data_end=data_end,
         large_print=False,
         paper=settings.booklet.paper,
         palette_css=palette.css_variables(),
