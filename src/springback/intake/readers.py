@@ -140,11 +140,17 @@ def _opening(where: str) -> Iterator[None]:
             code="unreadable")]) from None
 
 
+ROW_NAMES = "(row names)"
+"""The name given to an unnamed first column of row names (R's write.table writes one field
+more on every data line than in the header)."""
+
+
 @dataclass(frozen=True)
 class _CsvFormat:
     encoding: str
     delimiter: str
     header: list[str]
+    row_names: bool = False
 
 
 def _csv_format(path: Path, where: str, notes: list[Problem]) -> _CsvFormat:
@@ -156,12 +162,16 @@ def _csv_format(path: Path, where: str, notes: list[Problem]) -> _CsvFormat:
         raise DataError([error(where, "the file is empty", fix="export the data again",
                                code="empty-file")])
     delimiter = sniff_delimiter(sample)
+    first: list[str] = []
     try:
         head = sample.lstrip("\r\n")
-        header = next(csv.reader(io.StringIO(head, newline=""), delimiter=delimiter), [])
+        reader = csv.reader(io.StringIO(head, newline=""), delimiter=delimiter)
+        header = next(reader, [])
+        first = next((r for r in reader if r), [])
     except csv.Error:
         header = []
-    return _CsvFormat(encoding, delimiter, [h.strip() for h in header])
+    row_names = bool(header) and len(first) == len(header) + 1 and bool(first[0].strip())
+    return _CsvFormat(encoding, delimiter, [h.strip() for h in header], row_names)
 
 
 SAMPLE_CHARS = 1 << 20
@@ -218,6 +228,8 @@ def _parse_csv(path: Path, where: str, fmt: _CsvFormat, *, chunksize: int | None
     options: dict[str, Any] = dict(
         sep=fmt.delimiter, dtype=str, index_col=False, keep_default_na=False,
         na_filter=False, engine="c", skip_blank_lines=True, encoding=fmt.encoding)
+    if fmt.row_names:  # the header names every column but the first
+        options |= {"header": 0, "names": [ROW_NAMES, *fmt.header]}
     if chunksize is None:
         frame = _parsing(path, where, fmt, lambda: pd.read_csv(path, nrows=nrows, **options))
         if len(fmt.header) == frame.shape[1]:

@@ -14,6 +14,7 @@ import math
 import numpy as np
 import pandas as pd
 
+from springback.intake.schedule import add_periods, compliance, prompt_days, sent_by_rule
 from springback.metrics._series import Series
 from springback.metrics.results import Estimate, Family
 from springback.model import ParticipantData
@@ -80,16 +81,34 @@ def variance_parts(values: np.ndarray, days: np.ndarray) -> tuple[float, float, 
     return within, between, n_days
 
 
-def scheduled_prompts(data: ParticipantData, settings: StudySettings, days: int) -> float | None:
-    """Prompts sent to the participant: from the quality report, else prompts_per_day x days."""
+def participation(data: ParticipantData, settings: StudySettings) -> tuple[int, float, float]:
+    """Answered prompts, prompts sent and compliance, by the rule of `intake.schedule`.
+
+    Read from the quality report (the study's one computation); a participant record made
+    without one (tests, tools) gets the same rule applied to its answered rows.
+    """
     quality = data.quality
-    if "scheduled" in quality.columns and len(quality):
-        value = pd.to_numeric(quality["scheduled"], errors="coerce").iloc[0]
-        if pd.notna(value) and value > 0:
-            return float(value)
-    if settings.study.prompts_per_day:
-        return float(settings.study.prompts_per_day * days)
-    return None
+    if len(quality) and {"answered", "scheduled", "compliance"} <= set(quality.columns):
+        row = quality.iloc[0]
+        return (int(row["answered"]), float(row["scheduled"]),
+                float(row["compliance"]) if pd.notna(row["compliance"]) else float("nan"))
+    days = participant_schedule(data, settings)
+    answered, sent = days["answered"].sum(), days["sent"].sum(min_count=1)
+    share = compliance(pd.Series([answered]), pd.Series([sent], dtype=float)).iloc[0]
+    return int(answered), float(sent), float(share)
+
+
+def participant_schedule(data: ParticipantData, settings: StudySettings) -> pd.DataFrame:
+    """The participant's prompts sent and answered per day (`model.SCHEDULE_COLUMNS`)."""
+    if len(data.schedule) or len(data.quality):
+        return data.schedule
+    m = data.momentary
+    rows = pd.DataFrame({"participant": m["participant"].astype(str), "time": m["time"],
+                         "scheduled": m["scheduled"], "answered": True})
+    if "period" in m.columns:
+        rows["period"] = m["period"].to_numpy()
+    days = prompt_days(add_periods(rows, settings), settings)
+    return sent_by_rule(days, settings, has_scheduled=False, lists_prompts=False)
 
 
 def describe(series: Series, data: ParticipantData, settings: StudySettings) -> Family:
@@ -97,16 +116,15 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
     m = settings.metrics
     x, n = series.value, series.n
     low, high = series.scale
-    days = int(series.day_index[-1] + 1) if n else 0
-    scheduled = scheduled_prompts(data, settings, days)
+    answered, scheduled, share = participation(data, settings)
     est: dict[str, Estimate] = {"n_answered": Estimate(float(n), n=n, note="answered prompts")}
-    if scheduled:
-        est["compliance"] = Estimate(min(n / scheduled, 1.0), n=int(scheduled),
-                                     note=f"{n} of {scheduled:g} prompts answered")
+    if math.isfinite(share):
+        est["compliance"] = Estimate(share, n=int(scheduled),
+                                     note=f"{answered} of {scheduled:g} prompts answered")
     else:
         est["compliance"] = Estimate.missing(
-            "the number of prompts sent is not known (set study.prompts_per_day or give a "
-            "'scheduled' column)", n=n)
+            "the number of prompts sent is not known (set study.prompts_per_day, or give a "
+            "'scheduled' column that lists unanswered prompts too)", n=n)
     if n >= 2:
         est["mean"] = Estimate(float(x.mean()), n=n)
         est["sd"] = Estimate(float(x.std(ddof=1)), n=n, note="n - 1 denominator")
@@ -143,7 +161,8 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
     return Family(
         estimates=est,
         tables={"series": pd.DataFrame({"local_time": series.local_time, "value": x}),
-                "daily": _daily(series, settings), "diurnal": _diurnal(series)},
+                "daily": _daily(series, participant_schedule(data, settings)),
+                "diurnal": _diurnal(series)},
         params={"typical_low": float(typical[0]), "typical_high": float(typical[1]),
                 "scale_low": low, "scale_high": high,
                 "higher_is_worse": series.higher_is_worse, "variable": series.variable,
@@ -151,14 +170,23 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
     )
 
 
-def _daily(series: Series, settings: StudySettings) -> pd.DataFrame:
-    """Per study day: mean, SD, answered prompts and prompts scheduled (NaN if unknown)."""
+def _daily(series: Series, schedule: pd.DataFrame) -> pd.DataFrame:
+    """Per study day: mean, SD, answered prompts and prompts sent (NaN if unknown).
+
+    Days on which prompts were sent without an answer are rows too (mean NaN, n 0), so the
+    calendar shows the same prompts sent as the compliance.
+    """
     frame = pd.DataFrame({"study_day": series.study_day, "x": series.value})
     g = frame.groupby("study_day", sort=True)["x"]
     out = pd.DataFrame({"mean": g.mean(), "sd": g.std(ddof=1), "n": g.size()}).reset_index()
-    per_day = settings.study.prompts_per_day
-    out["scheduled"] = float(per_day) if per_day else float("nan")
-    return out
+    out["study_day"] = out["study_day"].astype("datetime64[ns]")
+    sent = schedule["sent"].groupby(schedule["study_day"].astype("datetime64[ns]")).sum(
+        min_count=1).rename("scheduled")
+    out = out.merge(sent.rename_axis("study_day").reset_index(), on="study_day", how="outer")
+    out["n"] = out["n"].fillna(0).astype("int64")
+    out["scheduled"] = out["scheduled"].astype(float)
+    return out.sort_values("study_day").reset_index(drop=True)[
+        ["study_day", "mean", "sd", "n", "scheduled"]]
 
 
 def _diurnal(series: Series) -> pd.DataFrame:
