@@ -174,10 +174,13 @@ def test_unlogged_complete_build_is_recovered(tmp_path: Path) -> None:
     project = make_project(tmp_path / "study")
     first = fake_build(project, tmp_path / "s1")
     log, head = project / "archive" / "audit.jsonl", project / "archive" / "audit.head.json"
+    receipts = project / "archive" / "receipts.txt"
     saved_log, saved_head = log.read_bytes(), head.read_bytes()
+    saved_receipts = receipts.read_bytes()
     second = fake_build(project, tmp_path / "s2", text="second")
     log.write_bytes(saved_log)  # as if killed before the 'build' entry was written
     head.write_bytes(saved_head)
+    receipts.write_bytes(saved_receipts)
     assert any(m.what == "not recorded in the audit log" for m in archive.verify(project))
     third = fake_build(project, tmp_path / "s3", text="third")
     assert archive.builds(project) == [first, second, third]

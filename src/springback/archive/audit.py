@@ -9,6 +9,9 @@ Public functions:
     drop_subject(archive: Path, participant: str) -> str | None
     save_note(archive: Path, participant: str, note: str) -> str   # returns the note's SHA-256
     note_text(archive: Path, participant: str, sha: str) -> str
+    receipt(archive: Path) -> str                      # 'entry N, head <16 hex>' of the log now
+    check_head(archive: Path, head: str) -> list[Mismatch]   # does the log still extend it?
+    check_macs(archive: Path) -> list[Mismatch]        # entries' HMACs (key in the environment)
 
 Each line is one JSON object with `seq` (1, 2, ...), `time` (UTC), `kind` and `prev`, the
 SHA-256 of the previous line's bytes; any edit, deletion or reordering breaks the chain.
@@ -17,6 +20,14 @@ lines is caught too. Participants never appear in clear in the log: entries carr
 an HMAC of the id under a random per-participant key kept in `subjects.json`. Erasure deletes
 the key, after which old entries can no longer be linked to the person; free-text review notes
 live beside the key for the same reason, and the log holds only their hash.
+
+Anyone who can write archive/ can re-chain an edited log, so every append also writes a
+receipt line (the entry's number and the first 16 hex digits of its hash, the log's head) to
+`archive/receipts.txt`, and the command line prints it. A receipt kept elsewhere (e-mailed to
+the ethics board, stored with the study's records) is an anchor: `springback verify --head
+HASH` fails unless the log still holds that very entry, so a rewrite, rollback or truncation at
+or before it shows. With SPRINGBACK_AUDIT_KEY set, each entry also carries `mac`, an HMAC-SHA256
+of the entry under that key; without the key nobody can add or re-sign entries unnoticed.
 """
 
 from __future__ import annotations
@@ -25,6 +36,7 @@ import hashlib
 import hmac
 import json
 import os
+import re
 import secrets
 from dataclasses import dataclass
 from datetime import UTC, datetime
@@ -38,7 +50,12 @@ LOG = "audit.jsonl"
 HEAD = "audit.head.json"
 SUBJECTS = "subjects.json"
 LOCK = ".audit.lock"
+RECEIPTS = "receipts.txt"
 GENESIS = "0" * 64
+KEY_VARIABLE = "SPRINGBACK_AUDIT_KEY"
+SHORT = 16
+"""Hex digits of an entry's hash that a receipt shows."""
+MIN_KEY = 16
 
 
 @dataclass(frozen=True)
@@ -95,6 +112,91 @@ def _write_head(archive: Path, lines: list[bytes]) -> None:
                                                    "last": last}))
 
 
+def audit_key() -> bytes | None:
+    """The HMAC key from SPRINGBACK_AUDIT_KEY (None when unset); a short key is refused."""
+    raw = os.environ.get(KEY_VARIABLE, "")
+    if not raw:
+        return None
+    if len(raw) < MIN_KEY:
+        raise ArchiveError(f"{KEY_VARIABLE} is set but holds only {len(raw)} characters; use a "
+                           f"secret of at least {MIN_KEY} (for example the output of `python -c "
+                           "'import secrets; print(secrets.token_hex(32))'`), or unset it")
+    return raw.encode("utf-8")
+
+
+def entry_mac(key: bytes, entry: dict[str, Any]) -> str:
+    """The HMAC-SHA256 of an entry (without its own `mac` field) under the key."""
+    body = {k: v for k, v in entry.items() if k != "mac"}
+    return hmac.new(key, _line(body), hashlib.sha256).hexdigest()
+
+
+def _write_receipt(archive: Path, entry: dict[str, Any], raw: bytes) -> None:
+    line = (f"{entry['time']}  entry {entry['seq']}  {entry['kind']}  head "
+            f"{sha256_bytes(raw)[:SHORT]}\n")
+    fd = os.open(archive / RECEIPTS, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+    try:
+        os.write(fd, line.encode("utf-8"))
+    finally:
+        os.close(fd)
+
+
+def receipt(archive: Path) -> str:
+    """The log's head as a receipt: 'entry N, head <first 16 hex digits of its hash>'."""
+    lines, _ = _raw_lines(Path(archive))
+    if not lines:
+        return "the audit log is empty"
+    return f"entry {len(lines)}, head {sha256_bytes(lines[-1])[:SHORT]}"
+
+
+def check_head(archive: Path, head: str) -> list[Mismatch]:
+    """Whether the log still holds the entry a receipt names (the chain check does the rest)."""
+    wanted = head.strip().lower().removeprefix("head").strip()
+    if not re.fullmatch(r"[0-9a-f]{8,64}", wanted):
+        raise ArchiveError(f"--head takes the hash a receipt shows (8 to 64 hex digits, such as "
+                           f"'3f2a9c1b7d4e5f60'), found '{head}'")
+    lines, _ = _raw_lines(Path(archive))
+    for raw in lines:
+        if sha256_bytes(raw).startswith(wanted):
+            return []
+    return [Mismatch(f"{Path(archive).name}/{LOG}", f"the entry with head {wanted}",
+                     f"{len(lines)} entries, none with that head",
+                     "the log no longer extends this receipt: it was rewritten, rolled back or "
+                     "cut short at or before that entry")]
+
+
+def check_macs(archive: Path) -> list[Mismatch]:
+    """With SPRINGBACK_AUDIT_KEY set: every signed entry's HMAC, and no unsigned entry after one."""
+    key = audit_key()
+    if key is None:
+        return []
+    name = f"{Path(archive).name}/{LOG}"
+    problems: list[Mismatch] = []
+    signed = False
+    lines, _ = _raw_lines(Path(archive))
+    for i, raw in enumerate(lines, start=1):
+        try:
+            entry = json.loads(raw)
+        except ValueError:
+            continue  # the chain check names it
+        if not isinstance(entry, dict):
+            continue
+        if "mac" not in entry:
+            if signed:
+                problems.append(Mismatch(f"{name} line {i}", "an entry signed with the key",
+                                         "no signature", "an entry was added without the key"))
+            continue
+        signed = True
+        if not hmac.compare_digest(str(entry["mac"]), entry_mac(key, entry)):
+            problems.append(Mismatch(f"{name} line {i}", "a signature made with the key",
+                                     "a signature that does not match",
+                                     "the entry was changed or signed with another key"))
+    if lines and not signed:
+        problems.append(Mismatch(name, f"entries signed with {KEY_VARIABLE}", "none signed",
+                                 "the key is set but no entry carries a signature (entries are "
+                                 "signed only while the key is set)"))
+    return problems
+
+
 def _settle(archive: Path) -> list[bytes]:
     """Repair what an interrupted append leaves behind, or refuse on a damaged log."""
     lines, tail = _raw_lines(archive)
@@ -119,6 +221,7 @@ def append(archive: Path, kind: str, fields: dict[str, Any],
     """Append one chained entry (under the log's own lock) and return it."""
     archive = Path(archive)
     archive.mkdir(parents=True, exist_ok=True)
+    key = audit_key()
     with file_lock(archive / LOCK, wait_seconds=60.0, what="another audit-log write"):
         lines = _settle(archive)
         entry = dict(fields)
@@ -128,6 +231,9 @@ def append(archive: Path, kind: str, fields: dict[str, Any],
             kind=kind,
             prev=sha256_bytes(lines[-1]) if lines else GENESIS,
         )
+        entry.pop("mac", None)
+        if key is not None:
+            entry["mac"] = entry_mac(key, entry)
         raw = _line(entry)
         fd = os.open(archive / LOG, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
         try:
@@ -136,6 +242,7 @@ def append(archive: Path, kind: str, fields: dict[str, Any],
         finally:
             os.close(fd)
         _write_head(archive, [*lines, raw])
+        _write_receipt(archive, entry, raw)
     return entry
 
 

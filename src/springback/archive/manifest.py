@@ -11,7 +11,8 @@ Public functions (build.py calls these while holding a `fsutil.BuildLock`):
     load_manifest(project: Path, build_id: str) -> dict ; latest_manifest(project) -> dict | None
     trusted_manifest(project: Path) -> dict | None  # the latest, only if the log vouches for it
     verify(project: Path, rebuild: bool = False,
-           rebuild_fn: Callable[[Path], Path | None] | None = None) -> list[Mismatch]
+           rebuild_fn: Callable[[Path], Path | None] | None = None,
+           head: str | None = None) -> list[Mismatch]
     expired_builds(project: Path, settings: StudySettings, now: datetime | None = None)
         -> list[Problem]                        # warnings for `check`
 
@@ -39,7 +40,14 @@ from pathlib import Path, PurePosixPath
 from typing import Any
 
 from springback import __version__
-from springback.archive.audit import Mismatch, append, check_chain, read_entries, utc_stamp
+from springback.archive.audit import (
+    Mismatch,
+    append,
+    check_chain,
+    check_macs,
+    read_entries,
+    utc_stamp,
+)
 from springback.archive.manifest_page import manifest_html
 from springback.archive.verify import (
     MANIFEST,
@@ -167,7 +175,7 @@ def trusted_manifest(project: Path) -> dict[str, Any] | None:
     is a log whose chain is broken. None before the first build.
     """
     archive = project_dirs(project).archive
-    broken = check_chain(archive)
+    broken = check_chain(archive) + check_macs(archive)
     if broken:
         raise ArchiveError(f"the audit log is damaged ({broken[0].message()}), so no manifest "
                            "can be trusted; nothing was let out. Run `springback verify` to see "
@@ -307,8 +315,11 @@ def booklet_version(project: Path, participant: str, fingerprint: str) -> int:
 
 
 def verify(project: Path, rebuild: bool = False,
-           rebuild_fn: Callable[[Path], Path | None] | None = None) -> list[Mismatch]:
+           rebuild_fn: Callable[[Path], Path | None] | None = None,
+           head: str | None = None) -> list[Mismatch]:
     """Re-hash every archived file against its manifest and the log; optionally rebuild.
+
+    `head` is a receipt's hash: the log must still hold that entry (see `audit.check_head`).
 
     With `rebuild`, `rebuild_fn(project_copy)` must build the copy it is given (the command line
     passes springback.build.build); the last build's outputs are compared byte for byte.
@@ -316,7 +327,7 @@ def verify(project: Path, rebuild: bool = False,
     if rebuild and rebuild_fn is None:
         raise ArchiveError("a rebuild needs the build function; use `springback verify "
                            "--rebuild`")
-    return verify_archive(project_dirs(project).archive, rebuild_fn if rebuild else None)
+    return verify_archive(project_dirs(project).archive, rebuild_fn if rebuild else None, head)
 
 
 def expired_builds(project: Path, settings: StudySettings,

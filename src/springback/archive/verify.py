@@ -2,8 +2,8 @@
 
 Public functions (`archive.verify` is the entry point most callers want):
 
-    verify_archive(archive: Path, rebuild_fn: Callable[[Path], Path | None] | None = None)
-        -> list[Mismatch]
+    verify_archive(archive: Path, rebuild_fn: Callable[[Path], Path | None] | None = None,
+                   head: str | None = None) -> list[Mismatch]
     folder_mismatches(folder: Path, manifest: dict) -> list[Mismatch]
     expected_manifests(entries: list[dict]) -> dict[str, str]     # build id -> manifest SHA-256
     read_json(path: Path) -> dict                                  # {} when unreadable
@@ -13,18 +13,35 @@ from __future__ import annotations
 
 import json
 import os
+import re
 import shutil
 import tempfile
 from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Any
 
-from springback.archive.audit import Mismatch, check_chain, read_entries
+from springback.archive.audit import (
+    HEAD,
+    LOCK,
+    LOG,
+    RECEIPTS,
+    SHORT,
+    SUBJECTS,
+    Mismatch,
+    _raw_lines,
+    _token,
+    check_chain,
+    check_head,
+    check_macs,
+    read_entries,
+)
 from springback.errors import ArchiveError
-from springback.files import project_dirs, sha256_file
+from springback.files import LOCK_FILE, OLD, PARTIAL, project_dirs, sha256_bytes, sha256_file
 
 MANIFEST = "manifest.json"
 MANIFEST_HTML = "manifest.html"
+OWN_FILES = {LOG, HEAD, SUBJECTS, LOCK, RECEIPTS, LOCK_FILE}
+"""The files springback keeps at the top of archive/ besides the recorded build folders."""
 
 
 def walk(folder: Path) -> Iterator[Path]:
@@ -86,18 +103,126 @@ def folder_mismatches(folder: Path, manifest: dict[str, Any]) -> list[Mismatch]:
     return out
 
 
-def verify_archive(archive: Path,
-                   rebuild_fn: Callable[[Path], Path | None] | None = None) -> list[Mismatch]:
-    """Check the log chain, every recorded build's files, and (with rebuild_fn) the last build."""
+def stray_entries(archive: Path, expected: dict[str, str]) -> list[Mismatch]:
+    """Anything at the top of archive/ that is neither springback's own file nor a build."""
+    out: list[Mismatch] = []
+    for entry in sorted(archive.iterdir()):
+        name = entry.name
+        if entry.is_symlink():
+            out.append(Mismatch(name, "no links", "a link", "springback makes no links in "
+                                "archive/; move it out of archive/"))
+        elif name in OWN_FILES and entry.is_file():
+            continue
+        elif entry.is_dir() and (name in expected or not name.startswith(".")):
+            continue  # a recorded build, or a visible folder named below as unrecorded
+        elif PARTIAL in name or OLD in name:
+            out.append(Mismatch(name, "no unfinished writes", "one left by a stopped write",
+                                "a build or write was stopped here; the next build removes "
+                                "it, or delete it yourself"))
+        else:
+            kind = "folder" if entry.is_dir() else "file"
+            out.append(Mismatch(name, "only springback's own files and recorded builds",
+                                f"an unknown {kind}", "springback did not make this; move it "
+                                "out of archive/"))
+    return out
+
+
+def receipt_mismatches(archive: Path) -> list[Mismatch]:
+    """Each line of archive/receipts.txt must name an entry the log still holds, unchanged."""
+    path = archive / RECEIPTS
+    if not path.is_file():
+        return []
+    hashes = [sha256_bytes(raw) for raw in _raw_lines(archive)[0]]
+    out: list[Mismatch] = []
+    name = f"{archive.name}/{RECEIPTS}"
+    for n, text in enumerate(path.read_text(encoding="utf-8", errors="replace").splitlines(), 1):
+        found = re.search(rf"entry (\d+)\s+\S+\s+head ([0-9a-f]{{{SHORT}}})", text)
+        if found is None:
+            out.append(Mismatch(f"{name} line {n}", "a receipt", "other text",
+                                "the receipts file was edited"))
+            continue
+        seq, head = int(found[1]), found[2]
+        if seq > len(hashes) or not hashes[seq - 1].startswith(head):
+            out.append(Mismatch(f"{name} line {n}", f"entry {seq} with head {head}",
+                                "no such entry" if seq > len(hashes) else
+                                f"head {hashes[seq - 1][:SHORT]}",
+                                "the log no longer holds the entry this receipt names: it was "
+                                "rewritten, rolled back or cut short"))
+    return out
+
+
+def subject_mismatches(archive: Path, entries: list[dict[str, Any]]) -> list[Mismatch]:
+    """subjects.json: private, readable, notes unchanged, a key for every token the log uses."""
+    path = archive / SUBJECTS
+    name = f"{archive.name}/{SUBJECTS}"
+    out: list[Mismatch] = []
+    known: Any = {}
+    if path.exists():
+        if os.name == "posix" and path.stat().st_mode & 0o077:
+            out.append(Mismatch(name, "mode 0600 (only you)", oct(path.stat().st_mode & 0o777),
+                                "the participants' keys and review notes are readable by others"))
+        try:
+            known = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            known = None
+        if not isinstance(known, dict):
+            return [*out, Mismatch(name, "the participants' keys", "unreadable text",
+                                   "the key file was damaged; restore it from a backup")]
+    tokens: dict[str, dict[str, Any]] = {}
+    for pid, rec in known.items():
+        key = rec.get("key") if isinstance(rec, dict) else None
+        if not isinstance(key, str) or not re.fullmatch(r"[0-9a-f]{64}", key):
+            out.append(Mismatch(name, "a 64-digit key per participant", "a damaged entry",
+                                "a participant's key was edited"))
+            continue
+        notes = rec.get("notes", {})
+        for sha, text in notes.items() if isinstance(notes, dict) else ():
+            if sha256_bytes(str(text).encode("utf-8")) != sha:
+                out.append(Mismatch(name, f"the review note with hash {sha[:SHORT]}",
+                                    "other text", "a review note was changed"))
+        tokens[_token(key, str(pid))] = notes if isinstance(notes, dict) else {}
+    erased = {e.get("subject") for e in entries if e.get("kind") == "erase"}
+    missing: set[str] = set()
+    for i, e in enumerate(entries, start=1):
+        refs = [e["subject"]] if isinstance(e.get("subject"), str) else []
+        refs += [t for t in e.get("released", []) if isinstance(t, str)]
+        for token in refs:
+            if token in erased or token in missing:
+                continue
+            if token not in tokens:
+                missing.add(token)
+                out.append(Mismatch(name, f"the key of the participant in log entry {i}", "none",
+                                    "a participant's key was deleted or replaced other than by "
+                                    "`springback forget`"))
+            elif e.get("note_sha256") and e["note_sha256"] not in tokens[token]:
+                out.append(Mismatch(name, f"the review note of log entry {i}", "none",
+                                    "a review note was deleted other than by `springback "
+                                    "forget`"))
+    return out
+
+
+def verify_archive(archive: Path, rebuild_fn: Callable[[Path], Path | None] | None = None,
+                   head: str | None = None) -> list[Mismatch]:
+    """Check the log chain, every recorded build's files, and (with rebuild_fn) the last build.
+
+    With `head` (a receipt's hash) the log must still hold that entry; SPRINGBACK_AUDIT_KEY,
+    when set, checks every entry's signature.
+    """
     archive = Path(archive)
     if not archive.is_dir():
         return [Mismatch(archive.name, "an archive folder", "none", "nothing has been built")]
     problems = check_chain(archive)
+    if head is not None:
+        problems += check_head(archive, head)
+    problems += check_macs(archive)
+    problems += receipt_mismatches(archive)
     try:
         entries = read_entries(archive)
     except ArchiveError:
         entries = []
+    problems += subject_mismatches(archive, entries)
     expected = expected_manifests(entries)
+    problems += stray_entries(archive, expected)
     for build_id, sha in expected.items():
         folder = archive / build_id
         manifest = folder / MANIFEST

@@ -159,10 +159,24 @@ def build(project: Path, out_dir: Path | None, participants: tuple[str, ...], jo
     show_table(out, summary_table(report))
     out.print(f"Booklets are in {report.out_dir / 'booklets'}; the overview is "
               f"{report.out_dir / 'index.html'} (archived as build {report.build_id}).")
+    print_receipt(project)
     if report.failed:
         err.print(f"{len(report.failed)} participant(s) failed (reasons above); the others were "
                   "built. Build again after fixing: unchanged participants are not redone.")
         sys.exit(2)
+
+
+def print_receipt(project: Path) -> None:
+    """Print the audit log's head as a receipt (each one is also in archive/receipts.txt)."""
+    from springback.archive.audit import RECEIPTS, receipt
+    from springback.files import project_dirs
+
+    archive = project_dirs(project).archive
+    if not (archive / "audit.jsonl").is_file():
+        return
+    out.print(f"Receipt: audit log {receipt(archive)}. Keep it outside the project (each receipt "
+              f"is also added to archive/{RECEIPTS}); `springback verify {project} --head HASH` "
+              "proves the log still holds it.")
 
 
 def summary_table(report: Any) -> Table:

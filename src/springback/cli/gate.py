@@ -12,7 +12,7 @@ from typing import Any
 import click
 from rich.table import Table
 
-from springback.cli.core import PROJECT, _esc, err, out, reports_errors, show_table
+from springback.cli.core import PROJECT, _esc, err, out, print_receipt, reports_errors, show_table
 
 
 def register(main: click.Group) -> None:
@@ -66,6 +66,7 @@ def review(project: Path, participant: str | None, decision: str | None, rule: s
     word = "approved" if decision == "approve" else "rejected"
     out.print(f"{_esc(participant)}: booklet version {entry.get('version')} {word} by "
               f"{_esc(entry['by'])} at {entry['time']} (recorded in the audit log).")
+    print_receipt(project)
 
 
 def _list_review(project: Path, gate: Any, actions: Any) -> None:
@@ -111,14 +112,17 @@ def release(project: Path, by: str) -> None:
               f"{report.folder} (see dispatch.csv).")
     for pid, reason in report.withheld:
         out.print(f"  not released: {_esc(pid)} ({_esc(reason)})")
+    print_receipt(project)
 
 
 @click.command()
 @click.argument("project", type=PROJECT)
 @click.option("--rebuild", is_flag=True,
               help="Also rebuild the last build from its archived inputs and compare bytes.")
+@click.option("--head", default=None, metavar="HASH",
+              help="A receipt's hash: fail unless the audit log still holds that entry.")
 @reports_errors
-def verify(project: Path, rebuild: bool) -> None:
+def verify(project: Path, rebuild: bool, head: str | None) -> None:
     """Re-hash every archived file and the audit log; exit 1 on any mismatch."""
     from springback.archive.manifest import verify as run_verify
 
@@ -127,13 +131,14 @@ def verify(project: Path, rebuild: bool) -> None:
 
         return build(copy, jobs=1).out_dir
 
-    problems = run_verify(project, rebuild=rebuild, rebuild_fn=rebuild_fn)
+    problems = run_verify(project, rebuild=rebuild, rebuild_fn=rebuild_fn, head=head)
     for m in problems:
         err.print(f"[bold red]mismatch[/] {_esc(m.message())}")
     if problems:
         err.print(f"{len(problems)} mismatch(es): the archive does not match its records.")
         sys.exit(1)
     extra = " and the rebuild gave the same bytes" if rebuild else ""
+    extra += f", and the log still extends receipt {_esc(head.strip())}" if head else ""
     out.print(f"The archive matches its manifests and the audit log{extra}.")
 
 
@@ -154,6 +159,7 @@ def forget(project: Path, participant: str, by: str, yes: bool) -> None:
     out.print(f"Erased {_esc(participant)}: {report.files_removed} file(s) removed and "
               f"{report.files_rewritten} rewritten in {len(report.builds)} archived build(s) "
               "and out/; the audit log holds only hashes.")
+    print_receipt(project)
     for rel in report.still_in_data:
         err.print(f"[yellow]warning[/] {_esc(rel)} still holds this participant; remove their "
                   "rows before the next build (springback never changes data/)")

@@ -12,7 +12,7 @@ from pathlib import Path
 import click
 from rich.table import Table
 
-from springback.cli.core import PROJECT, _esc, err, out, reports_errors
+from springback.cli.core import PROJECT, _esc, err, out, print_receipt, reports_errors
 
 FILE = click.Path(dir_okay=False, path_type=Path)
 FOLDER = click.Path(file_okay=False, path_type=Path)
@@ -63,6 +63,8 @@ def send(project: Path, dry_run: bool, eml_dir: Path | None, passphrases_out: Pa
     for pid, reason in report.refused:
         table.add_row(pid, "", "not sent", _esc(reason))
     out.print(table)
+    if not dry_run:
+        print_receipt(project)
     if report.new_passphrases and report.passphrases_file is not None:
         out.print(f"{len(report.new_passphrases)} new passphrase(s) written to "
                   f"{report.passphrases_file}: give each person theirs by another channel "
