@@ -49,6 +49,7 @@ from springback.archive.audit import (
     utc_stamp,
 )
 from springback.archive.manifest_page import manifest_html
+from springback.archive.roster_copy import strip_contacts
 from springback.archive.verify import (
     MANIFEST,
     MANIFEST_HTML,
@@ -234,6 +235,8 @@ def record_build(project: Path, staging_out: Path, inputs: list[Path], settings:
                         | ({settings_file} if settings_file.exists() else set()))
     named_templates = _template_names(list(templates), root)
     keep = settings.archive.keep_inputs == "copy"
+    roster_path = Path(settings.data.participants)
+    roster_path = (roster_path if roster_path.is_absolute() else root / roster_path).resolve()
     with staging_dir(archive / build_id) as folder:
         files: dict[str, str] = {}
         for path in walk(Path(staging_out)):
@@ -247,12 +250,20 @@ def record_build(project: Path, staging_out: Path, inputs: list[Path], settings:
             rel = _relative(path, root)
             digest = sha256_file(path)
             archived = _archived_name(rel) if keep else None
+            record: dict[str, Any] = {"sha256": digest, "bytes": path.stat().st_size}
+            stripped = (strip_contacts(path) if archived and path == roster_path
+                        and not settings.archive.keep_contacts else None)
+            if stripped is not None and stripped.dropped:
+                record["contact_columns_left_out"] = list(stripped.dropped)
+                archived = archived if stripped.data is not None else None
             if archived:
                 (folder / archived).parent.mkdir(parents=True, exist_ok=True)
-                shutil.copyfile(path, folder / archived)
-                files[archived] = digest
-            input_records[rel] = {"sha256": digest, "bytes": path.stat().st_size,
-                                  "archived": archived}
+                if stripped is not None and stripped.dropped and stripped.data is not None:
+                    (folder / archived).write_bytes(stripped.data)
+                else:
+                    shutil.copyfile(path, folder / archived)
+                files[archived] = sha256_file(folder / archived) if stripped else digest
+            input_records[rel] = {**record, "archived": archived}
         if (folder / "inputs").is_dir():
             make_private(folder / "inputs")  # the participants' own data and contact details
         plain_settings = normalised(settings)

@@ -14,6 +14,7 @@ from springback.model import Study
 def study_problems(project: Path, study: Study) -> list[Problem]:
     """Checks that need the loaded study: referral texts, catalogues, retention."""
     from springback.archive.manifest import expired_builds
+    from springback.archive.roster_copy import contact_problems
     from springback.i18n.check import check_languages
     from springback.i18n.language import catalogue_problems
     from springback.safety.rules import referral_problems
@@ -25,6 +26,7 @@ def study_problems(project: Path, study: Study) -> list[Problem]:
     undeclared = set(wanted["language"].astype(str)) - set(study.settings.study.languages)
     problems += catalogue_problems(sorted(undeclared), where="data/participants.csv: language")
     problems += expired_builds(project, study.settings)
+    problems += contact_problems(project, study.settings)
     return problems
 
 

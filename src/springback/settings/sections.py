@@ -296,6 +296,10 @@ class Archive(Section):
         "copy", description="'copy' keeps each input file in the archive; 'hash' only its hash."
     )
     retention_years: float = Field(10.0, gt=0, description="How long archived builds are kept.")
+    keep_contacts: bool = Field(
+        False, description="Keep the roster's contact columns (e-mail, phone, address, names) "
+        "in archived copies; by default they are left out."
+    )
 
 
 class Delivery(Section):
