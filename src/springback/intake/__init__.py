@@ -6,6 +6,8 @@ and returns the problems instead. Input files are only ever opened for reading.
 
 from __future__ import annotations
 
+import errno
+import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -64,7 +66,7 @@ class CheckReport:
 
 def load_study(project: Path, *, strict: bool = False) -> Study:
     """Read and check a project folder; raise with every problem if any is an error."""
-    study, problems = _load(Path(project))
+    study, problems = _working(project)
     if study is not None:
         study.index()  # made now, among the study's other lasting objects, not after them
     release_free_memory()  # checking needed several times the data's size; keep only the data
@@ -78,7 +80,9 @@ def load_study(project: Path, *, strict: bool = False) -> Study:
 def check_study(project: Path, *, strict: bool = False) -> CheckReport:
     """Check a project folder and return every problem found; never raises for user mistakes."""
     try:
-        study, problems = _load(Path(project))
+        study, problems = _working(project)
+    except DataError as exc:
+        return CheckReport(tuple(exc.problems), None, strict)
     except SettingsError as exc:
         return CheckReport(tuple(exc.problems), None, strict)
     if any(p.is_error for p in problems):
@@ -112,6 +116,25 @@ def read_prompts(project: Path) -> pd.DataFrame:
     for key, item in settings.items.items():
         out[key] = as_number(frame[item.column or key], data.missing_values)[0]
     return out
+
+
+def _working(project: Path) -> tuple[Study | None, list[Problem]]:
+    """`_load`, with a failure of the private working files (a full disk) told plainly."""
+    try:
+        return _load(Path(project))
+    except OSError as exc:
+        if exc.errno in (errno.ENOSPC, errno.EDQUOT):
+            folder = tempfile.gettempdir()
+            raise DataError([error(
+                "working files", f"the study's working files could not be written in "
+                f"{folder}: {exc.strerror or exc}",
+                fix="free some space there (or set TMPDIR to a folder with more room) and run "
+                "the command again; no input file was changed", code="working-files")]) from None
+        name = f"{exc.filename}: " if exc.filename else ""
+        raise DataError([error(
+            "files", f"a file could not be read or written: {name}{exc.strerror or exc}",
+            fix="check that the folder is readable and writable, then run the command again",
+            code="working-files")]) from None
 
 
 def _path(project: Path, path: Path) -> Path:

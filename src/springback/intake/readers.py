@@ -18,6 +18,11 @@ import numpy as np
 import pandas as pd
 
 from springback.errors import DataError, Problem, error, warning
+from springback.intake.cells import as_number, as_text, missing_mask
+from springback.intake.lines import short_rows
+
+__all__ = ["Table", "TableChunks", "as_number", "as_text", "labelled", "missing_mask",
+           "read_chunks", "read_table", "sniff_delimiter"]
 
 FORMATS = {
     ".csv": "CSV", ".tsv": "CSV", ".txt": "CSV",
@@ -26,7 +31,8 @@ FORMATS = {
     ".sav": "SPSS", ".zsav": "SPSS",
 }
 DELIMITERS = (",", ";", "\t", "|")
-_DECIMAL_COMMA = re.compile(r"^[+-]?\d+,\d+$")
+MAX_COLUMNS = 10_000
+"""Widest header read; wider files are refused (checking them would take minutes)."""
 
 
 @dataclass(frozen=True)
@@ -73,6 +79,8 @@ def read_table(path: Path, where: str, *, sheet: str | None = None) -> Table:
         if kind == "CSV":
             csv_format = _csv_format(path, where, notes)
             frame = _parse_csv(path, where, csv_format)
+            short_rows(path, where, csv_format.encoding, csv_format.delimiter,
+                       len(csv_format.header) + csv_format.row_names)
         else:
             frame, labels = _read_binary(path, where, kind, sheet)
     frame.columns = [str(c).strip() for c in frame.columns]
@@ -96,6 +104,8 @@ def read_chunks(path: Path, where: str, *, sheet: str | None = None,
     with _opening(where):
         csv_format = _csv_format(path, where, notes)
         head = _parse_csv(path, where, csv_format, nrows=0)
+        short_rows(path, where, csv_format.encoding, csv_format.delimiter,
+                   len(csv_format.header) + csv_format.row_names)
     columns = [str(c).strip() for c in head.columns]
     _check_header(pd.DataFrame(columns=columns), where)
 
@@ -170,7 +180,15 @@ def _csv_format(path: Path, where: str, notes: list[Problem]) -> _CsvFormat:
         first = next((r for r in reader if r), [])
     except csv.Error:
         header = []
-    row_names = bool(header) and len(first) == len(header) + 1 and bool(first[0].strip())
+    if len(header) > MAX_COLUMNS:
+        raise DataError([error(
+            where, f"the header has {len(header):,} columns; at most {MAX_COLUMNS:,} can be read",
+            expected=f"a header line of at most {MAX_COLUMNS:,} "
+            f"'{_name(delimiter)}'-separated names",
+            fix="export only the columns the study uses (or check the delimiter)",
+            code="too-many-columns")])
+    # R's write.table: one field more on data lines than in the header, numbered from 1.
+    row_names = bool(header) and len(first) == len(header) + 1 and first[0].strip() == "1"
     return _CsvFormat(encoding, delimiter, [h.strip() for h in header], row_names)
 
 
@@ -366,6 +384,10 @@ def _short(exc: Exception) -> str:
 
 def _check_header(frame: pd.DataFrame, where: str) -> None:
     names = list(frame.columns)
+    if len(names) > MAX_COLUMNS:
+        raise DataError([error(
+            where, f"the file has {len(names):,} columns; at most {MAX_COLUMNS:,} can be read",
+            fix="export only the columns the study uses", code="too-many-columns")])
     _check_duplicate_names(names, where)
     if frame.shape[1] == 0:
         raise DataError([error(where, "the file has no columns", fix="export the data again",
@@ -384,54 +406,6 @@ def _check_duplicate_names(names: Iterable[str], where: str) -> None:
             where, "column names appear more than once: " + ", ".join(f"'{n}'" for n in twice),
             expected="each column name once", fix="rename or remove the extra columns",
             code="duplicate-column")])
-
-
-# ---------------------------------------------------------------------------------------
-# Cell conversion (shared by every file kind, so all formats give identical frames)
-
-
-def _strings(values: pd.Series) -> pd.Series:
-    """Cells as trimmed text (pandas' string dtype; missing cells stay missing)."""
-    if not isinstance(values.dtype, pd.StringDtype):
-        values = values.astype("str")
-    return values.str.strip()
-
-
-def missing_mask(values: pd.Series, missing: Iterable[str]) -> pd.Series:
-    """True where a cell holds no value (empty, NaN or one of the missing-value texts)."""
-    if values.dtype.kind in "biufcmM":
-        return values.isna()
-    text = _strings(values)
-    return text.isna() | text.isin(list(missing))
-
-
-def as_text(values: pd.Series, missing: Iterable[str]) -> pd.Series:
-    """Cells as trimmed text (numbers without a spurious '.0'); missing cells become NA."""
-    if values.dtype.kind in "fc":
-        whole = values.notna() & (values == np.round(values))
-        out = values.astype(object).where(~whole, values.where(whole).astype("Int64"))
-        text = _strings(out.where(values.notna()))
-    elif values.dtype.kind == "b":
-        text = values.map({True: "yes", False: "no"}).astype("str")
-    else:
-        text = _strings(values)
-    return text.mask(text.isna() | text.isin(list(missing)))
-
-
-def as_number(values: pd.Series, missing: Iterable[str]) -> tuple[pd.Series, pd.Series]:
-    """Cells as floats, and a mask of cells that hold something that is not a number."""
-    if values.dtype.kind in "biuf":
-        return values.astype("float64"), pd.Series(False, index=values.index)
-    text = _strings(values)
-    gone = text.isna() | text.isin(list(missing))
-    # A decimal comma (2,5) is what European exports write; a thousands comma never occurs
-    # on a rating scale, so reading it as a decimal point is safe here.
-    if bool(text.str.contains(",", regex=False).any()):
-        comma = text.str.fullmatch(_DECIMAL_COMMA.pattern).fillna(False).astype(bool)
-        text = text.where(~comma, text.str.replace(",", ".", regex=False))
-    number = pd.to_numeric(text.mask(gone), errors="coerce").astype("float64")
-    bad = number.isna() & ~gone
-    return number, bad.astype(bool)
 
 
 def labelled(table: Table, column: str) -> pd.Series:
