@@ -2,7 +2,10 @@
 
 A `fork` pool hangs once the chart engine has run in the parent, so local pools always use
 `spawn`. Each worker process runs `initializer` once (the build warms its chart and PDF engines
-there). Jobs are taken from an iterable and submitted a few at a time, and every result passes
+there), after tying its life to the parent's: on Linux the kernel sends it SIGTERM when the
+parent dies (PR_SET_PDEATHSIG), and everywhere a watchdog thread ends it once its parent
+process is gone, so a killed build leaves no workers (nor, with them, the resource tracker).
+Jobs are taken from an iterable and submitted a few at a time, and every result passes
 through `on_result` as soon as it arrives (the build writes its files to disk there), so memory
 stays flat as the study grows. Results are returned in the order of the jobs, so the output does
 not depend on scheduling.
@@ -10,9 +13,15 @@ not depend on scheduling.
 
 from __future__ import annotations
 
+import ctypes
+import functools
 import itertools
 import multiprocessing
 import os
+import signal
+import sys
+import threading
+import time
 from collections.abc import Callable, Iterable, Iterator, Sized
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import Any, TypeVar
@@ -44,6 +53,33 @@ def stage(name: str) -> None:
     # the parent only sees 'queued' and the finish.
     if _stage_report is not None:
         _stage_report(name)
+
+
+PARENT_CHECK_SECONDS = 0.5
+_PR_SET_PDEATHSIG = 1
+
+
+def _watch_parent(parent: int) -> None:
+    while True:
+        time.sleep(PARENT_CHECK_SECONDS)
+        if os.getppid() != parent:
+            os._exit(1)  # the build is gone: nobody will read this worker's results
+
+
+def _worker_start(parent: int, initializer: Callable[[], None] | None) -> None:
+    """Run first in every worker: end with the parent, then the caller's initializer."""
+    if sys.platform.startswith("linux"):
+        try:
+            libc = ctypes.CDLL(None, use_errno=True)
+            libc.prctl(_PR_SET_PDEATHSIG, signal.SIGTERM, 0, 0, 0)
+        except (OSError, AttributeError):
+            pass  # the watchdog below still ends the worker
+    if os.getppid() != parent:
+        os._exit(1)  # the parent died before the signal was set up
+    threading.Thread(target=_watch_parent, args=(parent,), daemon=True,
+                     name="springback-parent-watch").start()
+    if initializer is not None:
+        initializer()
 
 
 def _participant(job: Any) -> str:
@@ -114,7 +150,8 @@ def _run_pool(jobs: Iterable[J], fn: Callable[[J], R], n: int, report: Report,
     names: dict[int, str] = {}
     queue: Iterator[tuple[int, J]] = enumerate(jobs)
     ctx = multiprocessing.get_context("spawn")
-    with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=initializer) as pool:
+    start = functools.partial(_worker_start, os.getpid(), initializer)
+    with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=start) as pool:
         pending: dict[Future[R], int] = {}
         more = True
         # A bounded number in flight: jobs (and their results) do not pile up in memory.
