@@ -7,6 +7,7 @@ builds the example only once.
 from __future__ import annotations
 
 import fcntl
+import os
 import shutil
 from pathlib import Path
 
@@ -38,7 +39,11 @@ def built_example(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """A copy of the example study, built once for the whole session (read-only for tests)."""
     from springback.build.pipeline import build
 
-    shared = tmp_path_factory.getbasetemp().parent / "springback-built-example"
+    # Under xdist every worker's base folder sits in the run's own folder, which the workers
+    # share; a run without xdist keeps the build in its own base folder (never a stale one).
+    base = tmp_path_factory.getbasetemp()
+    shared = (base.parent if os.environ.get("PYTEST_XDIST_WORKER") else base) / \
+        "springback-built-example"
     shared.mkdir(parents=True, exist_ok=True)
     lock = shared / ".lock"
     project = shared / "study"

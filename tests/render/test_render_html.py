@@ -6,11 +6,12 @@ import itertools
 from html.parser import HTMLParser
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
 from babel.numbers import parse_decimal
 
-from springback import render
+from springback import findings, render
 from springback.render.context import PARTICIPANT_SECTIONS, THERAPIST_SECTIONS, inline_svg
 from tests.support.render_samples import (
     BUILT,
@@ -169,15 +170,15 @@ def test_user_strings_are_escaped(edition) -> None:
 
 
 def test_refer_flag_puts_help_first() -> None:
-    """Check that a 'refer' flag moves the help section to the front with an explanation."""
+    """Check that a 'refer' flag moves the help section right after the summary."""
     flags = [SampleFlag("P007", "phq9 high", "refer", 16.0, "2026-03-11", "score 16")]
     page = parse(render_booklet("participant", flags=flags))
     found = [a["id"] for a in page.tags("section")]
-    assert found[0] == "s-help"
+    assert found[:2] == ["s-summary", "s-help"]
     assert "it may help to talk with someone soon" in page.text
     other = [SampleFlag("P999", "phq9 high", "refer", 16.0, "2026-03-11", "score 16")]
     page = parse(render_booklet("participant", flags=other))
-    assert next(a["id"] for a in page.tags("section")) == "s-about_booklet"
+    assert [a["id"] for a in page.tags("section")][:2] == ["s-summary", "s-about_booklet"]
 
 
 def test_therapist_edition_shows_flags_and_review_state() -> None:
@@ -294,24 +295,29 @@ def test_prefixed_svg_is_made_readable_for_html() -> None:
         inline_svg('<html xmlns="http://www.w3.org/1999/xhtml"/>')
 
 
-def test_many_change_points_are_summarised() -> None:
-    """Check that more than three change points give one summary, not a paragraph each."""
+def test_many_change_points_give_one_course_sentence_from_the_findings() -> None:
+    """Check the mood section states the course reading once (not a paragraph per change point),
+    marked with its finding, and that the words follow the reading the findings stage made."""
     data = sample_data()
     results = sample_results(data)
-    days = pd.to_datetime(["2026-03-04", "2026-03-08", "2026-03-12", "2026-03-15", "2026-03-19"])
-    points = pd.DataFrame({"study_day": days, "direction": ["worse", "better"] * 2 + ["worse"],
-                           "size": [0.8, -0.6, 1.4, -0.9, 0.7], "method": "PELT",
-                           "exceeds_swings": True})
+    days = pd.date_range("2026-03-01", periods=21, freq="D")
+    level = np.where(np.arange(21) < 11, 3.0, 5.0)
+    daily = pd.DataFrame({"study_day": days, "mean": level + 0.1 * np.sin(np.arange(21)),
+                          "n": 5, "level": level})
+    points = pd.DataFrame({"study_day": [days[11]], "direction": ["worse"], "size": [2.0],
+                           "method": "PELT", "exceeds_swings": [True],
+                           "questionnaire_nearby": [""]})
     shifts = results.families["shifts"]
     families = {**results.families,
                 "shifts": type(shifts)(estimates=shifts.estimates,
-                                       tables={"change_points": points})}
+                                       tables={"daily": daily, "change_points": points},
+                                       params={"noise_sd": 0.1, "within_segment_sd": 0.1})}
     results = type(results)(results.participant, results.variable, families, True)
-    text = " ".join(parse(render_booklet("participant", data=data, results=results)).text.split())
-    assert "Your mood clearly changed 5 times during the study." in text
-    assert "It changed 3 times for the worse and twice for the better." in text
-    assert "The biggest change was around 12 March 2026, for the worse." in text
-    assert "Around 4 March 2026" not in text
+    page = parse(render_booklet("participant", data=data, results=results))
+    marks = [t for t in page.tags("p") if t.get("data-finding") == "course"]
+    assert [t["data-reading"] for t in marks] == ["abrupt_shift"]
+    text = " ".join(page.text.split())
+    assert "Around 12 March 2026, your mood changed for the worse" in text
 
 
 def test_results_are_never_called_abnormal(editions) -> None:
@@ -324,7 +330,9 @@ def test_results_are_never_called_abnormal(editions) -> None:
 def test_editions_are_checked() -> None:
     """Check that an unknown edition, or a context of the other edition, is refused."""
     data = sample_data()
-    kwargs = dict(settings=sample_settings(), data=data, results=sample_results(data), flags=[],
+    results = sample_results(data)
+    kwargs = dict(settings=sample_settings(), data=data, results=results,
+                  findings=findings.decide(results, [], sample_settings()), flags=[],
                   review_state="not needed", charts={}, language="en", version=1,
                   built_at=BUILT, tool_version="0.1.0")
     with pytest.raises(ValueError, match="edition must be one of"):

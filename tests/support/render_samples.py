@@ -11,7 +11,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from springback import render
+from springback import findings, render
 from springback.metrics.results import Estimate, Family, ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import StudySettings, from_mapping
@@ -164,9 +164,6 @@ def sample_results(data: ParticipantData, missing: tuple[str, ...] = ()) -> Part
             estimates={"landscape_valleys": Estimate(2.0), "bimodality_coefficient":
                        Estimate(0.581), "dip_p": Estimate(0.04)},
         ),
-        "pattern": Family(params={"resembles": "gradual change",
-                                  "evidence": ["daily means fall steadily"],
-                                  "what_would_change": ["a return to earlier levels"]}),
     }
     if missing:
         families = {
@@ -232,7 +229,8 @@ def render_booklet(edition: str, *, settings: StudySettings | None = None,
     charts = {k: sample_chart(k) for k in CHART_KEYS} if charts is None else charts
     env = _environment(project_templates)
     ctx = render.build_context(
-        settings=settings, data=data, results=results, flags=list(flags),
+        settings=settings, data=data, results=results,
+        findings=findings.decide(results, list(flags), settings), flags=list(flags),
         review_state=review_state, charts=charts, edition=edition, language="en", version=3,
         built_at=BUILT, tool_version="0.1.0")
     return render.render_edition(env, ctx, edition)

@@ -85,7 +85,7 @@ def run_job(job: Job) -> ParticipantOutcome:
 
 
 def _run_job(job: Job) -> ParticipantOutcome:
-    from springback import metrics
+    from springback import findings, metrics
     from springback.build.runner import stage
     from springback.metrics.shifts import shift_rows
     from springback.review.gate import review_state
@@ -101,11 +101,13 @@ def _run_job(job: Job) -> ParticipantOutcome:
     stage("computing")
     results = metrics.compute(data, settings)
     flags = safety.evaluate(data, results, settings, period_end=job.period_end)
+    found = findings.decide(results, flags, settings)
     state = review_state(job.project, pid, job.fingerprint, flags)
     common: dict[str, Any] = dict(
         metrics_rows=metrics.results_rows(results),
         flag_rows=safety.flags_rows(flags),
         shift_rows=shift_rows(results),
+        finding_rows=found.rows(),
         review_state=state,
         compliance=_compliance(results),
         flags=[f.record() for f in flags],
@@ -119,12 +121,13 @@ def _run_job(job: Job) -> ParticipantOutcome:
         e for e in settings.booklet.editions if e == "participant" or data.therapist
     )
     stage("rendering")
-    files = render_booklets(job, results, flags, state, editions)
+    files = render_booklets(job, results, found, flags, state, editions)
     return ParticipantOutcome(status="built", files=files, editions=editions, **common)
 
 
 def render_booklets(
-    job: Job, results: Any, flags: list[Any], state: str, editions: Iterable[Edition]
+    job: Job, results: Any, found: Any, flags: list[Any], state: str,
+    editions: Iterable[Edition],
 ) -> dict[str, bytes]:
     """Render the chosen editions of one participant to HTML and PDF bytes."""
     from springback import charts, render
@@ -140,7 +143,8 @@ def render_booklets(
     folder = f"{BOOKLETS}/{data.participant}"
     for edition in editions:
         context = render.build_context(
-            settings=settings, data=data, results=results, flags=flags, review_state=state,
+            settings=settings, data=data, results=results, findings=found, flags=flags,
+            review_state=state,
             charts=chart_set, edition=edition, language=language, version=job.version,
             built_at=job.built_at, tool_version=__version__,
         )

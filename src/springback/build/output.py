@@ -28,7 +28,8 @@ OUT_MARKER = ".springback-out"
 MARKER_TEXT = ("This folder was made by springback. Each build replaces it whole, so keep "
                "nothing else in it.\n")
 
-STUDY_TABLES = ("metrics.csv", "flags.csv", "shifts.csv", "quality.csv", "set_aside.csv")
+STUDY_TABLES = ("metrics.csv", "findings.csv", "flags.csv", "shifts.csv", "quality.csv",
+                "set_aside.csv")
 """The study-wide tables of out/, in the order `study_tables` makes them."""
 
 # Entries of an output folder made before the marker existed; such a folder is still ours.
@@ -130,7 +131,7 @@ class Previous:
         self.folder = folder
         self.people: dict[str, dict[str, Any]] = manifest.get("participants", {})
         self.rows = {name: _rows_by_participant(folder / "out" / name)
-                     for name in ("metrics.csv", "flags.csv", "shifts.csv")}
+                     for name in ("metrics.csv", "findings.csv", "flags.csv", "shifts.csv")}
 
     @classmethod
     def load(cls, project: Path) -> Previous | None:
@@ -211,7 +212,8 @@ class Previous:
             participant=pid, status=rec["status"], reason=rec.get("reason", ""),
             stored=tuple(sorted(names)),
             metrics_rows=metrics_rows, flag_rows=self.rows["flags.csv"].get(pid, []),
-            shift_rows=self.rows["shifts.csv"].get(pid, []), review_state=state,
+            shift_rows=self.rows["shifts.csv"].get(pid, []),
+            finding_rows=self.rows["findings.csv"].get(pid, []), review_state=state,
             fingerprint=job.fingerprint, version=job.version,
             period=(period.get("first", ""), period.get("last", "")),
             compliance=float(compliance) if compliance not in ("", None) else None,
@@ -262,7 +264,8 @@ def frame_bytes(df: pd.DataFrame) -> bytes:
 
 
 def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[str, bytes]:
-    """The study-wide CSV tables: metrics, flags, shifts, quality, set-aside rows."""
+    """The study-wide CSV tables: metrics, findings, flags, shifts, quality, set-aside rows."""
+    from springback.findings import FINDINGS_CSV_COLUMNS
     from springback.metrics.results import METRICS_CSV_COLUMNS
     from springback.safety.rules import FLAG_CSV_COLUMNS
 
@@ -270,8 +273,10 @@ def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[s
     metrics_rows = [r for o in outcomes for r in o.metrics_rows]
     flag_rows = [r for o in outcomes for r in o.flag_rows]
     shift_rows = [r for o in outcomes for r in o.shift_rows]
+    finding_rows = [r for o in outcomes for r in o.finding_rows]
     tables = {
         "metrics.csv": pd.DataFrame(metrics_rows, columns=list(METRICS_CSV_COLUMNS)),
+        "findings.csv": pd.DataFrame(finding_rows, columns=list(FINDINGS_CSV_COLUMNS)),
         "flags.csv": pd.DataFrame(flag_rows, columns=list(FLAG_CSV_COLUMNS)),
         "shifts.csv": pd.DataFrame(
             shift_rows, columns=["participant", "date", "direction", "size", "method"]

@@ -29,6 +29,7 @@ class ParticipantOutcome:
     metrics_rows: list[dict[str, Any]] = field(default_factory=list)
     flag_rows: list[dict[str, Any]] = field(default_factory=list)
     shift_rows: list[dict[str, Any]] = field(default_factory=list)
+    finding_rows: list[dict[str, Any]] = field(default_factory=list)
     review_state: str = "not needed"
     fingerprint: str = ""
     version: int = 0

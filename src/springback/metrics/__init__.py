@@ -13,7 +13,7 @@ from springback.metrics import (
     early_warning,
     entropy,
     landscape,
-    pattern,
+    leadup,
     questionnaires,
     recovery,
     shifts,
@@ -36,12 +36,14 @@ def compute(data: ParticipantData, settings: StudySettings) -> ParticipantResult
     families["descriptives"] = descriptives.describe(series, data, settings)
     families["dynamics"] = dynamics.carry_over(series, settings, data.participant)
     families["recovery"] = recovery.bounce_back(series, data, settings)
-    families["warnings"] = early_warning.early_warnings(series, settings, data.participant)
     families["questionnaires"] = questionnaires.questionnaire_family(data.questionnaires, settings)
     families["shifts"] = shifts.shift_family(series, settings, families.get("questionnaires"))
+    families["warnings"] = early_warning.early_warnings(series, settings, data.participant)
+    before_shift = leadup.leadup_warnings(series, families["shifts"], settings, data.participant)
+    if before_shift is not None:
+        families["warnings_leadup"] = before_shift
     families["landscape"] = landscape.landscape_family(series, data, settings)
     families["complexity"] = entropy.complexity_family(series, data.participant, settings)
-    families["pattern"] = pattern.pattern_family(families, settings)
     return ParticipantResults(participant=data.participant, variable=series.variable,
                               families=families, enough_data=enough, reason=reason)
 

@@ -186,7 +186,7 @@ def early_warnings(series: Series, settings: StudySettings, participant: str) ->
     if series.n < 2 * m.min_window_prompts:
         why = (f"needs at least {2 * m.min_window_prompts} answers for rolling windows; "
                f"there were {series.n}")
-        return Family(estimates=_all_missing(why, series.n), tables=_empty_tables(),
+        return Family(estimates=all_missing(why, series.n), tables=_empty_tables(),
                       params=params)
     grid: dict[tuple[float, float | None], _Cell] = {}
     for bw in bandwidths:  # one bandwidth's surrogates in memory at a time (17 MB each)
@@ -293,7 +293,7 @@ def _grid_table(grid: dict[tuple[float, float | None], _Cell]) -> pd.DataFrame:
                                        "windows_skipped"])
 
 
-def _all_missing(why: str, n: int) -> dict[str, Estimate]:
+def all_missing(why: str, n: int) -> dict[str, Estimate]:
     """Every warning estimate as not available, with the same reason."""
     names = ("warning_tau_inertia", "warning_p_inertia", "warning_tau_variance",
              "warning_p_variance", "warning_tau_sd", "warning_tau_skewness",

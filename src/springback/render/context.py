@@ -6,23 +6,24 @@ import datetime as dt
 import math
 import xml.etree.ElementTree as ET
 from dataclasses import dataclass, replace
-from typing import Any, Protocol, TypedDict, cast
+from typing import Any, TypedDict, cast
 
 import pandas as pd
 
 from springback.charts import Chart, palette
+from springback.findings import Finding, Findings, FlagLike
 from springback.metrics.results import Estimate, ParticipantResults
 from springback.model import EDITIONS, Edition, ParticipantData
 from springback.settings import Referral, StudySettings
 
 PARTICIPANT_SECTIONS = (
-    "about_booklet", "participation", "mood", "ups_downs", "bouncing_back", "carry_over",
+    "summary", "about_booklet", "participation", "mood", "ups_downs", "bouncing_back", "carry_over",
     "change", "landscape", "questionnaires", "reflect", "help", "how_made", "glossary",
 )
 """Section partials (templates/sections/<name>.html) of the participant edition, in order."""
 
 THERAPIST_SECTIONS = (
-    "review", "about_booklet", "participation", "data_quality", "mood", "ups_downs",
+    "summary", "review", "about_booklet", "participation", "data_quality", "mood", "ups_downs",
     "bouncing_back", "carry_over", "change", "sensitivity", "landscape", "pattern",
     "questionnaires", "reflect", "help", "how_made", "methods", "glossary",
 )
@@ -38,17 +39,6 @@ SECTION_CHARTS = {
 LONG_TABLE_ROWS = 16
 """Data tables longer than this cannot sit on the page of their chart; in print they move to
 an appendix at the end of the booklet (on screen they stay in their <details>)."""
-
-
-class FlagLike(Protocol):
-    """What a safety flag offers (springback.safety.Flag has exactly these attributes)."""
-
-    participant: str
-    rule: str
-    action: str
-    value: float | None
-    when: str
-    detail: str
 
 
 @dataclass(frozen=True)
@@ -105,7 +95,10 @@ class BookletContext(TypedDict):
     referral: Referral | None
     charts: dict[str, Chart]
     long_tables: list[str]
-    pattern: dict[str, Any]
+    findings: dict[str, Finding]
+    """Topic -> the finding every sentence about it phrases (springback.findings)."""
+    summary: list[Finding]
+    """The findings this edition's summary states, most important first."""
     alpha: float
     large_print: bool
     paper: str
@@ -117,6 +110,7 @@ def build_context(
     settings: StudySettings,
     data: ParticipantData,
     results: ParticipantResults,
+    findings: Findings,
     flags: list[FlagLike],
     review_state: str,
     charts: dict[str, Chart],
@@ -130,7 +124,8 @@ def build_context(
     if edition not in EDITIONS:
         raise ValueError(f"edition must be one of {', '.join(EDITIONS)}, got {edition!r}")
     own_flags = [f for f in flags if f.participant == data.participant]
-    refer = any(f.action == "refer" for f in own_flags)
+    by_topic = findings.by_topic()
+    refer = by_topic["help"].reading == "refer" if "help" in by_topic else False
     variable = results.variable or settings.about
     sections = _sections(settings, edition, refer)
     desc = _params(results, "descriptives")
@@ -174,7 +169,8 @@ def build_context(
         referral=settings.referral_for(data.region, language),
         charts={key: _chart_view(chart) for key, chart in charts.items()},
         long_tables=_long_tables(sections, charts),
-        pattern=_params(results, "pattern"),
+        findings=by_topic,
+        summary=[by_topic[t] for t in findings.summary.get(edition, ()) if t in by_topic],
         alpha=float(_params(results, "warnings").get("alpha", settings.metrics.alpha)),
         large_print=settings.booklet.large_print,
         paper=settings.booklet.paper,
@@ -226,7 +222,7 @@ def _long_tables(sections: list[str], charts: dict[str, Chart]) -> list[str]:
 
 
 def _sections(settings: StudySettings, edition: Edition, refer: bool) -> list[str]:
-    """Sections in reading order; where a 'refer' flag exists, help comes first."""
+    """Sections in reading order; where a 'refer' flag exists, help follows the summary."""
     names = list(PARTICIPANT_SECTIONS if edition == "participant" else THERAPIST_SECTIONS)
     if edition == "participant" and not settings.booklet.show_change_to_participant:
         names.remove("change")
@@ -234,7 +230,7 @@ def _sections(settings: StudySettings, edition: Edition, refer: bool) -> list[st
         names.remove("landscape")
     if refer:
         names.remove("help")
-        names.insert(1 if edition == "therapist" else 0, "help")
+        names.insert(2 if edition == "therapist" else 1, "help")  # right after the summary
     return names
 
 

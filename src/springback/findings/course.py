@@ -1,0 +1,188 @@
+"""The course of the mood level itself: no clear change, gradual change, an abrupt shift,
+switching between two states, or not enough data. A cautious description, never a diagnosis.
+
+The kinds of change are those described for systems with alternative states (Scheffer et al.
+2009, "Early-warning signals for critical transitions", Nature 461:53-59; Dakos, van Nes &
+Scheffer 2013, "Flickering as an early warning signal", Theoretical Ecology 6:309-317).
+
+Rules, in this order (thresholds are those of the family that computed the numbers):
+1. switching: the landscape has two robust valleys and the mood switched at least
+   MIN_SWITCHES times (two round trips), or at least MIN_ALTERNATING large day-level shifts
+   alternate in direction while the bimodality coefficient exceeds 5/9 or the dip test gives
+   p < alpha (slow switching seen in daily means before the prompt-level landscape separates
+   it);
+2. abrupt shift: a change point larger than twice the usual day-to-day swing, and the step
+   model fits the daily means better than a gradual course (a straight line or a broken line
+   with one knot, for drifts that start mid-study), penalised as PELT is: 2 ln n per change
+   point, ln n for a slope, 3 ln n for slope, bend and knot, residuals in units of the
+   day-to-day noise, i.e. BIC with known variance (Schwarz 1978, Annals of Statistics
+   6:461-464). A staircase (the largest step is less than half of a run of same-direction
+   steps around it) is gradual, not abrupt;
+3. gradual change: the Theil-Sen slope of the daily means (Sen 1968, JASA 63:1379-1389) has a
+   95% interval that excludes 0 and the drift over the study exceeds twice the day-to-day
+   noise;
+4. otherwise no clear change.
+Certainty: `clear` when the evidence is strong on every count (a shift of more than
+CLEAR_SHIFT_FACTOR swings whose step model wins by more than CLEAR_BIC, "very strong" on the
+scale of Kass & Raftery 1995, JASA 90:773-795; a drift of more than CLEAR_DRIFT_FACTOR times
+the noise; switching with both the landscape and the alternating steps agreeing), else
+`some_signs`; no clear change is `no_clear_sign`.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from collections.abc import Mapping
+from typing import Any, cast
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from springback.findings.records import Finding, missing
+from springback.metrics.landscape import BC_THRESHOLD
+from springback.metrics.results import Estimate, Family
+from springback.metrics.shifts import SWING_FACTOR
+
+COURSES = ("no_clear_change", "gradual_change", "abrupt_shift", "switching", "not_enough_data")
+MIN_SWITCHES = 4
+MIN_ALTERNATING = 3
+"""Large day-level steps alternating in direction that read as switching (with two peaks)."""
+STAIRCASE_SHARE = 0.5
+"""A largest step below this share of its same-direction run reads as a drift, not a jump."""
+CLEAR_SHIFT_FACTOR = 3.0
+CLEAR_BIC = 10.0
+CLEAR_DRIFT_FACTOR = 3.0
+
+
+def value(family: Family | None, name: str) -> float | None:
+    """An estimate's value if the family reports it and it is a number, else None."""
+    if family is None or name not in family.estimates:
+        return None
+    est: Estimate = family.estimates[name]
+    return float(cast(float, est.value)) if est.ok else None
+
+
+def trend(days: np.ndarray, y: np.ndarray, level: np.ndarray, n_cp: int, s: float
+          ) -> dict[str, float | bool]:
+    """Compare a gradual course (line or broken line) with the step model of PELT."""
+    _, _, lo, hi = stats.theilslopes(y, days, alpha=0.95)
+    n = len(y)
+    scale = s * s if s > 0 else float(np.var(y)) or 1.0
+    line = np.polyval(np.polyfit(days, y, 1), days)
+    cost_line = float(np.sum((y - line) ** 2)) / scale + math.log(n)
+    fit, cost_gradual = line, cost_line
+    for knot in days[2:n - 2]:
+        design = np.column_stack([np.ones(n), days, np.maximum(days - knot, 0.0)])
+        coef, *_ = np.linalg.lstsq(design, y, rcond=None)
+        cost = float(np.sum((y - design @ coef) ** 2)) / scale + 3 * math.log(n)
+        if cost < cost_gradual:
+            fit, cost_gradual = design @ coef, cost
+    cost_step = float(np.sum((y - level) ** 2)) / scale + 2 * n_cp * math.log(n)
+    return {"drift": float(fit[-1] - fit[0]), "slope_low": float(lo), "slope_high": float(hi),
+            "slope_excludes_zero": bool(lo > 0 or hi < 0),
+            "bic_gradual_minus_step": cost_gradual - cost_step,
+            "line_better": cost_gradual <= cost_step}
+
+
+def staircase(cps: pd.DataFrame) -> dict[str, Any] | None:
+    """Describe the same-direction run around the largest shift if it does not dominate it."""
+    if cps.empty:
+        return None
+    sizes = cps["size"].to_numpy(float)
+    k = int(np.argmax(np.abs(sizes)))
+    sign = np.sign(sizes[k])
+    a = k
+    while a > 0 and np.sign(sizes[a - 1]) == sign:
+        a -= 1
+    b = k
+    while b < sizes.size - 1 and np.sign(sizes[b + 1]) == sign:
+        b += 1
+    total = float(np.sum(sizes[a:b + 1]))
+    share = abs(sizes[k]) / abs(total)
+    if b == a or share >= STAIRCASE_SHARE:
+        return None
+    span = (cps["study_day"].iloc[b] - cps["study_day"].iloc[a]).days
+    return {"code": "staircase", "steps": b - a + 1, "days": span, "share": share}
+
+
+def course(participant: str, families: Mapping[str, Family], alpha: float,
+           higher_is_worse: bool) -> Finding:
+    """Read the course of the mood level from the shifts and landscape families."""
+    shifts, land = families.get("shifts"), families.get("landscape")
+    daily = shifts.tables.get("daily") if shifts else None
+    if shifts is None or daily is None or "level" not in daily or len(daily) < 2:
+        n_days = 0 if daily is None else len(daily)
+        reason = shifts.estimates["n_shifts"].note if shifts and "n_shifts" in \
+            shifts.estimates and not shifts.estimates["n_shifts"].ok else \
+            "there were too few days with answers to judge the course"
+        return missing(participant, "course", reason, days=n_days)
+    cps = shifts.tables["change_points"]
+    big = cps[cps["exceeds_swings"].astype(bool)]
+    s = float(shifts.params.get("noise_sd", 0.0))
+    swing = float(shifts.params.get("within_segment_sd", s))
+    days = ((daily["study_day"] - daily["study_day"].iloc[0]).dt.days).to_numpy(dtype=float)
+    y, level = daily["mean"].to_numpy(float), daily["level"].to_numpy(float)
+    tr = trend(days, y, level, len(cps), s)
+    stairs = staircase(cps)
+    valleys, switches = value(land, "landscape_valleys"), value(land, "switches")
+    bc, dip_p = value(land, "bimodality_coefficient"), value(land, "dip_p")
+    dirs = list(big["direction"])
+    alternating = len(dirs) >= MIN_ALTERNATING and all(
+        a != b for a, b in itertools.pairwise(dirs))
+    two_peaked = (bc is not None and bc > BC_THRESHOLD) or (dip_p is not None and dip_p < alpha)
+    two_valleys = valleys == 2 and (switches or 0) >= MIN_SWITCHES
+    drift_worse = (tr["drift"] > 0) == higher_is_worse
+
+    numbers: dict[str, Any] = {
+        "days": len(daily), "change_points": len(cps), "large_shifts": len(big),
+        "noise_sd": s, "drift": tr["drift"], "slope_low": tr["slope_low"],
+        "slope_high": tr["slope_high"], "bic_gradual_minus_step": tr["bic_gradual_minus_step"],
+        "valleys": valleys, "switches": switches, "bimodality_coefficient": bc, "dip_p": dip_p}
+    evidence: list[dict[str, Any]] = []
+    if two_valleys or (alternating and two_peaked):
+        for code, n in (("valleys", valleys), ("switches", switches)):
+            if n is not None:
+                evidence.append({"code": code, "n": n})
+        if bc is not None:
+            evidence.append({"code": "bc_above" if bc > BC_THRESHOLD else "bc_not_above",
+                             "bc": bc})
+        if dip_p is not None:
+            evidence.append({"code": "dip", "p": dip_p})
+        if alternating:
+            evidence.append({"code": "alternating", "n": len(dirs)})
+        sure = two_valleys and alternating and two_peaked
+        return Finding(participant, "course", "switching", "clear" if sure else "some_signs",
+                       numbers, evidence=tuple(evidence))
+    if len(big) > 0 and not tr["line_better"] and not stairs:
+        ordered = big.iloc[np.argsort(-np.abs(big["size"].to_numpy(float)), kind="stable")]
+        largest = ordered.iloc[0]
+        for row in cast(Any, ordered.itertuples()):
+            evidence.append({"code": f"shift_{row.direction}", "size": abs(row.size),
+                             "date": row.study_day.date().isoformat(), "factor": SWING_FACTOR})
+            if row.questionnaire_nearby:
+                evidence.append({"code": "questionnaire_nearby",
+                                 "text": row.questionnaire_nearby})
+        evidence.append({"code": "steps_better"})
+        first = pd.Timestamp(big["study_day"].iloc[0])
+        numbers.update(direction=str(largest["direction"]), size=abs(float(largest["size"])),
+                       date=pd.Timestamp(largest["study_day"]).date().isoformat(),
+                       first_date=first.date().isoformat(), swing_sd=swing)
+        sure = (abs(float(largest["size"])) > CLEAR_SHIFT_FACTOR * swing
+                and -tr["bic_gradual_minus_step"] > CLEAR_BIC)
+        return Finding(participant, "course", "abrupt_shift", "clear" if sure else "some_signs",
+                       numbers, evidence=tuple(evidence))
+    if tr["slope_excludes_zero"] and abs(tr["drift"]) > SWING_FACTOR * s:
+        evidence += [{"code": "drift", "drift": tr["drift"], "noise": s},
+                     {"code": "line_better" if tr["line_better"] else "steps_better"}]
+        evidence += [stairs] if stairs else []
+        evidence.append({"code": "drift_worse" if drift_worse else "drift_better"})
+        numbers["direction"] = "worse" if drift_worse else "better"
+        sure = abs(tr["drift"]) > CLEAR_DRIFT_FACTOR * s
+        return Finding(participant, "course", "gradual_change",
+                       "clear" if sure else "some_signs", numbers, evidence=tuple(evidence))
+    evidence.append({"code": "no_big_shift"} if big.empty else {"code": "line_better"})
+    evidence.append({"code": "nothing_stood_out"})
+    return Finding(participant, "course", "no_clear_change", "no_clear_sign", numbers,
+                   evidence=tuple(evidence))

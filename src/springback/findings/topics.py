@@ -1,0 +1,212 @@
+"""The descriptive topics: level, variability, recovery, carry-over, questionnaires,
+participation and the help a flag asks for. Each is one reading code with its numbers.
+
+Cut-offs are design choices (said so beside each) unless a source is named.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+from springback.findings.course import value
+from springback.findings.records import Certainty, Finding, FlagLike, missing
+from springback.metrics.questionnaires import RCI_Z
+from springback.metrics.results import Estimate, Family, ParticipantResults
+from springback.settings import StudySettings
+
+LEVEL_THIRDS = (1 / 3, 2 / 3)
+"""The mean's place on the scale, in thirds of its range (design choice)."""
+VARIABILITY_SHARES = (0.10, 0.20)
+"""RMSSD as a share of the scale's range: below the first is `small`, below the second
+`moderate`, else `large` (design choice; the printed number is the RMSSD itself)."""
+CARRY_OVER_CUTS = (0.1, 0.3, 0.5)
+"""Lag-1 correlation: below 0.1 `none`, 0.3 `weak`, 0.5 `moderate`, else `strong` (Cohen 1988,
+Statistical Power Analysis for the Behavioral Sciences, small / medium / large r)."""
+CLEAR_INTERVAL_RATIO = 3.0
+"""A half-life whose 95% interval spans at most this factor is `clear` (design choice)."""
+RCI_CLEAR_Z = 2.576
+"""A reliable change index beyond the 99% two-sided normal quantile is `clear`; between 1.96
+(Jacobson & Truax 1991, JCCP 59:12-19) and this, `some_signs`."""
+PARTICIPATION_CUTS = (0.4, 0.75)
+"""Answered share of prompts sent: below 0.4 `low`, below 0.75 `medium`, else `high` (design
+choice)."""
+
+
+def _est(results: ParticipantResults, name: str) -> Estimate | None:
+    try:
+        return results.estimate(name)
+    except KeyError:
+        return None
+
+
+def _numbers(est: Estimate, name: str) -> dict[str, Any]:
+    return {name: est.value, f"{name}_lower": est.lower, f"{name}_upper": est.upper,
+            "n": est.n}
+
+
+def level(results: ParticipantResults, scale: tuple[float, float],
+          higher_is_worse: bool) -> Finding:
+    """Where the mean lies on the scale: `better_side`, `middle` or `worse_side`."""
+    pid = results.participant
+    mean = _est(results, "mean")
+    if mean is None or not mean.ok:
+        return missing(pid, "level", mean.note if mean else "no answers")
+    low, high = scale
+    desc = results.families.get("descriptives")
+    typical = {k: (desc.params.get(k) if desc else None) for k in ("typical_low", "typical_high")}
+    if not (math.isfinite(low) and math.isfinite(high)) or high <= low:
+        return missing(pid, "level", "the scale's range is not known", mean=mean.value)
+    pos = (float(mean.value or 0.0) - low) / (high - low)
+    worse_pos = pos if higher_is_worse else 1 - pos
+    reading = ("better_side" if worse_pos < LEVEL_THIRDS[0] else
+               "middle" if worse_pos < LEVEL_THIRDS[1] else "worse_side")
+    sd = value(desc, "sd")
+    n = mean.n or 0
+    half = 1.96 * sd / math.sqrt(n) if sd is not None and n > 1 else math.inf
+    # Clear when the mean's 95% interval lies inside one third of the scale.
+    edges = [low + c * (high - low) for c in LEVEL_THIRDS]
+    m = float(mean.value or 0.0)
+    sure = all(not (m - half < e < m + half) for e in edges)
+    return Finding(pid, "level", reading, "clear" if sure else "some_signs",
+                   {"mean": m, "scale_low": low, "scale_high": high, "n": n, **typical})
+
+
+def variability(results: ParticipantResults, scale: tuple[float, float]) -> Finding:
+    """How large the moment-to-moment ups and downs are, from the RMSSD the booklet prints."""
+    pid = results.participant
+    rmssd = _est(results, "rmssd")
+    if rmssd is None or not rmssd.ok:
+        return missing(pid, "variability", rmssd.note if rmssd else "no successive answers")
+    width = scale[1] - scale[0]
+    if not math.isfinite(width) or width <= 0:
+        return missing(pid, "variability", "the scale's range is not known")
+    share = float(rmssd.value or 0.0) / width
+    reading = ("small" if share < VARIABILITY_SHARES[0] else
+               "moderate" if share < VARIABILITY_SHARES[1] else "large")
+    return Finding(pid, "variability", reading, "clear",
+                   {"rmssd": rmssd.value, "scale_range": width, "share_of_range": share,
+                    "pairs": rmssd.n})
+
+
+def recovery(results: ParticipantResults) -> Finding:
+    """How quickly mood got halfway back after upsets and dips (pooled half-life)."""
+    pid = results.participant
+    half = _est(results, "recovery_half_life_hours")
+    episodes = _est(results, "n_episodes")
+    n_ep = int(episodes.value or 0) if episodes is not None and episodes.ok else 0
+    if half is None or not half.ok:
+        return missing(pid, "recovery", half.note if half else "no upsets or dips were found",
+                       episodes=n_ep)
+    hours = float(half.value or 0.0)
+    lo, hi = half.lower, half.upper
+    sure = lo is not None and hi is not None and lo > 0 and hi / lo <= CLEAR_INTERVAL_RATIO
+    reading = "within_hours" if hours < 12 else "within_a_day" if hours < 36 else "days"
+    return Finding(pid, "recovery", reading, "clear" if sure else "some_signs",
+                   {**_numbers(half, "half_life_hours"), "episodes": n_ep})
+
+
+def carry_over(results: ParticipantResults) -> Finding:
+    """How much one moment's mood carries into the next (lag-1 correlation, inertia)."""
+    pid = results.participant
+    inertia = _est(results, "inertia")
+    if inertia is None or not inertia.ok:
+        return missing(pid, "carry_over", inertia.note if inertia else "no consecutive pairs")
+    r = float(inertia.value or 0.0)
+    reading = ("none" if abs(r) < CARRY_OVER_CUTS[0] else "weak" if abs(r) < CARRY_OVER_CUTS[1]
+               else "moderate" if abs(r) < CARRY_OVER_CUTS[2] else "strong")
+    lo, hi = inertia.lower, inertia.upper
+    certainty: Certainty
+    if lo is None or hi is None:
+        certainty = "cannot_tell"
+    elif lo <= 0 <= hi:
+        certainty = "no_clear_sign"
+    else:
+        certainty = "clear"
+    numbers = _numbers(inertia, "inertia")
+    half = _est(results, "half_life_hours")
+    if half is not None:
+        numbers["half_life_hours"] = half.value
+        numbers["half_life_note"] = half.note if not half.ok else ""
+    return Finding(pid, "carry_over", reading, certainty, numbers)
+
+
+def questionnaires(results: ParticipantResults, settings: StudySettings) -> list[Finding]:
+    """Per questionnaire with scores: the latest band and the reliable change."""
+    pid = results.participant
+    fam: Family | None = results.families.get("questionnaires")
+    out: list[Finding] = []
+    if fam is None:
+        return out
+    for key, spec in settings.questionnaires.items():
+        scores = fam.tables.get(f"scores_{key}")
+        if scores is None or scores.empty:
+            continue
+        topic = f"questionnaire_{key}"
+        last = fam.estimates.get(f"questionnaire_last_{key}")
+        rc = fam.estimates.get(f"reliable_change_{key}")
+        numbers: dict[str, Any] = {
+            "last": last.value if last else None, "band": last.note if last else "",
+            "scores": len(scores), "higher_is": spec.higher_is}
+        if rc is None or not rc.ok:
+            reason = rc.note if rc else "only one score"
+            out.append(Finding(pid, topic, "one_score" if len(scores) < 2 else
+                               "no_reliable_change", "cannot_tell", numbers, reason))
+            continue
+        z = float(rc.value or 0.0)
+        numbers["reliable_change_index"] = z
+        if abs(z) <= RCI_Z:
+            out.append(Finding(pid, topic, "no_reliable_change", "no_clear_sign", numbers))
+            continue
+        worse = (z > 0) == (spec.higher_is == "worse")
+        out.append(Finding(pid, topic, "worsened" if worse else "improved",
+                           "clear" if abs(z) > RCI_CLEAR_Z else "some_signs", numbers))
+    return out
+
+
+def participation(results: ParticipantResults) -> Finding:
+    """How many of the prompts sent were answered (the one compliance number)."""
+    pid = results.participant
+    share = _est(results, "compliance")
+    answered = _est(results, "n_answered")
+    n = int(answered.value or 0) if answered is not None and answered.ok else 0
+    if share is None or not share.ok:
+        return missing(pid, "participation", share.note if share else
+                       "the number of prompts sent is not known", answered=n)
+    s = float(share.value or 0.0)
+    reading = ("low" if s < PARTICIPATION_CUTS[0] else "medium" if s < PARTICIPATION_CUTS[1]
+               else "high")
+    return Finding(pid, "participation", reading, "clear",
+                   {"share": s, "answered": n, "sent": share.n})
+
+
+def landscape(results: ParticipantResults) -> Finding:
+    """How many levels the mood kept coming back to: `one_level` or `several_levels`."""
+    pid = results.participant
+    valleys = _est(results, "landscape_valleys")
+    if valleys is None or not valleys.ok:
+        return missing(pid, "landscape", valleys.note if valleys else "no landscape")
+    n = int(valleys.value or 0)
+    return Finding(pid, "landscape", "one_level" if n <= 1 else "several_levels",
+                   "some_signs", {"valleys": n})
+
+
+def help_needed(participant: str, flags: Sequence[FlagLike]) -> Finding:
+    """Whether a safety rule asks for help (`refer`), a review (`hold`) or neither (`none`).
+
+    The reason is the flag's own (its rule's detail); the strongest action leads."""
+    own = [f for f in flags if f.participant == participant]
+    for action in ("refer", "hold"):
+        hits = [f for f in own if f.action == action]
+        if hits:
+            first = hits[0]
+            return Finding(participant, "help", action, "clear",
+                           {"rule": first.rule, "when": first.when, "value": first.value,
+                            "rules": ",".join(sorted({f.rule for f in hits}))},
+                           reason=first.detail)
+    return Finding(participant, "help", "none", "no_clear_sign", {"rules": ""})
+
+
+def by_name(findings: Sequence[Finding]) -> Mapping[str, Finding]:
+    return {f.topic: f for f in findings}
