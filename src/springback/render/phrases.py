@@ -6,8 +6,10 @@ or a language's catalogue), so translators see whole phrases.
 
 from __future__ import annotations
 
+import datetime as dt
 import math
-from typing import Protocol
+from collections.abc import Callable, Iterable
+from typing import Any, Protocol
 
 
 class Translator(Protocol):
@@ -105,3 +107,67 @@ def trend_sureness(p: float | None, alpha: float, tr: Translator) -> str:
             "turn out to be false alarms."
         )
     return tr.gettext("This could be chance.")
+
+
+def general_refer(tr: Translator) -> str:
+    """The help banner's sentence when no rule-specific one applies (its earlier wording)."""
+    return tr.gettext("Some of your answers suggest that it may help to talk with someone soon.")
+
+
+def _field(flag: Any, name: str) -> Any:
+    return flag.get(name) if isinstance(flag, dict) else getattr(flag, name, None)
+
+
+def refer_sentence(flag: Any, settings: Any, language: str, tr: Translator,
+                   say_date: Callable[[dt.date], str]) -> str:
+    """The help banner's sentence for one refer flag, in the words of the rule that fired.
+
+    `flag` is a safety Flag (or its manifest record); `settings` the study's settings, which
+    say what the rule looks at; `say_date` writes a date in the booklet's language. A silence
+    says since when nothing came ("You have not answered since 14 May 2026; we would like to
+    hear how you are."), never that answers suggest anything.
+    """
+    rule = next((r for r in settings.safety.rules if r.name == _field(flag, "rule")), None)
+    when = str(_field(flag, "when") or "")
+    try:
+        day = say_date(dt.date.fromisoformat(when)) if when else ""
+    except ValueError:
+        day = ""
+    if rule is None:
+        return general_refer(tr)
+    if rule.silence_days is not None:
+        if not day:
+            return tr.gettext("We have not had any answers from you yet; we would like to "
+                              "hear how you are.")
+        return tr.gettext("You have not answered since %(day)s; we would like to hear how "
+                          "you are.") % {"day": day}
+    if not day:
+        return general_refer(tr)
+    if rule.questionnaire is not None:
+        spec = settings.questionnaires.get(rule.questionnaire)
+        labels = spec.label if spec is not None else {}
+        name = labels.get(language) or labels.get("en") or rule.questionnaire
+        return tr.gettext("Your answers on the %(questionnaire)s of %(day)s suggest that it may "
+                          "help to talk with someone soon.") % {"questionnaire": name,
+                                                                "day": day}
+    if rule.item is not None:
+        return tr.gettext("Your ratings of '%(item)s', most recently on %(day)s, suggest that "
+                          "it may help to talk with someone soon.") % {
+            "item": settings.label_of(rule.item, language), "day": day}
+    if rule.shift:
+        return tr.gettext("Your mood seems to have become clearly worse from %(day)s on; it "
+                          "may help to talk with someone soon.") % {"day": day}
+    return general_refer(tr)
+
+
+def refer_sentences(flags: Iterable[Any], settings: Any, language: str, tr: Translator,
+                    say_date: Callable[[dt.date], str]) -> list[str]:
+    """One sentence per refer flag (the same sentence once), in the flags' order."""
+    out: list[str] = []
+    for flag in flags:
+        if _field(flag, "action") != "refer":
+            continue
+        text = refer_sentence(flag, settings, language, tr, say_date)
+        if text not in out:
+            out.append(text)
+    return out
