@@ -137,3 +137,23 @@ def test_answers_without_a_prompt_number_are_set_aside_and_named(study) -> None:
         expected.loc[expected["unplaced"] > 0, "unplaced"].astype(int).to_dict()
     warned = [w for w in study.warnings if w.what.endswith(reason)]
     assert warned and all(w.column == "beepno" for w in warned)
+
+
+def test_quality_metrics_and_calendar_give_the_same_compliance(study) -> None:  # type: ignore[no-untyped-def]
+    import gettext
+
+    from springback import metrics
+    from springback.charts import make_charts
+
+    settings = study.settings.model_copy(update={"metrics": study.settings.metrics.model_copy(
+        update={"surrogates": 19})})  # few surrogates: only participation is looked at here
+    data = study.slice("10720")
+    results = metrics.compute(data, settings)
+    charts = make_charts(data, results, settings, "en", gettext.NullTranslations().gettext)
+    # 93 answered of 2 x 60 sent (counted independently in test_compliance_... above).
+    assert results.estimate("compliance").value == pytest.approx(93 / 120)
+    assert results.estimate("compliance").note == "93 of 120 prompts answered"
+    calendar = charts["calendar"]
+    assert calendar.description.startswith("You answered 93 of 120 prompts (78%) over 12 days.")
+    # Only the two periods' weeks are shown, not the ten weeks between them.
+    assert len(calendar.table) == 2

@@ -200,3 +200,16 @@ def test_r_row_names_are_an_unnamed_first_column(tmp_path: Path) -> None:
     study = load_study(make_project(tmp_path / "p", files={"data/momentary.csv": rows}))
     assert study.momentary["participant"].tolist() == ["p1", "p2"]
     assert pd.Series(study.momentary["sad"]).tolist() == [3.0, 2.0]
+
+
+def test_a_date_column_and_a_clock_column(tmp_path: Path) -> None:
+    rows = "participant,date,clock,sad,calm\np1,2024-03-04,09:15,3,5\np1,2024-03-04,9:5x,4,4\n"
+    root = make_project(tmp_path / "p", extra_toml='[data]\non_bad_rows = "set aside"\n'
+                        '[data.columns]\ndate = "date"\nclock = "clock"\n',
+                        files={"data/momentary.csv": rows, "data/participants.csv": ROSTER})
+    study = load_study(root)
+    assert [t.strftime("%Y-%m-%d %H:%M") for t in study.momentary["local_time"]] == [
+        "2024-03-04 09:15"]
+    assert not study.times_scheduled
+    [bad] = [w for w in study.warnings if w.code == "bad-time"]
+    assert (bad.row, bad.column, bad.what) == (3, "clock", "the clock time cannot be read")

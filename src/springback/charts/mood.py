@@ -44,7 +44,8 @@ def mood_chart(ctx: Inputs) -> Chart | None:
     y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
          "axis": {"title": ctx.value_axis_title(), "tickMinStep": 1}}
     answers = pd.DataFrame({"t": ctx.ms(series["local_time"]), "v": series["value"]})
-    means = pd.DataFrame({"t": day_noon_ms(ctx, daily["study_day"]), "v": daily["mean"]})
+    means = pd.DataFrame({"t": day_noon_ms(ctx, daily["study_day"]), "v": daily["mean"],
+                          "p": _period_of(ctx, daily["study_day"])})
     x = time_axis(ctx, _("Date"), np.concatenate([answers["t"], means["t"]]))
     layers: list[dict[str, Any]] = []
     key = [KeyItem(_("daily average"), CHART.primary, width=3),
@@ -68,7 +69,8 @@ def mood_chart(ctx: Inputs) -> Chart | None:
         {"data": {"values": records(means)},
          "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 3,
                   "point": {"filled": True, "size": 24, "color": CHART.primary}},
-         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}})
+         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y},
+                      "detail": {"field": "p", "type": "nominal"}}})  # no line across a gap
     n_events = 0
     events = _events(ctx)
     if events is not None:
@@ -289,7 +291,7 @@ def _calendar_cells(ctx: Inputs, daily: pd.DataFrame) -> pd.DataFrame:
     sent = pd.Series(
         daily["scheduled"].to_numpy(dtype=float) if "scheduled" in daily.columns
         else np.full(len(daily), np.nan), index=days)
-    span = pd.date_range(days.min(), days.max(), freq="D")
+    span = _period_days(ctx, days)
     answered = answered.groupby(level=0).sum().reindex(span, fill_value=0.0)
     sent = sent.groupby(level=0).max().reindex(span)
     per_day = ctx.settings.study.prompts_per_day
@@ -313,6 +315,33 @@ def _calendar_cells(ctx: Inputs, daily: pd.DataFrame) -> pd.DataFrame:
         "sent": sent.to_numpy(), "known": known.to_numpy(), "fill": fills,
         "ink": [readable_text_on(f) for f in fills],
     })
+
+
+def _period_days(ctx: Inputs, days: pd.Series) -> pd.DatetimeIndex:
+    """Every day of each measurement period (the gaps between periods are left out)."""
+    periods = ctx.table("descriptives", "periods")
+    if periods is None or len(periods) < 2:
+        return pd.date_range(days.min(), days.max(), freq="D")
+    first = min(days.min(), pd.Timestamp(periods["first_day"].min()))
+    last = max(days.max(), pd.Timestamp(periods["last_day"].max()))
+    span = pd.date_range(first, last, freq="D")
+    inside = np.zeros(len(span), bool)
+    for a, b in zip(periods["first_day"], periods["last_day"], strict=True):
+        inside |= (span >= pd.Timestamp(a)) & (span <= pd.Timestamp(b))
+    inside |= span.isin(days)  # a day with answers is always shown
+    return span[inside]
+
+
+def _period_of(ctx: Inputs, days: pd.Series) -> list[int]:
+    """The measurement period of each study day (1 when the study has one period)."""
+    periods = ctx.table("descriptives", "periods")
+    if periods is None:
+        return [1] * len(days)
+    periods = periods.sort_values("first_day")
+    starts = pd.to_datetime(periods["first_day"]).to_numpy()
+    place = np.searchsorted(starts, pd.to_datetime(days).to_numpy(), side="right") - 1
+    labels = periods["period"].to_numpy()
+    return [int(labels[max(i, 0)]) for i in place]
 
 
 def _calendar_description(ctx: Inputs, cells: pd.DataFrame) -> str:

@@ -117,6 +117,7 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
     x, n = series.value, series.n
     low, high = series.scale
     answered, scheduled, share = participation(data, settings)
+    schedule = participant_schedule(data, settings)
     est: dict[str, Estimate] = {"n_answered": Estimate(float(n), n=n, note="answered prompts")}
     if math.isfinite(share):
         est["compliance"] = Estimate(share, n=int(scheduled),
@@ -161,8 +162,8 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
     return Family(
         estimates=est,
         tables={"series": pd.DataFrame({"local_time": series.local_time, "value": x}),
-                "daily": _daily(series, participant_schedule(data, settings)),
-                "diurnal": _diurnal(series)},
+                "daily": _daily(series, schedule), "diurnal": _diurnal(series),
+                "periods": _periods(schedule)},
         params={"typical_low": float(typical[0]), "typical_high": float(typical[1]),
                 "scale_low": low, "scale_high": high,
                 "higher_is_worse": series.higher_is_worse, "variable": series.variable,
@@ -187,6 +188,14 @@ def _daily(series: Series, schedule: pd.DataFrame) -> pd.DataFrame:
     out["scheduled"] = out["scheduled"].astype(float)
     return out.sort_values("study_day").reset_index(drop=True)[
         ["study_day", "mean", "sd", "n", "scheduled"]]
+
+
+def _periods(schedule: pd.DataFrame) -> pd.DataFrame:
+    """Each measurement period's first and last study day (charts break at the gaps)."""
+    days = schedule["study_day"].astype("datetime64[ns]")
+    by = days.groupby(schedule["period"].astype("int64"))
+    return pd.DataFrame({"first_day": by.min(), "last_day": by.max()}).rename_axis(
+        "period").reset_index()
 
 
 def _diurnal(series: Series) -> pd.DataFrame:
