@@ -9,6 +9,7 @@ holds every booklet at once; unchanged participants are copied from the last arc
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable, Iterator
 from pathlib import Path
 
@@ -117,6 +118,10 @@ def build(
             )
             # Written after archiving, so the archived outputs stay the booklets and tables.
             (staging / OUT_MARKER).write_text(MARKER_TEXT, encoding="utf-8")
+            # out/release/ belongs to `springback release`: a build carries it over untouched.
+            released = out_dir / "release"
+            if released.is_dir() and not released.is_symlink():
+                os.replace(released, staging / "release")
     return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
 
 
