@@ -251,7 +251,8 @@ def file_lock(path: Path, wait_seconds: float = 0.0, what: str = "a build") -> I
                 holder = os.pread(fd, 400, 0).decode("utf-8", "replace").strip()
                 raise BuildLocked(
                     f"{what} of this project is already running ({holder or 'holder unknown'}); "
-                    "wait for it to finish and try again, or pass a longer wait"
+                    "wait for it to finish, then run the command again (the lock ends by itself "
+                    "when that process ends, also if it was stopped)"
                 )
             time.sleep(0.1)
         stamp = datetime.now(UTC).strftime("%Y-%m-%d %H:%M:%S UTC")

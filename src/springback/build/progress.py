@@ -42,7 +42,7 @@ class BuildProgress:
     def __init__(self, *, quiet: bool = False, console: Console | None = None,
                  now: Callable[[], float] = time.monotonic) -> None:
         self.quiet = quiet
-        self.console = console or Console(stderr=True)
+        self.console = console or Console(stderr=True, emoji=False)
         self.now = now
         self.total: int | None = None
         self.finished = 0

@@ -18,8 +18,8 @@ from springback.errors import Problem, ProblemsFound, SpringbackError
 
 F = TypeVar("F", bound=Callable[..., Any])
 
-out = Console(highlight=False, soft_wrap=True)
-err = Console(stderr=True, highlight=False, soft_wrap=True)
+out = Console(highlight=False, soft_wrap=True, emoji=False)
+err = Console(stderr=True, highlight=False, soft_wrap=True, emoji=False)
 
 PROJECT = click.Path(exists=True, file_okay=False, path_type=Path)
 

@@ -128,6 +128,12 @@ def _kind(path: Path, where: str) -> str:
             where, f"files ending in '{path.suffix}' cannot be read",
             expected="a .csv, .tsv, .txt, .xlsx, .parquet or .sav file",
             fix="export the data in one of these formats", code="unsupported-format")])
+    if path.exists() and not path.is_file():
+        raise DataError([error(
+            where, "this is not a regular file (it is a folder, a named pipe or a device)",
+            expected="the exported data file itself",
+            fix="point the path under [data] in study.toml to the exported file",
+            code="not-a-file")])
     if not path.is_file():
         raise DataError([error(
             where, "the file is missing",
@@ -196,6 +202,16 @@ SAMPLE_CHARS = 1 << 20
 """Text kept from the file's start to find the delimiter and the header (the first MiB)."""
 
 
+def _utf16_without_mark(block: bytes) -> bool:
+    """Whether bytes look like UTF-16 with no mark: NUL in nearly every other byte, one side."""
+    head = block[:4096]
+    if len(head) < 4:
+        return False
+    even, odd = head[0::2], head[1::2]
+    shares = (even.count(0) / len(even), odd.count(0) / len(odd))
+    return max(shares) >= 0.4 and min(shares) <= 0.05
+
+
 def _encoding(path: Path, where: str, notes: list[Problem],
               encoding: str | None = None) -> tuple[str, str | None]:
     """The file's encoding and its first MiB of text (None when the file holds only spaces).
@@ -219,6 +235,13 @@ def _encoding(path: Path, where: str, notes: list[Problem],
         try:
             while block := f.read(1 << 20):
                 text = decoder.decode(block)
+                if "\x00" in text and _utf16_without_mark(block):
+                    raise DataError([error(
+                        where, "the file looks like UTF-16 text without a byte-order mark "
+                        "(every second byte is NUL), which cannot be read safely",
+                        expected="UTF-8 text, or UTF-16 that starts with its byte-order mark",
+                        fix="save it again as 'CSV UTF-8' (Excel: File > Save As > CSV UTF-8)",
+                        code="utf-16-no-bom")])
                 if "\x00" in text:
                     raise DataError([error(
                         where, "the file is not text (it holds NUL bytes)",

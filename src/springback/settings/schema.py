@@ -293,6 +293,12 @@ def load_settings(project: Path) -> tuple[StudySettings, list[Problem]]:
     Raises SettingsError with every problem found; returns warnings otherwise.
     """
     path = Path(project) / SETTINGS_FILE
+    if path.exists() and not path.is_file():
+        raise SettingsError(
+            [error(SETTINGS_FILE, "this is not a regular file (it is a folder, a named pipe or "
+                   "a device)", expected="the study's settings file",
+                   fix="replace it with the study's study.toml", code="not-a-file")]
+        )
     if not path.is_file():
         raise SettingsError(
             [error(SETTINGS_FILE, "the settings file is missing",
@@ -311,6 +317,12 @@ def load_settings(project: Path) -> tuple[StudySettings, list[Problem]]:
     except UnicodeDecodeError:
         raise SettingsError(
             [error(SETTINGS_FILE, "the file is not UTF-8 text", fix="save it as UTF-8",
+                   code="invalid-toml")]
+        ) from None
+    except RecursionError:
+        raise SettingsError(
+            [error(SETTINGS_FILE, "this is not usable TOML: arrays or tables are nested too "
+                   "deeply", fix="write the values without nesting lists inside lists",
                    code="invalid-toml")]
         ) from None
     settings, problems = from_mapping(raw)
