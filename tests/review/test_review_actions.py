@@ -141,3 +141,18 @@ def test_listing_shows_open_actions(tmp_path: Path) -> None:
     assert listed.exit_code == 0, listed.output
     assert "Open actions" in listed.output and "stopped answering" in listed.output
     assert "--done --by NAME" in listed.output
+
+
+def test_init_template_shows_the_reviewers_list() -> None:
+    """Check `init` writes the reviewers table as a commented example that parses when used."""
+    import tomllib
+
+    from springback.settings import from_mapping
+    from springback.settings.scaffold import commented_settings
+
+    text = commented_settings()
+    assert "# [[review.reviewers]]\n# name = " in text
+    used = text.replace("# [[review.reviewers]]", "[[review.reviewers]]").replace(
+        '# name = "Dr. A. Example"', 'name = "Dr. A. Example"')
+    settings, _ = from_mapping(tomllib.loads(used))
+    assert [r.name for r in settings.review.reviewers] == ["Dr. A. Example"]

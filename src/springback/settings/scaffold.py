@@ -14,7 +14,14 @@ from pydantic_core import PydanticUndefined
 
 from springback.errors import SpringbackError
 from springback.settings import SETTINGS_FILE, StudySettings
-from springback.settings.sections import Composite, Item, Questionnaire, Referral, SafetyRule
+from springback.settings.sections import (
+    Composite,
+    Item,
+    Questionnaire,
+    Referral,
+    Reviewer,
+    SafetyRule,
+)
 
 _EXAMPLE_TABLES = {
     "items": (
@@ -46,6 +53,12 @@ _EXAMPLE_TABLES = {
         "# at_least = 20\n"
         '# action = "hold"\n'
     ),
+    "review": (
+        "# Without this list anyone named with --by may decide; with it, only these people.\n"
+        "# [[review.reviewers]]\n"
+        '# name = "Dr. A. Example"\n'
+        '# role = "clinical psychologist"\n'
+    ),
     "referral": (
         "# Replace with your region's real services before any booklet is given out.\n"
         "[[referral]]\n"
@@ -60,7 +73,7 @@ _EXAMPLE_TABLES = {
 
 _TABLE_MODELS: dict[str, type[BaseModel]] = {
     "items": Item, "composites": Composite, "questionnaires": Questionnaire,
-    "safety": SafetyRule, "referral": Referral,
+    "safety": SafetyRule, "referral": Referral, "review": Reviewer,
 }
 """The model of each table with an example above: its other keys are listed after the example."""
 
