@@ -213,3 +213,11 @@ def test_a_date_column_and_a_clock_column(tmp_path: Path) -> None:
     assert not study.times_scheduled
     [bad] = [w for w in study.warnings if w.code == "bad-time"]
     assert (bad.row, bad.column, bad.what) == (3, "clock", "the clock time cannot be read")
+
+
+def test_an_unreadable_time_of_an_unanswered_row_is_told(tmp_path: Path) -> None:
+    rows = ("participant,timestamp,sad,calm\np1,2024-03-04 09:00,3,5\np1,yesterday,,\n"
+            "p2,2024-03-04 10:00,2,6\n")
+    report = check_study(make_project(tmp_path / "p", files={"data/momentary.csv": rows}))
+    [problem] = report.errors
+    assert (problem.code, problem.row, problem.column) == ("bad-time", 3, "timestamp")

@@ -89,3 +89,16 @@ def test_dates_of_day_one_without_day_numbers_are_named_unused(key: str) -> None
     problems = from_mapping(ITEMS | {"data": {key: value} | extra})[1]
     assert [(p.where, p.code) for p in problems] == [(f"{SETTINGS_FILE}: data.{key}",
                                                       "unused-setting")]
+
+
+def test_a_deeply_nested_array_is_a_plain_error(tmp_path: Path) -> None:
+    # Source of truth: Python's TOML reader recurses per nesting level (5,000 levels overflow).
+    from springback.settings import load_settings
+
+    (tmp_path / SETTINGS_FILE).write_text("x = " + "[" * 5000 + "]" * 5000 + "\n")
+    with pytest.raises(SettingsError) as caught:
+        load_settings(tmp_path)
+    [problem] = caught.value.problems
+    assert problem.message() == (
+        "study.toml: this is not usable TOML: arrays or tables are nested too deeply. Fix: "
+        "write the values without nesting lists inside lists")

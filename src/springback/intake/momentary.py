@@ -271,7 +271,8 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
         name = getattr(cols, key) if not (built and key == "timestamp") else \
             (cols.prompt or cols.clock)
         for code, what in TIME_PROBLEMS.items():
-            hit = given & (parsed.problem == code).to_numpy()
+            # An unanswered row's unreadable time is told too: it decides what was sent.
+            hit = (given | participant.notna().to_numpy()) & (parsed.problem == code).to_numpy()
             found = [f"'{v}'" + (f" in {z}" if code in LOCAL_TIME_CODES else "")
                      for v, z in zip(raw[key][hit], parsed.zone[hit], strict=True)]
             sink.bad_rows(where, rows[hit], pid[hit], found, what=what, column=name,
