@@ -157,3 +157,17 @@ def test_quality_metrics_and_calendar_give_the_same_compliance(study) -> None:  
     assert calendar.description.startswith("You answered 93 of 120 prompts (78%) over 12 days.")
     # Only the two periods' weeks are shown, not the ten weeks between them.
     assert len(calendar.table) == 2
+
+
+def test_read_in_small_blocks_equals_read_at_once(tmp_path: Path,
+                                                  monkeypatch: pytest.MonkeyPatch) -> None:
+    # Source of truth: the same file read in one block (see tests/intake/test_intake_stream.py).
+    from springback.intake import stream
+
+    whole = load_study(_project(tmp_path / "whole"))
+    monkeypatch.setattr(stream, "CHUNK_ROWS", 150)
+    monkeypatch.setattr(stream, "GROUP_ROWS", 200)
+    blocks = load_study(_project(tmp_path / "blocks"))
+    for name in ("momentary", "set_aside", "quality", "schedule"):
+        pd.testing.assert_frame_equal(getattr(blocks, name), getattr(whole, name), obj=name)
+    assert [w.message() for w in blocks.warnings] == [w.message() for w in whole.warnings]
