@@ -118,7 +118,10 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
     low, high = series.scale
     answered, scheduled, share = participation(data, settings)
     schedule = participant_schedule(data, settings)
-    est: dict[str, Estimate] = {"n_answered": Estimate(float(n), n=n, note="answered prompts")}
+    # Answered prompts by the same rule as the compliance, so "93 of 120" reads the same
+    # everywhere (a prompt counts when any item was answered).
+    est: dict[str, Estimate] = {
+        "n_answered": Estimate(float(answered), n=answered, note="answered prompts")}
     if math.isfinite(share):
         est["compliance"] = Estimate(share, n=int(scheduled),
                                      note=f"{answered} of {scheduled:g} prompts answered")
