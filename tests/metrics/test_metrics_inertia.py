@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from springback.metrics._series import prepare
-from springback.metrics.dynamics import carry_over, day_jackknife
+from springback.metrics.dynamics import carry_over, day_jackknife, slow_trend_share
 from springback.simulate import noise_for_sd, ou_path, stratified_times
 from tests.support.metrics_sim import participant, settings_for
 
@@ -76,3 +76,22 @@ def test_the_calibrated_numbers_are_what_carry_over_reports():
         est = carry_over(prepare(participant(hours, x), settings), settings).estimates["inertia"]
         assert (est.value, est.lower, est.upper) == (pytest.approx(value), pytest.approx(lower),
                                                      pytest.approx(upper))
+
+
+def test_slow_trend_share_is_small_for_stationary_people_and_large_for_a_drift():
+    """Check slow_trend_share: under 0.1 for stationary OU people, over 0.2 with a 3 SD drift."""
+    # Known processes: stationary OU (above) and the same plus a straight 3 SD worsening over
+    # the study; the share is Var(Gaussian trend) / Var(ratings). The drift alone holds
+    # 0.75 / (0.75 + 1) = 0.43 of the variance; the kernel smooth flattens near both ends
+    # (boundary bias of the Nadaraya-Watson smoother, from memory), so 0.29-0.36 was measured
+    # over eight weeks (Dakos et al. 2012 on the Gaussian kernel trend). Over two weeks a
+    # kernel of SD 7 days is nearly flat and sees little of any drift (0.03-0.05).
+    settings = settings_for()
+    for hours, x, _rate in _people(40, 11):
+        series = prepare(participant(hours, x), settings)
+        assert slow_trend_share(series, 7.0).value < 0.1
+        if np.ptp(hours) < 50 * 24:
+            continue
+        drift = prepare(participant(hours, x + 3.0 * (hours - hours[0]) / np.ptp(hours)),
+                        settings)
+        assert slow_trend_share(drift, 7.0).value > 0.2

@@ -41,7 +41,8 @@ Both are computed on the ratings as given, around the person's own mean. The slo
 early-warning indicators (`metrics.detrend`) is not removed here: a 7-day Gaussian trend also
 takes away part of a stationary person's carry-over (inertia 0.02-0.03 too low, 79-90% interval
 coverage in simulations). A gradual change of level over the study therefore adds to carry-over;
-the course of the level is its own reading.
+the course of the level is its own reading, and `slow_trend_share` (the share of the variance
+in the 7-day trend) says how much of the variation such a change holds.
 
 Minimum data: `metrics.min_pairs` admissible pairs (default 30), a reporting minimum that is a
 design choice, not a published rule.
@@ -55,6 +56,7 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
+from springback.metrics import _rolling as rl
 from springback.metrics._series import Series
 from springback.metrics.results import Estimate, Family
 from springback.settings import StudySettings
@@ -193,7 +195,8 @@ def segments(hours: np.ndarray, y: np.ndarray, admissible: np.ndarray
 
 
 def _innovations(kappa: float, ratio: float, values: np.ndarray, gaps: np.ndarray,
-                 lengths: np.ndarray) -> tuple[float, float, float, float, int]:
+                 lengths: np.ndarray, conditioned: bool = False
+                 ) -> tuple[float, float, float, float, int]:
     """Run the Kalman filter of the scaled OU-plus-noise model over all runs at once.
 
     The state is scaled by the stationary variance s2 and the noise variance is ratio * s2, so
@@ -202,6 +205,11 @@ def _innovations(kappa: float, ratio: float, values: np.ndarray, gaps: np.ndarra
     same gains), which profiles mu out by generalised least squares. Returns sum log f,
     sum v_y^2/f, sum v_y v_1/f, sum v_1^2/f and the number of observations, f the scaled
     innovation variance (Harvey 1989, prediction-error decomposition, from memory).
+
+    `conditioned` starts each run from its first answer instead of the stationary
+    distribution (a diffuse prior on the first state, so the first answer only places it:
+    state y_0 - mu with variance ratio; Harvey 1989, ch. 3, from memory); the first answers
+    then add no term and are not counted.
     """
     active = (lengths[None, :] > np.arange(values.shape[1])[:, None]).sum(axis=1)
     a_y, a_1 = np.zeros(len(lengths)), np.zeros(len(lengths))
@@ -209,6 +217,9 @@ def _innovations(kappa: float, ratio: float, values: np.ndarray, gaps: np.ndarra
     logf = yy = y1 = ones = 0.0
     for k, n_k in enumerate(active):
         a_y, a_1, p = a_y[:n_k], a_1[:n_k], p[:n_k]
+        if conditioned and not k:
+            a_y, a_1, p = values[:n_k, 0].copy(), np.ones(n_k), np.full(n_k, ratio)
+            continue
         if k:
             phi = np.exp(-kappa * gaps[:n_k, k])
             a_y, a_1 = phi * a_y, phi * a_1
@@ -221,7 +232,7 @@ def _innovations(kappa: float, ratio: float, values: np.ndarray, gaps: np.ndarra
         yy, y1, ones = yy + float(wy @ v_y), y1 + float(wy @ v_1), ones + float(w1 @ v_1)
         a_y, a_1 = a_y + p * wy, a_1 + p * w1
         p = p * ratio * w
-    return logf, yy, y1, ones, int(lengths.sum())
+    return logf, yy, y1, ones, int(lengths.sum()) - (len(lengths) if conditioned else 0)
 
 
 def ou_noise_loglik(values: np.ndarray, gaps: np.ndarray, lengths: np.ndarray, kappa: float,
@@ -236,21 +247,30 @@ def ou_noise_loglik(values: np.ndarray, gaps: np.ndarray, lengths: np.ndarray, k
 
 
 def _concentrated(theta: np.ndarray, values: np.ndarray, gaps: np.ndarray,
-                  lengths: np.ndarray) -> tuple[float, float, float]:
-    """Log-likelihood at (log kappa, log noise ratio) with mu and s2 at their ML values."""
+                  lengths: np.ndarray, conditioned: bool = False,
+                  free_mean: bool = True) -> tuple[float, float, float]:
+    """Log-likelihood at (log kappa, log noise ratio) with mu and s2 at their ML values.
+
+    `free_mean=False` holds mu at 0 (deviations from a known level).
+    """
     logf, yy, y1, ones, n = _innovations(math.exp(theta[0]), math.exp(theta[1]), values, gaps,
-                                         lengths)
-    mu = y1 / ones if ones > 0 else 0.0
+                                         lengths, conditioned)
+    mu = y1 / ones if ones > 0 and free_mean else 0.0
     s2 = (yy - mu * y1) / n
     if not s2 > 0:
         return float("-inf"), mu, s2
     return -0.5 * (n * (math.log(2 * math.pi * s2) + 1.0) + logf), mu, s2
 
 def fit_ou_noise(values: np.ndarray, gaps: np.ndarray, lengths: np.ndarray,
-                 start_kappa: float) -> dict[str, float]:
-    """Fit OU plus answer noise by exact maximum likelihood; kappa with a profile interval."""
+                 start_kappa: float, conditioned: bool = False,
+                 free_mean: bool = True) -> dict[str, float]:
+    """Fit OU plus answer noise by exact maximum likelihood; kappa with a profile interval.
+
+    `conditioned` and `free_mean` are passed to the likelihood (`_innovations`,
+    `_concentrated`): runs that start from their first answer, and a mean held at 0.
+    """
     def neg(theta: np.ndarray) -> float:
-        ll = _concentrated(theta, values, gaps, lengths)[0]
+        ll = _concentrated(theta, values, gaps, lengths, conditioned, free_mean)[0]
         return -ll if math.isfinite(ll) else 1e300
 
     bounds = [LOG_KAPPA_BOUNDS, LOG_RATIO_BOUNDS]
@@ -265,7 +285,7 @@ def fit_ou_noise(values: np.ndarray, gaps: np.ndarray, lengths: np.ndarray,
                                   options={"xatol": 1e-8, "fatol": 1e-10})
                 for s0 in starts), key=lambda res: res.fun)
     theta = best.x
-    loglik, mu, s2 = _concentrated(theta, values, gaps, lengths)
+    loglik, mu, s2 = _concentrated(theta, values, gaps, lengths, conditioned, free_mean)
 
     def profile(lk: float) -> float:
         inner = optimize.minimize_scalar(lambda lr: neg(np.array([lk, lr])),
@@ -313,7 +333,8 @@ def carry_over(series: Series, settings: StudySettings, participant: str = "") -
                           if series.n else series.local_time,
                           "value": series.value[:-1][ok], "next_value": series.value[1:][ok],
                           "gap_hours": dt, "deviation": x0, "next_deviation": x1})
-    est: dict[str, Estimate] = {"n_pairs": Estimate(float(n_pairs), n=n_pairs, note=rule)}
+    est: dict[str, Estimate] = {"n_pairs": Estimate(float(n_pairs), n=n_pairs, note=rule),
+                                "slow_trend_share": slow_trend_share(series, m.bandwidth_days)}
     params = {"max_gap_hours": m.max_gap_hours, "min_pairs": m.min_pairs, "pair_rule": rule,
               "inertia_estimator": "Pearson correlation on admissible pairs, delete-one-day "
                                    "jackknife bias correction",
@@ -362,6 +383,24 @@ def carry_over(series: Series, settings: StudySettings, participant: str = "") -
             math.log(2) / k, _finite(math.log(2) / k_hi), _finite(math.log(2) / k_lo),
             n=n_pairs, note=note + "; half-life = ln 2 / rate")
     return Family(estimates=est, tables={"pairs": pairs}, params=params)
+
+
+def slow_trend_share(series: Series, bandwidth_days: float) -> Estimate:
+    """Share of the ratings' variance in their slow trend (Gaussian kernel, SD in days).
+
+    Carry-over here includes any slow change of the usual level; this share tells how much
+    of the variance such a change holds (the same kernel as the early-warning detrending,
+    Dakos et al. 2012). Simulated stationary OU people (half-lives 1.5-12 h, 14-56 days) had
+    a median share of 0.005 and at most 0.08; the example study's gradual changes 0.33-0.77.
+    """
+    if series.n < 3 or not np.ptp(series.value) > 0:
+        return Estimate.missing("fewer than three answers, or no variation", n=series.n,
+                                status="no_variation")
+    trend = rl.gaussian_trend(series.hours, series.value, bandwidth_days * 24.0)
+    share = float(np.var(trend) / np.var(series.value))
+    return Estimate(min(share, 1.0), n=series.n,
+                    note=f"variance of the Gaussian trend (kernel SD {bandwidth_days:g} days) "
+                         "over the variance of the ratings")
 
 
 CANNOT_TELL = ("the data cannot tell how quickly mood returns (most of the variation looks "
