@@ -9,14 +9,9 @@ import pytest
 from statsmodels.duration.survfunc import SurvfuncRight
 
 from springback.metrics._series import prepare
-from springback.metrics.recovery import bounce_back, fit_pooled, km_median, rolling_baseline
-from tests.support.metrics_sim import (
-    events_at,
-    participant,
-    prompt_hours,
-    settings_for,
-    simulate_ou,
-)
+from springback.metrics.recovery import bounce_back, km_median, rolling_baseline
+from tests.support.metrics_sim import events_at, participant, prompt_hours, settings_for
+from tests.support.recovery_sim import upset_people
 
 SLOTS = np.array([9, 12, 15, 18, 21.0])
 
@@ -66,14 +61,6 @@ def test_kaplan_meier_median_matches_statsmodels():
         assert (math.isnan(got) and (want is None or np.isnan(want))) or got == pytest.approx(want)
 
 
-def test_pooled_curve_recovers_exponential():
-    """Check curve_fit recovers A = 3, k = 0.5 from 3 e^{-0.5 t}, t = 0..6 (scipy 1.17)."""
-    t = np.arange(7.0)
-    a, k, lo, hi = fit_pooled(t, 3 * np.exp(-0.5 * t))
-    assert (a, k) == (pytest.approx(3.0, abs=1e-6), pytest.approx(0.5, abs=1e-6))
-    assert lo <= k <= hi
-
-
 def test_rolling_baseline_matches_direct_means():
     """Check the running-sum baseline equals a direct mean/SD of the previous days' answers."""
     rng = np.random.default_rng(1)
@@ -90,21 +77,14 @@ def test_rolling_baseline_matches_direct_means():
 
 
 def test_recovery_half_life_from_simulated_upsets():
-    """Check the pooled half-life brackets a known 2 h decay added after simulated events."""
-    # Simulation with known parameters: events add 2.5 e^{-ln2 h / 2} on top of an OU process.
+    """Check the pooled half-life brackets a known 2 h return after simulated events."""
+    # Simulated OU with half-life 2 h whose event kicks decay at the process rate
+    # (springback.simulate.shock_impulses; exact transition, Gillespie 1996), with answer
+    # noise SD 0.3; events between 9:30 and 13:30. tests/metrics/test_metrics_recovery_nights.py
+    # checks 4, 12 and 24 h.
     settings = settings_for()
     ratios = []
-    for seed in (0, 1, 3):
-        rng = np.random.default_rng(seed)
-        hours = prompt_hours(120, 5, rng)
-        x = simulate_ou(hours, math.log(2) / 3, 0.5, 3.0, rng)
-        events = []
-        for day in range(0, 120, 3):
-            te = day * 24 + 9.5 + rng.uniform(0, 4)
-            events.append(te)
-            after = (hours >= te) & (hours < te + 14)
-            x[after] += 2.5 * np.exp(-math.log(2) / 2 * (hours[after] - te))
-        data = participant(hours, x, rng=rng, events=events_at(events))
+    for data in upset_people(2.0, 3, 0, first=9.5, last=13.5, noise_sd=0.3):
         est = bounce_back(prepare(data, settings), data, settings).estimates
         half = est["recovery_half_life_hours"]
         assert half.lower < 2.0 < half.upper
