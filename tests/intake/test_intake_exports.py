@@ -221,3 +221,11 @@ def test_an_unreadable_time_of_an_unanswered_row_is_told(tmp_path: Path) -> None
     report = check_study(make_project(tmp_path / "p", files={"data/momentary.csv": rows}))
     [problem] = report.errors
     assert (problem.code, problem.row, problem.column) == ("bad-time", 3, "timestamp")
+
+
+def test_a_10_mb_header_without_separators_is_quoted_short(tmp_path: Path) -> None:
+    root = make_project(tmp_path / "p", files={"data/momentary.csv": "x" * (10 << 20)})
+    report = check_study(root)
+    assert report.errors and all(len(p.message()) < 600 for p in report.errors)
+    assert report.errors[0].found == "columns 'xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx...' " \
+        "(10,485,760 characters)"

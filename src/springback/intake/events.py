@@ -9,7 +9,7 @@ import pandas as pd
 
 from springback.errors import error
 from springback.intake.momentary import LOCAL_TIME_CODES, TIME_PROBLEMS, _expected, _time_fix
-from springback.intake.problems import Sink
+from springback.intake.problems import Sink, column_name
 from springback.intake.readers import Table, as_number, as_text, labelled, missing_mask
 from springback.intake.times import parse_times, zone_texts
 from springback.model import EVENT_COLUMNS
@@ -32,7 +32,7 @@ def read_timed(table: Table, settings: StudySettings, sink: Sink, required: dict
         close = difflib.get_close_matches(name, present, n=1)
         sink.add(error(table.where, f"column '{name}' is missing",
                        expected=f"a column named '{name}' ({wanted[name]})",
-                       found="columns " + ", ".join(f"'{c}'" for c in present[:8]),
+                       found="columns " + ", ".join(column_name(c) for c in present[:8]),
                        fix=(f"did you mean '{close[0]}'? " if close else "")
                        + f'rename the column, or set {wanted[name]} = "..." under [data.columns]',
                        column=name, code="missing-column"))

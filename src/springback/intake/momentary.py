@@ -18,7 +18,7 @@ from springback.intake.numbers import (
     sorted_periods,
     time_columns,
 )
-from springback.intake.problems import Sink, rows_list
+from springback.intake.problems import Sink, column_name, rows_list
 from springback.intake.readers import Table, as_number, as_text, missing_mask
 from springback.intake.times import ISO_EXAMPLE, parse_times, zone_texts
 from springback.settings import StudySettings
@@ -160,7 +160,7 @@ def _role(role: str) -> str:
 
 
 def _names(names: list[str], limit: int = 8) -> str:
-    shown = ", ".join(f"'{n}'" for n in names[:limit])
+    shown = ", ".join(column_name(n) for n in names[:limit])
     return shown + (f" and {len(names) - limit} more" if len(names) > limit else "")
 
 

@@ -199,3 +199,10 @@ def rows_list(rows: Sequence[int], limit: int = 6) -> str:
         return f"rows {', '.join(str(r) for r in rows[:limit])} and {len(rows) - limit} more"
     head, last = ", ".join(str(r) for r in rows[:-1]), rows[-1]
     return f"rows {head} and {last}"
+
+
+def column_name(name: str, limit: int = 40) -> str:
+    """A column name as messages quote it: long names (a header without separators) cut."""
+    return f"'{name}'" if len(name) <= limit else f"'{name[:limit - 3]}...' ({len(name):,} " \
+        "characters)"
+

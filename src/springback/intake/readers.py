@@ -187,8 +187,10 @@ def _csv_format(path: Path, where: str, notes: list[Problem]) -> _CsvFormat:
     except csv.Error:
         header = []
     if len(header) > MAX_COLUMNS:
+        cut = "\n" not in head and len(sample) >= SAMPLE_CHARS  # the header is longer still
+        count = f"more than {len(header):,}" if cut else f"{len(header):,}"
         raise DataError([error(
-            where, f"the header has {len(header):,} columns; at most {MAX_COLUMNS:,} can be read",
+            where, f"the header has {count} columns; at most {MAX_COLUMNS:,} can be read",
             expected=f"a header line of at most {MAX_COLUMNS:,} "
             f"'{_name(delimiter)}'-separated names",
             fix="export only the columns the study uses (or check the delimiter)",

@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 
 from springback.errors import error
-from springback.intake.problems import rows_list
+from springback.intake.problems import column_name, rows_list
 from springback.intake.readers import Table, as_text, labelled
 from springback.model import ROSTER_COLUMNS
 from springback.settings import StudySettings
@@ -74,7 +74,7 @@ def read_roster(table: Table, settings: StudySettings, problems: list) -> pd.Dat
             problems.append(error(
                 table.where, f"column '{name}' is missing",
                 expected=f"a column named '{name}' ({role})",
-                found="columns " + ", ".join(f"'{c}'" for c in present[:8]),
+                found="columns " + ", ".join(column_name(c) for c in present[:8]),
                 fix=(f"did you mean '{close[0]}'? " if close else "")
                 + f'rename the column, or set {role} = "..." under [data.columns]',
                 column=name, code="missing-column"))
