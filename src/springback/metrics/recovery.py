@@ -272,12 +272,12 @@ def _pooled_estimate(series: Series, episodes: list[dict], events: np.ndarray,
         code = _STATUS[status]
         return Estimate.missing(_REASONS[code] + f"; noise share {fit['noise_share']:.0%}",
                                 n=n_ep, status=code), empty, followed
-    k, k_lo, k_hi, level = fit["kappa"], fit["lower"], fit["upper"], fit["mu"]
-    depth = float(np.mean([dd for dd, first in zip(d, np.r_[True, np.diff(no) != 0],
-                                                   strict=True) if first]))
+    k, k_lo, k_hi = fit["kappa"], fit["lower"], fit["upper"]
+    # The typical way back, as the chart shows episodes: from the mean depth below the
+    # baseline towards it (the OU mean path, depth e^{-k h}).
+    depth = float(np.mean([ep["depth"] for ep in episodes]))
     grid = np.linspace(0.0, float(max(aligned["hours"].max(), 1.0)), 50)
-    curve = pd.DataFrame({"hours": grid,
-                          "deviation": level + (depth - level) * np.exp(-k * grid)})
+    curve = pd.DataFrame({"hours": grid, "deviation": depth * np.exp(-k * grid)})
     nights = int(np.sum((np.diff(h) > series.max_gap_hours) & (np.diff(no) == 0)))
     return Estimate(math.log(2) / k, math.log(2) / k_hi, math.log(2) / k_lo, n=n_ep,
                     note=f"exact Ornstein-Uhlenbeck return over {n_ep} episodes ({len(h)} "
