@@ -121,7 +121,11 @@ def _run_job(job: Job) -> ParticipantOutcome:
         e for e in settings.booklet.editions if e == "participant" or data.therapist
     )
     stage("rendering")
-    files = render_booklets(job, results, found, flags, state, editions)
+    try:
+        files = render_booklets(job, results, found, flags, state, editions)
+    except Exception as exc:  # the flags still reach the overview and out/actions.csv
+        return ParticipantOutcome(status="failed", reason=f"{type(exc).__name__}: {exc}",
+                                  **common)
     return ParticipantOutcome(status="built", files=files, editions=editions, **common)
 
 
