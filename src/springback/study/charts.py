@@ -1,0 +1,119 @@
+"""Vega-Lite specs of the study page, drawn to inline SVG by springback.charts.svg.to_svg.
+
+Each function returns the chart's SVG (with <title> and <desc>) and the frame of its data, which
+the page prints as the chart's table.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from springback.charts.palette import CHART
+from springback.charts.svg import PLOT_WIDTH, to_svg
+
+LANGUAGE = "en"
+
+
+def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    out = []
+    for row in frame.to_dict("records"):
+        out.append({str(k): (None if isinstance(v, float) and not math.isfinite(v) else v)
+                    for k, v in row.items()})
+    return out
+
+
+def strip(key: str, label: str, unit: str, values: pd.DataFrame) -> tuple[str, pd.DataFrame]:
+    """One dot per participant on the indicator's axis (`values`: participant, value)."""
+    data = values[np.isfinite(values["value"].to_numpy(float))].sort_values(
+        ["value", "participant"], kind="stable")
+    spec = {"width": PLOT_WIDTH, "height": 40, "data": {"values": _records(data)},
+            "mark": {"type": "circle", "size": 90, "opacity": 0.75, "color": CHART.primary},
+            "encoding": {"x": {"field": "value", "type": "quantitative",
+                               "title": f"{label} ({unit})", "scale": {"zero": False}}}}
+    lo, hi = (data["value"].min(), data["value"].max()) if len(data) else (math.nan, math.nan)
+    desc = (f"{len(data)} participants; values from {lo:.3g} to {hi:.3g}." if len(data) else
+            "No participant had a value.")
+    return to_svg(spec, f"study-{key}", f"{label} across participants", desc, LANGUAGE), data
+
+
+def forest(people: pd.DataFrame, group: pd.DataFrame) -> tuple[str, pd.DataFrame]:
+    """Each participant's inertia with its 95% interval, then the two group estimates."""
+    rows = people.rename(columns={"inertia": "value", "inertia_lower": "lower",
+                                  "inertia_upper": "upper"})
+    rows = rows[np.isfinite(rows["value"].to_numpy(float))][
+        ["participant", "value", "lower", "upper"]].assign(kind="participant")
+    g = group[group["estimate"].isin(["inertia_mixed", "inertia_person_mean"])]
+    g = pd.DataFrame({"participant": g["label"], "value": g["value"], "lower": g["lower"],
+                      "upper": g["upper"], "kind": "group"})
+    data = pd.concat([rows, g], ignore_index=True)
+    order = list(data["participant"])
+    y = {"field": "participant", "type": "nominal", "sort": order, "title": None}
+    colour = {"field": "kind", "type": "nominal", "title": None,
+              "scale": {"domain": ["participant", "group"],
+                        "range": [CHART.primary, CHART.accent]}}
+    spec = {"width": PLOT_WIDTH - 160, "height": 22 * len(data),
+            "data": {"values": _records(data)},
+            "layer": [
+                {"mark": {"type": "rule", "strokeWidth": 2},
+                 "encoding": {"y": y, "x": {"field": "lower", "type": "quantitative"},
+                              "x2": {"field": "upper"}, "color": colour}},
+                {"mark": {"type": "point", "filled": True, "size": 70},
+                 "encoding": {"y": y, "color": colour,
+                              "x": {"field": "value", "type": "quantitative",
+                                    "title": "Inertia (lag-1 autocorrelation)"}}}]}
+    desc = (f"{len(rows)} participants' inertia with 95% intervals; the multilevel model's "
+            f"mean is {_fmt(g['value'].iloc[0]) if len(g) else 'not available'}.")
+    return to_svg(spec, "study-inertia", "Inertia by participant and for the group", desc,
+                  LANGUAGE), data
+
+
+def weeks(table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
+    """Answered share of prompts sent by study week: pooled, with the participants' range."""
+    data = table[["week", "participants", "pooled", "min", "max"]]
+    x = {"field": "week", "type": "quantitative", "title": "Study week",
+         "axis": {"tickMinStep": 1, "format": "d"}}
+    spec = {"width": PLOT_WIDTH, "height": 200, "data": {"values": _records(data)},
+            "layer": [
+                {"mark": {"type": "area", "color": CHART.band},
+                 "encoding": {"x": x, "y": {"field": "min", "type": "quantitative",
+                                            "scale": {"domain": [0, 1]},
+                                            "axis": {"format": "%"},
+                                            "title": "Prompts answered"},
+                              "y2": {"field": "max"}}},
+                {"mark": {"type": "line", "point": True, "color": CHART.primary},
+                 "encoding": {"x": x, "y": {"field": "pooled", "type": "quantitative"}}}]}
+    desc = (f"{len(data)} weeks; pooled share answered from {_pct(data['pooled'].min())} to "
+            f"{_pct(data['pooled'].max())}; the band spans the participants' lowest and "
+            "highest share." if len(data) else "No prompts were sent.")
+    return to_svg(spec, "study-weeks", "Prompts answered by study week", desc, LANGUAGE), data
+
+
+def bars(key: str, title: str, table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
+    """Participants per reading of one topic (`table`: reading, participants)."""
+    data = table[["reading", "participants"]]
+    spec = {"width": PLOT_WIDTH - 160, "height": 26 * max(len(data), 1),
+            "data": {"values": _records(data)},
+            "mark": {"type": "bar", "color": CHART.secondary},
+            "encoding": {"y": {"field": "reading", "type": "nominal", "title": None,
+                               "sort": list(data["reading"])},
+                         "x": {"field": "participants", "type": "quantitative",
+                               "title": "Participants", "axis": {"tickMinStep": 1}}}}
+    desc = "; ".join(f"{r.reading}: {r.participants}" for r in data.itertuples()) + "."
+    return to_svg(spec, f"study-{key}", title, desc, LANGUAGE), data
+
+
+def _fmt(v: Any) -> str:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return str(v)
+    return f"{f:.3f}" if math.isfinite(f) else "not available"
+
+
+def _pct(v: Any) -> str:
+    f = float(v)
+    return f"{f:.0%}" if math.isfinite(f) else "not available"
