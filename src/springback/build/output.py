@@ -33,7 +33,8 @@ STUDY_TABLES = ("metrics.csv", "findings.csv", "flags.csv", "shifts.csv", "quali
 """The study-wide tables of out/, in the order `study_tables` makes them."""
 
 # Entries of an output folder made before the marker existed; such a folder is still ours.
-_OWN_ENTRIES = {"booklets", "index.html", "release", "preview", "actions.csv", *STUDY_TABLES}
+_OWN_ENTRIES = {"booklets", "index.html", "release", "preview", "actions.csv", "study",
+                *STUDY_TABLES}
 
 
 def check_out_dir(project: Path, out_dir: Path, archive_dir: Path) -> None:

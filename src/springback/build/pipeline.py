@@ -35,6 +35,7 @@ from springback.build.overview import overview
 from springback.build.records import BuildReport, Job, ParticipantOutcome
 from springback.model import Study
 from springback.settings import StudySettings
+from springback.study import study_files
 
 Progress = Callable[[str, str], None]
 """Called as progress(participant, stage); the stages are listed in `springback.build.progress`."""
@@ -108,6 +109,7 @@ def build(
             outcomes = [by_id[pid] for pid in study.participants() if pid in by_id]
             report("", "writing the overview, tables and archive")
             tables = study_tables(study, outcomes)
+            tables.update(study_files(study, tables))
             page, actions = overview(project, study, outcomes, started)
             write_files({**tables, "actions.csv": actions, "index.html": page.encode("utf-8")},
                         staging)
