@@ -229,3 +229,16 @@ def test_a_10_mb_header_without_separators_is_quoted_short(tmp_path: Path) -> No
     assert report.errors and all(len(p.message()) < 600 for p in report.errors)
     assert report.errors[0].found == "columns 'xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx...' " \
         "(10,485,760 characters)"
+
+
+def test_a_zone_far_from_the_studys_is_warned(tmp_path: Path) -> None:
+    rows = ("participant,timestamp,sad,calm\np1,2024-03-04 09:00 JST,3,5\n"
+            "p1,2024-03-04 13:00 CET,4,4\np2,2024-03-04 10:00 CEST,2,6\n")
+    study = load_study(make_project(tmp_path / "p", files={"data/momentary.csv": rows}))
+    # JST (+09:00) is 8 hours from Amsterdam's +01:00 on 4 March; CEST (+02:00) is 1 hour.
+    [far] = [w for w in study.warnings if w.code == "zone-far-off"]
+    assert far.message() == (
+        "data/momentary.csv, row 2: 1 time of participant 'p1' carry a time zone 3 or more "
+        "hours from the study's Europe/Amsterdam (row 2: JST); they are read in their own "
+        "zone. Fix: check the device's time zone, or the study's timezone under [study]")
+    assert len(study.momentary) == 3

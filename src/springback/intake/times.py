@@ -167,3 +167,34 @@ def _cell_text(value: object) -> str:
     if isinstance(value, pd.Timestamp):
         return value.isoformat(sep=" ")
     return str(value)
+
+
+FAR_ZONE_HOURS = 3
+"""A time read in a zone this many hours or more from the study's is reported (not changed).
+Compared for zones named by a word (JST) or by a zone column; a numeric offset written into
+the time itself is taken as given."""
+
+
+def zone_offsets(utc: pd.Series, zone: pd.Series) -> pd.Series:
+    """Hours each instant's own zone is ahead of UTC (NaN where the time or zone is unknown)."""
+    out = pd.Series(np.nan, index=utc.index, dtype=float)
+    known = utc.notna().to_numpy()
+    naive = utc.dt.tz_localize(None)
+    for token in pd.unique(zone[known]):
+        rows = known & (zone == token).to_numpy()
+        spec = zone_of(str(token))
+        if spec is None:
+            continue
+        if isinstance(spec, int):
+            out[rows] = spec / 60
+            continue
+        local = utc[rows].dt.tz_convert(spec).dt.tz_localize(None)
+        out[rows] = (local - naive[rows]).dt.total_seconds() / 3600
+    return out
+
+
+def far_zones(utc: pd.Series, zone: pd.Series, study_zone: str) -> np.ndarray:
+    """Rows whose own zone is `FAR_ZONE_HOURS` or more from the study's zone at that instant."""
+    own = zone_offsets(utc, zone)
+    study = zone_offsets(utc, pd.Series(study_zone, index=utc.index, dtype=object))
+    return ((own - study).abs() >= FAR_ZONE_HOURS).to_numpy()
