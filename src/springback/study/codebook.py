@@ -41,7 +41,7 @@ _PAIRS = "pairs of answers on the same study day at most metrics.max_gap_hours a
 _KENDALL = "Kendall tau-b of the indicator in rolling windows against time"
 _DAKOS = ("Dakos et al. 2012, Methods for detecting early warnings of critical transitions "
           "in time series, PLoS ONE 7:e41010")
-_SURR = "one-sided (rise) p-value against phase-randomised and block surrogates"
+_SURR = "one-sided (rise) p-value against AR(1) and phase-randomised surrogates"
 _TAU = ("-1 to 1", "tau")
 _P = ("0 to 1", "p-value")
 
@@ -193,7 +193,8 @@ MEASURES: tuple[Measure, ...] = (
             "Bandt & Pompe 2002, Phys Rev Lett 88:174102", "complexity"),
     Measure("entropy_p", "Surrogate p-value, entropy trend",
             "How often surrogate series changed as much", "p-value", _P[0],
-            "p-value against surrogates", "Bandt & Pompe 2002, Phys Rev Lett 88:174102",
+            "two-sided p-value against AR(1) surrogates rank-matched to the answers",
+            "Bandt & Pompe 2002, Phys Rev Lett 88:174102",
             "complexity"),
     Measure("questionnaire_last_{q}", "Latest score",
             "The latest total of questionnaire {q} (its band in the note)", "score points",
