@@ -171,3 +171,14 @@ def test_read_in_small_blocks_equals_read_at_once(tmp_path: Path,
     for name in ("momentary", "set_aside", "quality", "schedule"):
         pd.testing.assert_frame_equal(getattr(blocks, name), getattr(whole, name), obj=name)
     assert [w.message() for w in blocks.warnings] == [w.message() for w in whole.warnings]
+
+
+def test_the_break_between_periods_is_not_the_longest_gap(study) -> None:  # type: ignore[no-untyped-def]
+    # The longest gap within a period is under a week (counted in the test from the rows);
+    # the ten weeks between the periods are the design, not a gap in answering.
+    m = study.momentary
+    gaps = m.groupby(["participant", "period"])["time"].diff().dt.total_seconds() / 3600
+    longest = gaps.groupby(m["participant"]).max()
+    q = study.quality.set_index("participant")["longest_gap_hours"]
+    assert q.to_dict() == longest.to_dict()
+    assert (q < 24 * 7).all()

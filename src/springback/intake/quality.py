@@ -51,13 +51,17 @@ SUMMARY_COLUMNS = ("answered", "first_day", "last_day", "days_covered", "longest
 
 
 def momentary_summary(momentary: pd.DataFrame) -> pd.DataFrame:
-    """Per participant (index): answered prompts, first and last study day, days, longest gap.
+    """Per participant (index): answered prompts, first and last study day, days, longest gap
+    within a period.
 
     Made from every row of each participant it names (a large study is summed up a few
     participants at a time and the parts concatenated).
     """
     by = momentary.groupby("participant")
-    gaps = momentary["time"].groupby(momentary["participant"]).diff().dt.total_seconds() / 3600
+    within = [momentary["participant"]] + (
+        [momentary["period"]] if "period" in momentary.columns else [])
+    # The longest gap within a measurement period (the break between periods is by design).
+    gaps = momentary["time"].groupby(within).diff().dt.total_seconds() / 3600
     out = pd.DataFrame({
         "answered": by.size().astype("int64"),
         "first_day": by["study_day"].min(),
