@@ -172,6 +172,7 @@ class Previous:
             stored=tuple(sorted(names)), metrics_rows=metrics_rows,
             flag_rows=self.rows["flags.csv"].get(pid, []),
             shift_rows=self.rows["shifts.csv"].get(pid, []),
+            finding_rows=self.rows["findings.csv"].get(pid, []),
             review_state=review_state(self.project, pid, fp, flags), fingerprint=fp,
             version=int(rec.get("version", 0) or 0),
             period=(period.get("first", ""), period.get("last", "")),
