@@ -23,8 +23,6 @@ its first prompt. Compliance is answered / sent (`compliance`), never above 1.
 
 from __future__ import annotations
 
-from typing import cast
-
 import numpy as np
 import pandas as pd
 
@@ -110,24 +108,30 @@ def prompt_days(frame: pd.DataFrame, settings: StudySettings) -> pd.DataFrame:
     by_day["listed"] += by_day["answered"]  # every answered row is a listed prompt too
     by_day = by_day.reset_index()
     design = settings.data.study_days or 0
-    parts = []
-    for group, days in by_day.groupby(["participant", "period"], sort=True):
-        who, period = cast(tuple[str, int], group)
-        answered = days.loc[days["answered"] > 0, "day"]
-        last = max(design, int(answered.max()) if len(answered) else 0)
-        end = max(last, int(days["day"].max()))
-        full = pd.DataFrame({"day": np.arange(1, end + 1, dtype=np.int64)})
-        full = full.merge(days[["day", "answered", "listed"]], on="day", how="left")
-        full[["answered", "listed"]] = full[["answered", "listed"]].fillna(0).astype(np.int64)
-        full["designed"] = full["day"] <= last
-        full = full[full["designed"] | (full["listed"] > 0)]
-        full.insert(0, "participant", who)
-        full.insert(1, "period", int(period))
-        start = pd.Timestamp(days["first"].iloc[0])
-        full["study_day"] = start + pd.to_timedelta(full["day"] - 1, unit="D")
-        parts.append(full)
-    out = pd.concat(parts, ignore_index=True)
-    out["study_day"] = out["study_day"].astype("datetime64[ns]")
+    keys = ["participant", "period"]
+    groups = by_day.groupby(keys, sort=True)
+    last = by_day["day"].where(by_day["answered"] > 0).groupby(
+        [by_day[k] for k in keys], sort=True).max().fillna(0).clip(lower=design)
+    last = last.astype(np.int64).reindex(groups.size().index)
+    # Every designed day of each period (1 .. last), built with repeats, not a loop.
+    span = last.to_numpy()
+    group = np.repeat(np.arange(len(span)), span)
+    numbers = np.arange(len(group)) - np.repeat(np.cumsum(span) - span, span) + 1
+    names = last.index.to_frame(index=False)
+    designed = names.iloc[group].reset_index(drop=True).assign(day=numbers.astype(np.int64))
+    beyond = by_day.merge(last.rename("last").reset_index(), on=keys)
+    beyond = beyond.loc[beyond["day"] > beyond["last"], [*keys, "day"]]
+    out = pd.concat([designed, beyond], ignore_index=True).merge(
+        by_day[[*keys, "day", "answered", "listed"]], on=[*keys, "day"], how="left")
+    out[["answered", "listed"]] = out[["answered", "listed"]].fillna(0).astype(np.int64)
+    bounds = pd.DataFrame({"last": last, "first": groups["first"].min()}).reset_index()
+    out = out.merge(bounds, on=keys, how="left")
+    out["designed"] = out["day"] <= out["last"]
+    out["study_day"] = (pd.to_datetime(out["first"]) + pd.to_timedelta(out["day"] - 1, unit="D")
+                        ).astype("datetime64[ns]")
+    out["participant"] = out["participant"].astype(str)
+    out["period"] = out["period"].astype(np.int64)
+    out = out.sort_values([*keys, "day"], kind="stable").reset_index(drop=True)
     return out[list(SCHEDULE_COLUMNS)]
 
 
