@@ -185,3 +185,38 @@ def test_command_prints_the_url_first_and_stops_on_ctrl_c(tmp_path: Path) -> Non
         proc.kill()
     assert proc.returncode == 0, errors
     assert "stopped" in rest and "Traceback" not in errors
+
+
+def _outside(project: Path) -> dict[str, bytes]:
+    """Every file of the project outside archive/ and out/, with its bytes."""
+    return {p.relative_to(project).as_posix(): p.read_bytes() for p in project.rglob("*")
+            if p.is_file() and p.relative_to(project).parts[0] not in ("archive", "out")}
+
+
+def test_decisions_change_nothing_outside_the_archive(served: ReviewServer) -> None:
+    """Check approving and closing on the page leave every file outside archive/ as it was."""
+    before = _outside(served.project)
+    headers = login(served)
+    request(served, "POST", "/decide", decision(served), headers)
+    request(served, "POST", "/close", {"form_key": served.form_key, "participant": "P03",
+                                       "by": "C", "note": "phoned", "rule": ""}, headers)
+    kinds = [e["kind"] for e in audit.read_entries(served.project / "archive")]
+    assert kinds == ["build", "review", "action"]
+    assert _outside(served.project) == before
+
+
+def test_head_does_not_use_up_the_token(served: ReviewServer) -> None:
+    """Check a HEAD request (a link preview) is refused and leaves the token usable."""
+    query = urlsplit(served.url).query
+    assert request(served, "HEAD", f"/?{query}")[0] == 405
+    login(served)
+
+
+def test_listed_reviewers_are_offered_as_a_choice(served: ReviewServer) -> None:
+    """Check the page offers the study's reviewers by name and role."""
+    with open(served.project / "study.toml", "a", encoding="utf-8") as fh:
+        fh.write(REVIEWERS)
+    headers = login(served)
+    _, _, text = request(served, "GET", "/", headers=headers)
+    assert '<select id="by-h0" name="by" required>' in text
+    assert '<option value="Dr. A. Reviewer">Dr. A. Reviewer (clinical psychologist)' in text

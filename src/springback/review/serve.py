@@ -147,9 +147,6 @@ class Handler(BaseHTTPRequestHandler):
         else:
             self._refuse(HTTPStatus.NOT_FOUND, "There is no such page here.")
 
-    def do_HEAD(self) -> None:
-        self.do_GET()
-
     def do_POST(self) -> None:
         if not self._host_ok() or not self._session_ok():
             return
@@ -179,7 +176,7 @@ class Handler(BaseHTTPRequestHandler):
         self._refuse(HTTPStatus.METHOD_NOT_ALLOWED, "Only GET and POST are answered here.",
                      {"Allow": "GET, POST"})
 
-    do_PUT = do_DELETE = do_PATCH = _other
+    do_HEAD = do_PUT = do_DELETE = do_PATCH = _other  # HEAD too: it must not use up the token
 
     # -- what the page does ----------------------------------------------------------------
 
