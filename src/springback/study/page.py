@@ -83,10 +83,11 @@ def table(frame: pd.DataFrame, caption: str, columns: Mapping[str, str],
             f"<tbody>\n" + "\n".join(body) + "\n</tbody>\n</table>")
 
 
-def figure(svg: str, data: pd.DataFrame, caption: str, columns: Mapping[str, str]) -> str:
+def figure(svg: str, data: pd.DataFrame, caption: str, columns: Mapping[str, str],
+           formats: Mapping[str, Callable[[Any], str]] | None = None) -> str:
     """A chart followed by the table of its data."""
     return (f"<figure>\n{svg}\n<figcaption>{escape(caption)}</figcaption>\n</figure>\n"
-            + table(data, f"Data of the chart: {caption}", columns))
+            + table(data, f"Data of the chart: {caption}", columns, formats))
 
 
 def _int(v: Any) -> str:
@@ -166,8 +167,10 @@ def _indicators(people: pd.DataFrame, dist: pd.DataFrame) -> str:
                                "value": people[name].to_numpy(float)})
         svg, data = charts.strip(name, str(row.label), units.get(name, ""), values)
         out.append(f'<h3 id="ind-{escape(name)}">{escape(str(row.label))}</h3>')
+        whole = bool((data["value"] % 1 == 0).all())
         out.append(figure(svg, data, f"{row.label}, one dot per participant",
-                          {"participant": "Participant", "value": "Value"}))
+                          {"participant": "Participant", "value": "Value"},
+                          {"value": _int} if whole else None))
     return "\n".join(out) + "\n</section>"
 
 
