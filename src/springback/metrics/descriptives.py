@@ -81,28 +81,33 @@ def variance_parts(values: np.ndarray, days: np.ndarray) -> tuple[float, float, 
     return within, between, n_days
 
 
-def participation(data: ParticipantData, settings: StudySettings) -> tuple[int, float, float]:
+def participation(data: ParticipantData, settings: StudySettings,
+                  variable: str | None = None) -> tuple[int, float, float]:
     """Answered prompts, prompts sent and compliance, by the rule of `intake.schedule`.
 
     Read from the quality report (the study's one computation); a participant record made
-    without one (tests, tools) gets the same rule applied to its answered rows.
+    without one (tests, tools) gets the same rule applied to its rows that answer `variable`
+    (default: every row).
     """
     quality = data.quality
     if len(quality) and {"answered", "scheduled", "compliance"} <= set(quality.columns):
         row = quality.iloc[0]
         return (int(row["answered"]), float(row["scheduled"]),
                 float(row["compliance"]) if pd.notna(row["compliance"]) else float("nan"))
-    days = participant_schedule(data, settings)
+    days = participant_schedule(data, settings, variable)
     answered, sent = days["answered"].sum(), days["sent"].sum(min_count=1)
     share = compliance(pd.Series([answered]), pd.Series([sent], dtype=float)).iloc[0]
     return int(answered), float(sent), float(share)
 
 
-def participant_schedule(data: ParticipantData, settings: StudySettings) -> pd.DataFrame:
+def participant_schedule(data: ParticipantData, settings: StudySettings,
+                         variable: str | None = None) -> pd.DataFrame:
     """The participant's prompts sent and answered per day (`model.SCHEDULE_COLUMNS`)."""
     if len(data.schedule) or len(data.quality):
         return data.schedule
     m = data.momentary
+    if variable is not None and variable in m.columns:
+        m = m[m[variable].notna()]
     rows = pd.DataFrame({"participant": m["participant"].astype(str), "time": m["time"],
                          "scheduled": m["scheduled"], "answered": True})
     if "period" in m.columns:
@@ -116,8 +121,8 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
     m = settings.metrics
     x, n = series.value, series.n
     low, high = series.scale
-    answered, scheduled, share = participation(data, settings)
-    schedule = participant_schedule(data, settings)
+    answered, scheduled, share = participation(data, settings, series.variable)
+    schedule = participant_schedule(data, settings, series.variable)
     # Answered prompts by the same rule as the compliance, so "93 of 120" reads the same
     # everywhere (a prompt counts when any item was answered).
     est: dict[str, Estimate] = {
