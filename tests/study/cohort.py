@@ -9,11 +9,12 @@ import pandas as pd
 def ar1_cohort(people: int, mean_phi: float, sd_phi: float, *, days: int = 40,
                per_day: int = 6, seed: int = 0, gap_hours: float = 2.5) -> tuple[
                    pd.DataFrame, np.ndarray]:
-    """Within-day pairs (deviation, next deviation) of `people` stationary AR(1) people.
+    """Within-day pairs (deviation, next value) of `people` stationary AR(1) people.
 
     Each person's phi is drawn from N(mean_phi, sd_phi) (clipped to 0.05-0.9), with a random
     mean and innovation SD; every day starts from the stationary distribution, and pairs are
-    deviations from the person's own mean, as springback.metrics.dynamics forms them. Returns
+    the answer's deviation from the person's own mean and the next answer, as
+    springback.study.group.within_day_pairs forms them. Returns
     the pairs and the people's true phi.
     """
     rng = np.random.default_rng(seed)
@@ -29,7 +30,7 @@ def ar1_cohort(people: int, mean_phi: float, sd_phi: float, *, days: int = 40,
         resid = values - values.mean()
         parts.append(pd.DataFrame({"participant": f"S{i:02d}",
                                    "deviation": resid[:, :-1].ravel(),
-                                   "next_deviation": resid[:, 1:].ravel(),
+                                   "next_value": values[:, 1:].ravel(),
                                    "gap_hours": gap_hours}))
     return pd.concat(parts, ignore_index=True), phis
 
