@@ -87,3 +87,15 @@ def test_translated(settings: object, language: str, word: str) -> None:
     text = phrases.refer_sentence(flag("stopped answering"), settings, language,
                                   translations(language), day)
     assert word in text and "14 May" in text
+
+
+def test_the_help_finding_gives_the_same_sentence(settings: object) -> None:
+    """Check the findings stage's help finding is phrased by the rule it names."""
+    from springback.findings.topics import help_needed
+
+    finding = help_needed("P01", [flag("stopped answering")])
+    assert finding.reading == "refer"
+    assert phrases.refer_sentence(finding, settings, "en", EN, day) == (
+        "You have not answered since 14 May; we would like to hear how you are.")
+    assert phrases.refer_sentences([finding], settings, "en", EN, day) == [
+        "You have not answered since 14 May; we would like to hear how you are."]

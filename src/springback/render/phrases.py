@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Mapping
 from typing import Any, Protocol
 
 
@@ -115,15 +115,23 @@ def general_refer(tr: Translator) -> str:
 
 
 def _field(flag: Any, name: str) -> Any:
-    return flag.get(name) if isinstance(flag, dict) else getattr(flag, name, None)
+    """A flag's rule, action or date, from a Flag, its record, or the help finding
+    (springback.findings: topic 'help', reading = the action, numbers hold rule and when)."""
+    if isinstance(flag, dict):
+        return flag.get(name)
+    numbers = getattr(flag, "numbers", None)
+    if getattr(flag, "topic", "") == "help" and isinstance(numbers, Mapping):
+        return getattr(flag, "reading", None) if name == "action" else numbers.get(name)
+    return getattr(flag, name, None)
 
 
 def refer_sentence(flag: Any, settings: Any, language: str, tr: Translator,
                    say_date: Callable[[dt.date], str]) -> str:
     """The help banner's sentence for one refer flag, in the words of the rule that fired.
 
-    `flag` is a safety Flag (or its manifest record); `settings` the study's settings, which
-    say what the rule looks at; `say_date` writes a date in the booklet's language. A silence
+    `flag` is a safety Flag, its manifest record or the help finding; `settings` the study's
+    settings, which say what the rule looks at; `say_date` writes a date in the booklet's
+    language. A silence
     says since when nothing came ("You have not answered since 14 May 2026; we would like to
     hear how you are."), never that answers suggest anything.
     """
