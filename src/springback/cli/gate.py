@@ -61,6 +61,7 @@ def review(project: Path, participant: str | None, decision: str | None, rule: s
         for e in entries:
             out.print(f"{_esc(participant)}: action '{_esc(str(e['rule']))}' ({e['action']}) "
                       f"recorded as done by {_esc(str(e['by']))} at {e['time']} (audit log).")
+        print_receipt(project)
         return
     entry = actions.decide_locked(project, participant, decision, by, note, booklet_version)
     word = "approved" if decision == "approve" else "rejected"
