@@ -73,7 +73,8 @@ def _links(pid: str, files: list[str]) -> str:
     out = []
     for rel in files:
         name = rel.rsplit("/", 1)[-1]
-        out.append(f"<a href=\"/booklet/{escape(pid)}/{escape(name)}\">{escape(name)}</a>")
+        out.append(f"<a href=\"/booklet/{escape(pid)}/{escape(name)}\" aria-label=\""
+                   f"{escape(pid)}, {escape(name)}\">{escape(name)}</a>")
     return " · ".join(out) or "–"
 
 
