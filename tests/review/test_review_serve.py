@@ -220,3 +220,29 @@ def test_listed_reviewers_are_offered_as_a_choice(served: ReviewServer) -> None:
     _, _, text = request(served, "GET", "/", headers=headers)
     assert '<select id="by-h0" name="by" required>' in text
     assert '<option value="Dr. A. Reviewer">Dr. A. Reviewer (clinical psychologist)' in text
+
+
+def test_a_busy_port_is_a_plain_error(tmp_path: Path) -> None:
+    """Check --port on a port in use says so and how to fix it, without a traceback."""
+    import socket
+
+    from click.testing import CliRunner
+
+    from springback.cli import main
+
+    project = make_project(tmp_path / "study")
+    fake_build(project, tmp_path / "s1", holds=("P02",))
+    with socket.socket() as busy:
+        busy.bind(("127.0.0.1", 0))
+        busy.listen()
+        port = busy.getsockname()[1]
+        result = CliRunner().invoke(main, ["review", str(project), "--serve", "--port",
+                                           str(port)])
+    assert result.exit_code == 1
+    assert f"cannot listen on 127.0.0.1 port {port}" in result.output
+    assert "another --port" in result.output and "Traceback" not in result.output
+    server = make_server(project)
+    try:
+        assert server.server_address[1] > 0
+    finally:
+        server.server_close()
