@@ -165,7 +165,7 @@ def test_verify_covers_subjects(tmp_path: Path) -> None:
             "`springback forget` (expected the key of the participant in log entry 2"
             in _problems(project))
     os.chmod(path, 0o644)
-    assert "readable by others (expected mode 0600" in _problems(project)
+    assert "readable by others; run `chmod 600` on it (expected mode 0600" in _problems(project)
 
 
 def test_forget_keeps_verify_clean(tmp_path: Path) -> None:

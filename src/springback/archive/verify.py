@@ -160,7 +160,8 @@ def subject_mismatches(archive: Path, entries: list[dict[str, Any]]) -> list[Mis
     if path.exists():
         if os.name == "posix" and path.stat().st_mode & 0o077:
             out.append(Mismatch(name, "mode 0600 (only you)", oct(path.stat().st_mode & 0o777),
-                                "the participants' keys and review notes are readable by others"))
+                                "the participants' keys and review notes are readable by others; "
+                                "run `chmod 600` on it"))
         try:
             known = json.loads(path.read_text(encoding="utf-8"))
         except (OSError, ValueError):
