@@ -102,3 +102,29 @@ def test_every_reading_is_one_of_the_fixed_codes() -> None:
     for kind in ("step", "ramp", "flat"):
         assert _read({"shifts": _shifts(kind), "landscape": _landscape(1, None)}).reading \
             in COURSES
+
+
+def test_an_excursion_that_comes_back_is_not_an_abrupt_shift() -> None:
+    """Check a 12-day rise that returns to the usual level reads as no lasting shift."""
+    # Source: simulated excursion (known truth: level 40, 60 from day 20 to day 31, then 40
+    # again; noise SD 6), the kind of multi-day wander a slow process makes.
+    rng = np.random.default_rng(5)
+    hours = prompt_hours(60, 6, rng)
+    day = hours / 24
+    shape = 20.0 * ((day >= 20) & (day < 32))
+    values = np.clip(np.round(40 + shape + rng.normal(0, 6, hours.size)), 0, 100)
+    s = settings()
+    f = _read({"shifts": shift_family(prepare(participant(hours, values), s), s),
+               "landscape": _landscape(1, None)})
+    assert f.reading != "abrupt_shift"
+    assert f.numbers["large_shifts"] >= 1
+    assert f.numbers["shift_contrast"] < 2 * 6.0  # all days after vs all before: diluted
+    assert "shift_did_not_last" in [e["code"] for e in f.evidence]
+
+
+def test_a_clean_large_step_is_a_clear_shift() -> None:
+    """Check a step of 15 points (several swings, step model far better) is graded clear."""
+    # Source: simulated step (known truth, as in the first test); Kass & Raftery 1995 grade.
+    f = _read({"shifts": _shifts("step"), "landscape": _landscape(1, None)})
+    assert (f.reading, f.certainty) == ("abrupt_shift", "clear")
+    assert f.numbers["days_before_shift"] >= 7 and f.numbers["days_after_shift"] >= 7

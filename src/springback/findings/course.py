@@ -8,20 +8,34 @@ Scheffer 2013, "Flickering as an early warning signal", Theoretical Ecology 6:30
 Rules, in this order (thresholds are those of the family that computed the numbers):
 1. switching: the landscape has two robust valleys and the mood switched at least
    MIN_SWITCHES times (two round trips), or at least MIN_ALTERNATING large day-level shifts
-   alternate in direction while the bimodality coefficient exceeds 5/9 or the dip test gives
-   p < alpha (slow switching seen in daily means before the prompt-level landscape separates
-   it);
-2. abrupt shift: a change point larger than twice the usual day-to-day swing, and the step
-   model fits the daily means better than a gradual course (a straight line or a broken line
-   with one knot, for drifts that start mid-study), penalised as PELT is: 2 ln n per change
-   point, ln n for a slope, 3 ln n for slope, bend and knot, residuals in units of the
-   day-to-day noise, i.e. BIC with known variance (Schwarz 1978, Annals of Statistics
-   6:461-464). A staircase (the largest step is less than half of a run of same-direction
-   steps around it) is gradual, not abrupt;
+   turn back at least MIN_ALTERNATING - 1 times (up, down, up: a same-direction pair on the
+   way, as a level climbing out of a well in two steps, still counts) while the bimodality
+   coefficient exceeds 5/9 or the dip test gives p < alpha (slow switching seen in daily means
+   before the prompt-level landscape separates it);
+2. abrupt shift: a change point larger than twice the usual day-to-day swing that *lasts*,
+   and steps describe the daily means better than a gradual course. Steps: the PELT
+   segmentation fits the daily means better than a straight line or a broken line with one
+   knot (for drifts that start mid-study), penalised as PELT is: 2 ln n per change point,
+   ln n for a slope, 3 ln n for slope, bend and knot, residuals in units of the day-to-day
+   noise, i.e. BIC with known variance (Schwarz 1978, Annals of Statistics 6:461-464).
+   Lasts: the largest large change point has at least PERSIST_DAYS days on either side, the
+   mean of all days after it differs from the mean of all days before it by more than twice
+   the swing in the shift's direction, and the gradual course does not beat the model with
+   that one step alone by more than BARE_MENTION (Kass & Raftery 1995, JASA 90:773-795). A
+   change point that does not last (an excursion that comes back, a swing in the last days)
+   is not a shift: slow processes (a long half-life, a variance that grows) wander for days
+   at a time, and on simulated people with rising half-life and rising variance such wanders
+   were read as shifts in about half of them without this test; with it, a jump of two SDs is
+   still read as a shift in nearly all simulated people (tests/findings/test_calibration.py).
+   A staircase (the largest step is less than half of a run of same-direction steps around
+   it) is gradual, not abrupt;
 3. gradual change: the Theil-Sen slope of the daily means (Sen 1968, JASA 63:1379-1389) has a
    95% interval that excludes 0 and the drift over the study exceeds twice the day-to-day
    noise;
 4. otherwise no clear change.
+PERSIST_DAYS (a week, the span over which weekly questionnaires can bracket a shift) and the
+twice-the-swing contrast are design choices, calibrated on the simulated classes of
+tests/findings/test_calibration.py.
 Certainty: `clear` when the evidence is strong on every count (a shift of more than
 CLEAR_SHIFT_FACTOR swings whose step model wins by more than CLEAR_BIC, "very strong" on the
 scale of Kass & Raftery 1995, JASA 90:773-795; a drift of more than CLEAR_DRIFT_FACTOR times
@@ -49,8 +63,14 @@ COURSES = ("no_clear_change", "gradual_change", "abrupt_shift", "switching", "no
 MIN_SWITCHES = 4
 MIN_ALTERNATING = 3
 """Large day-level steps alternating in direction that read as switching (with two peaks)."""
+PERSIST_DAYS = 7
+"""Days needed on either side of a change point for it to read as a lasting shift."""
 STAIRCASE_SHARE = 0.5
 """A largest step below this share of its same-direction run reads as a drift, not a jump."""
+BARE_MENTION = 2.0
+"""A gradual course that beats the one-step model by more than this (BIC, on the 2 ln B scale)
+reads as gradual: Kass & Raftery 1995 call a difference up to 2 "not worth more than a bare
+mention"."""
 CLEAR_SHIFT_FACTOR = 3.0
 CLEAR_BIC = 10.0
 CLEAR_DRIFT_FACTOR = 3.0
@@ -107,6 +127,22 @@ def staircase(cps: pd.DataFrame) -> dict[str, Any] | None:
     return {"code": "staircase", "steps": b - a + 1, "days": span, "share": share}
 
 
+def lasting(days: np.ndarray, y: np.ndarray, level: np.ndarray, at: int, s: float,
+            swing: float) -> dict[str, Any]:
+    """Whether the change point starting day `at` lasts: days on both sides, the contrast of
+    all days after it with all days before it, and a one-step model against a gradual one."""
+    up = 1.0 if level[at] > level[at - 1] else -1.0
+    contrast = up * float(np.mean(y[at:]) - np.mean(y[:at]))
+    before, after = float(days[at] - days[0]), float(days[-1] - days[at] + 1)
+    one_step = np.where(np.arange(len(y)) < at, np.mean(y[:at]), np.mean(y[at:]))
+    tr = trend(days, y, one_step, 1, s)
+    lasts = (before >= PERSIST_DAYS and after >= PERSIST_DAYS
+             and contrast > SWING_FACTOR * swing
+             and float(tr["bic_gradual_minus_step"]) > -BARE_MENTION)
+    return {"lasts": bool(lasts), "contrast": contrast, "days_before": before,
+            "days_after": after, "bic": float(tr["bic_gradual_minus_step"])}
+
+
 def course(participant: str, families: Mapping[str, Family], alpha: float,
            higher_is_worse: bool) -> Finding:
     """Read the course of the mood level from the shifts and landscape families."""
@@ -126,11 +162,17 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
     y, level = daily["mean"].to_numpy(float), daily["level"].to_numpy(float)
     tr = trend(days, y, level, len(cps), s)
     stairs = staircase(cps)
+    shift: dict[str, Any] | None = None
+    if not big.empty:
+        sizes = big["size"].to_numpy(float)
+        largest_day = big["study_day"].to_numpy()[int(np.argmax(np.abs(sizes)))]
+        at = int(np.searchsorted(daily["study_day"].to_numpy(), largest_day))
+        shift = lasting(days, y, level, at, s, swing)
     valleys, switches = value(land, "landscape_valleys"), value(land, "switches")
     bc, dip_p = value(land, "bimodality_coefficient"), value(land, "dip_p")
     dirs = list(big["direction"])
-    alternating = len(dirs) >= MIN_ALTERNATING and all(
-        a != b for a, b in itertools.pairwise(dirs))
+    turns = sum(a != b for a, b in itertools.pairwise(dirs))
+    alternating = len(dirs) >= MIN_ALTERNATING and turns >= MIN_ALTERNATING - 1
     two_peaked = (bc is not None and bc > BC_THRESHOLD) or (dip_p is not None and dip_p < alpha)
     two_valleys = valleys == 2 and (switches or 0) >= MIN_SWITCHES
     drift_worse = (tr["drift"] > 0) == higher_is_worse
@@ -140,6 +182,10 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
         "noise_sd": s, "drift": tr["drift"], "slope_low": tr["slope_low"],
         "slope_high": tr["slope_high"], "bic_gradual_minus_step": tr["bic_gradual_minus_step"],
         "valleys": valleys, "switches": switches, "bimodality_coefficient": bc, "dip_p": dip_p}
+    if shift is not None:
+        numbers.update(shift_contrast=shift["contrast"], days_before_shift=shift["days_before"],
+                       days_after_shift=shift["days_after"],
+                       bic_gradual_minus_one_step=shift["bic"])
     evidence: list[dict[str, Any]] = []
     if two_valleys or (alternating and two_peaked):
         for code, n in (("valleys", valleys), ("switches", switches)):
@@ -155,7 +201,7 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
         sure = two_valleys and alternating and two_peaked
         return Finding(participant, "course", "switching", "clear" if sure else "some_signs",
                        numbers, evidence=tuple(evidence))
-    if len(big) > 0 and not tr["line_better"] and not stairs:
+    if shift is not None and shift["lasts"] and not tr["line_better"] and not stairs:
         ordered = big.iloc[np.argsort(-np.abs(big["size"].to_numpy(float)), kind="stable")]
         largest = ordered.iloc[0]
         for row in cast(Any, ordered.itertuples()):
@@ -170,7 +216,7 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
                        date=pd.Timestamp(largest["study_day"]).date().isoformat(),
                        first_date=first.date().isoformat(), swing_sd=swing)
         sure = (abs(float(largest["size"])) > CLEAR_SHIFT_FACTOR * swing
-                and -tr["bic_gradual_minus_step"] > CLEAR_BIC)
+                and shift["bic"] > CLEAR_BIC)
         return Finding(participant, "course", "abrupt_shift", "clear" if sure else "some_signs",
                        numbers, evidence=tuple(evidence))
     if tr["slope_excludes_zero"] and abs(tr["drift"]) > SWING_FACTOR * s:
@@ -182,7 +228,14 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
         sure = abs(tr["drift"]) > CLEAR_DRIFT_FACTOR * s
         return Finding(participant, "course", "gradual_change",
                        "clear" if sure else "some_signs", numbers, evidence=tuple(evidence))
-    evidence.append({"code": "no_big_shift"} if big.empty else {"code": "line_better"})
+    if shift is None:
+        evidence.append({"code": "no_big_shift"})
+    elif shift["lasts"] or tr["line_better"]:
+        evidence.append({"code": "line_better"})
+    else:
+        evidence.append({"code": "shift_did_not_last", "contrast": shift["contrast"],
+                         "days_before": shift["days_before"], "days_after": shift["days_after"],
+                         "factor": SWING_FACTOR})
     evidence.append({"code": "nothing_stood_out"})
     return Finding(participant, "course", "no_clear_change", "no_clear_sign", numbers,
                    evidence=tuple(evidence))
