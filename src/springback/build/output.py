@@ -136,14 +136,26 @@ class Previous:
 
     @classmethod
     def load(cls, project: Path) -> Previous | None:
-        """The latest build's record, or None before the first build."""
-        from springback.archive.manifest import latest_manifest
+        """The latest build's record, or None before the first build.
+
+        Only a build whose manifest the audit log vouches for, with every archived file as
+        listed, is reused; otherwise everyone is built anew, so nothing edited in the archive
+        (a hold flag taken out, a booklet changed) is carried into a new build.
+        """
+        from springback.archive.manifest import trusted_manifest
+        from springback.archive.verify import folder_mismatches
+        from springback.errors import ArchiveError
         from springback.files import project_dirs
 
-        manifest = latest_manifest(project)
+        try:
+            manifest = trusted_manifest(project)
+        except ArchiveError:
+            return None
         if not manifest:
             return None
         folder = project_dirs(project).archive / manifest["build"]
+        if folder_mismatches(folder, manifest):
+            return None
         return cls(project, folder, manifest)
 
     def carried(self, pid: str, staging: Path) -> ParticipantOutcome | None:
