@@ -109,3 +109,32 @@ def test_pdf_with_inline_data_and_own_fonts_is_made(tmp_path: Path) -> None:
            "P8z8BQDwAEhQGAhKmMIQAAAABJRU5ErkJggg==")
     pdf = html_to_pdf(PAGE.format(head="", body=f'<img src="{png}" alt="dot">'), tmp_path)
     assert pdf.startswith(b"%PDF") and b"root:" not in pdf
+
+
+def test_build_names_the_refused_template(tmp_path: Path) -> None:
+    """Check a build with the cycler escape in a study template fails that booklet, saying why."""
+    from click.testing import CliRunner
+
+    from springback.cli import main
+    from tests.cli.test_cli_fuzz import GOOD, TOML, _toml
+
+    project = tmp_path / "study"
+    (project / "data").mkdir(parents=True)
+    (project / "templates" / "sections").mkdir(parents=True)
+    (project / "templates" / "sections" / "reflect.html").write_text(
+        f"<p>{PAYLOAD}</p>", encoding="utf-8")
+    (project / "study.toml").write_text(TOML.format(**{k: _toml(v) for k, v in GOOD.items()}),
+                                        encoding="utf-8")
+    rows = ["participant,timestamp,sad,calm"]
+    rows += [f"p1,2024-03-{day:02d} {hour}:00,{(day * k) % 7 + 1},{(day + k) % 7 + 1}"
+             for day in range(1, 13) for k, hour in enumerate((9, 13, 17, 21), start=1)]
+    (project / "data" / "momentary.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    (project / "data" / "participants.csv").write_text(
+        "participant,language,consent,feedback\np1,en,yes,yes\n", encoding="utf-8")
+    result = CliRunner().invoke(main, ["build", str(project), "-j", "1", "-q"])
+    assert result.exit_code == 2
+    text = _words(result.output)
+    assert "Traceback" not in text and "uid=" not in text
+    assert ("templates/sections/reflect.html: the template reaches for '__init__' of a type "
+            "value, which booklet templates may not use") in text
+    assert not list((project / "out" / "booklets").rglob("*.html"))

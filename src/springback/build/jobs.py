@@ -75,10 +75,13 @@ def run_job(job: Job) -> ParticipantOutcome:
         with fewer_collections():
             return _run_job(job)
     except Exception as exc:  # one participant's failure never stops the others
+        from springback.errors import SpringbackError
+
+        told = isinstance(exc, SpringbackError)  # already a message for the user
         return ParticipantOutcome(
             participant=job.data.participant,
             status="failed",
-            reason=f"{type(exc).__name__}: {exc}",
+            reason=str(exc) if told else f"{type(exc).__name__}: {exc}",
             fingerprint=job.fingerprint,
             version=job.version,
         )
