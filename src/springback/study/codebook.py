@@ -10,7 +10,7 @@ therapist edition's tables); the other fields are written for a research team.
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
 import pandas as pd
@@ -243,10 +243,12 @@ def definition(name: str) -> Measure | None:
     return None
 
 
-def codebook(questionnaires: Iterable[str], extra: Iterable[Measure] = ()) -> pd.DataFrame:
+def codebook(questionnaires: Iterable[str], extra: Sequence[Measure] = ()) -> pd.DataFrame:
     """The codebook: one row per measure (registry order), then the participants table's
-    other columns (`extra`)."""
+    other columns (`extra`; a `participant` row among them leads)."""
+    ids = [m for m in extra if m.name == "participant"]
+    rest = [m for m in extra if m.name != "participant"]
     rows = [{"measure": m.name, "meaning": f"{m.label}: {m.meaning}", "unit": m.unit,
              "range": m.range, "method": m.method, "reference": m.reference}
-            for m in [*expand(questionnaires), *extra]]
+            for m in [*ids, *expand(questionnaires), *rest]]
     return pd.DataFrame(rows, columns=list(CODEBOOK_COLUMNS))

@@ -135,7 +135,8 @@ def group_estimates(table: pd.DataFrame, pairs: pd.DataFrame) -> pd.DataFrame:
     rows.append({"estimate": "inertia_person_mean", "label": "Mean of person-level inertia",
                  "value": mean, "lower": lo, "upper": hi, "n": int(np.isfinite(x).sum()),
                  "method": "mean of the participants' inertia, t 95% interval"})
-    ends = sorted(half_life(v, gap) for v in (mixed["lower"], mixed["upper"]))
+    # The half-life grows with phi, so the interval's ends are those of phi's ends.
+    ends = (half_life(mixed["lower"], gap), half_life(mixed["upper"], gap))
     rows.append({"estimate": "half_life_mixed", "label": "Half-life in hours, multilevel model",
                  "value": half_life(mixed["phi"], gap), "lower": ends[0], "upper": ends[1],
                  "n": mixed["people"],

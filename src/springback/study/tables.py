@@ -89,8 +89,10 @@ def participants(metrics: pd.DataFrame, findings: pd.DataFrame,
 
 
 def reading_columns(table: pd.DataFrame) -> list[Measure]:
-    """Codebook rows for the participants table's columns that are not measures."""
-    out = []
+    """Codebook rows for the participants table's columns that are not measures (the id,
+    readings, certainties and interval ends)."""
+    out = [Measure("participant", "Participant", "The participant's id, as in the roster",
+                   "id", "the roster's ids", "roster (data.participants)")]
     for col in table.columns:
         if col.startswith("reading_"):
             topic = col.removeprefix("reading_")
