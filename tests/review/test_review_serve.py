@@ -246,3 +246,24 @@ def test_a_busy_port_is_a_plain_error(tmp_path: Path) -> None:
         assert server.server_address[1] > 0
     finally:
         server.server_close()
+
+
+def test_an_id_with_a_space_opens_its_booklet(tmp_path: Path) -> None:
+    """Check booklet links quote the id and the server reads it back."""
+    import re
+
+    ids = ("P 1", "P02")
+    project = make_project(tmp_path / "study", ids=ids)
+    fake_build(project, tmp_path / "s1", holds=("P 1",), ids=ids)
+    server = make_server(project)
+    threading.Thread(target=server.serve_forever, daemon=True).start()
+    try:
+        headers = login(server)
+        _, _, page = request(server, "GET", "/", headers=headers)
+        link = re.search(r'href="(/booklet/P%201/participant\.html)"', page)
+        assert link is not None
+        status, _, text = request(server, "GET", link.group(1), headers=headers)
+        assert status == 200 and "booklet for P 1" in text
+    finally:
+        server.shutdown()
+        server.server_close()

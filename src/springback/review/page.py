@@ -9,6 +9,7 @@ from __future__ import annotations
 from html import escape
 from pathlib import Path
 from typing import Any
+from urllib.parse import quote
 
 STYLE = """
 body { font-family: system-ui, sans-serif; line-height: 1.5; max-width: 72rem; margin: 0 auto;
@@ -73,7 +74,8 @@ def _links(pid: str, files: list[str]) -> str:
     out = []
     for rel in files:
         name = rel.rsplit("/", 1)[-1]
-        out.append(f"<a href=\"/booklet/{escape(pid)}/{escape(name)}\" aria-label=\""
+        href = f"/booklet/{quote(pid, safe='')}/{quote(name, safe='')}"
+        out.append(f"<a href=\"{escape(href)}\" aria-label=\""
                    f"{escape(pid)}, {escape(name)}\">{escape(name)}</a>")
     return " · ".join(out) or "–"
 

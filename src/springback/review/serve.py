@@ -26,7 +26,7 @@ from http.cookies import SimpleCookie
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
 from pathlib import Path
 from typing import Any
-from urllib.parse import parse_qs, urlsplit
+from urllib.parse import parse_qs, unquote, urlsplit
 
 from springback.errors import SpringbackError
 from springback.files import project_dirs, sha256_bytes
@@ -208,7 +208,7 @@ class Handler(BaseHTTPRequestHandler):
         except SpringbackError as exc:
             self._refuse(HTTPStatus.CONFLICT, str(exc))
             return
-        pid, _, name = rest.partition("/")
+        pid, _, name = (unquote(part) for part in rest.partition("/"))
         rec = manifest.get("participants", {}).get(pid, {})
         rel = next((f for f in rec.get("files", []) if f == f"booklets/{pid}/{name}"), None)
         kind = CONTENT_TYPES.get(Path(name).suffix)
