@@ -242,3 +242,19 @@ def test_a_zone_far_from_the_studys_is_warned(tmp_path: Path) -> None:
         "hours from the study's Europe/Amsterdam (row 2: JST); they are read in their own "
         "zone. Fix: check the device's time zone, or the study's timezone under [study]")
     assert len(study.momentary) == 3
+
+
+def test_without_prompts_per_day_the_listed_prompts_are_sent(tmp_path: Path) -> None:
+    # Rule 3: no design number, but the file lists unanswered prompts (row 3 has a time).
+    rows = ("participant,timestamp,sad,calm\np1,2024-03-04 09:00,3,5\n"
+            "p1,2024-03-04 13:00,,\np2,2024-03-04 10:00,2,6\n")
+    root = make_project(tmp_path / "p", files={"data/momentary.csv": rows,
+                                               "data/participants.csv": ROSTER})
+    q = load_study(root).quality.set_index("participant")
+    assert q["scheduled"].to_dict() == {"p1": 2.0, "p2": 1.0}
+
+
+def test_without_design_or_listed_prompts_compliance_is_unknown(tmp_path: Path) -> None:
+    # Rule 4: answered rows only and no prompts_per_day: the number sent is not known.
+    q = load_study(make_project(tmp_path / "p")).quality
+    assert q["scheduled"].isna().all() and q["compliance"].isna().all()
