@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import io
+import math
 import os
 import subprocess
 import sys
@@ -184,3 +185,23 @@ def test_results_reads_out_or_the_latest_archived_build(tmp_path: Path) -> None:
     pd.testing.assert_frame_equal(again["warning_table"], got["warning_table"])
     with pytest.raises(FileNotFoundError):
         study.results(tmp_path / "empty")
+
+
+def test_an_empty_or_tiny_cohort_still_gets_its_files() -> None:
+    """Check a study where nobody has metrics, or one person has, gives every file and says
+    "not available" instead of numbers it cannot have."""
+    settings = metrics_sim.settings_for()
+    metrics_long, findings, schedule, pairs = sample_inputs()
+    for keep in ([], ["S00"]):
+        frames = study.compute(metrics_long[metrics_long["participant"].isin(keep)],
+                               findings[findings["participant"].isin(keep)],
+                               schedule[schedule["participant"].isin(keep)],
+                               pairs[pairs["participant"].isin(keep)], settings)
+        files = study_files_of(frames, "Tiny", 0.05)
+        assert sorted(files) == sorted(f"study/{n}" for n in study.STUDY_FILES)
+        group = frames["group_estimates"].set_index("estimate")
+        assert math.isnan(group.loc["inertia_mixed", "value"])
+        assert len(frames["participants"]) == len(keep)
+        page = Outline()
+        page.feed(files["study/results.html"].decode("utf-8"))
+        assert page.headings.count(1) == 1 and page.captions == page.tables

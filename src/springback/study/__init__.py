@@ -70,8 +70,12 @@ def _read(data: bytes) -> pd.DataFrame:
 def study_files(study: Study, tables: Mapping[str, bytes]) -> dict[str, bytes]:
     """The files of out/study/ (paths relative to out/) for a build's study tables."""
     metrics, findings = _read(tables["metrics.csv"]), _read(tables["findings.csv"])
-    people = sorted(set(metrics["participant"].astype(str)))
+    # An id a spreadsheet would run as a formula is quoted in metrics.csv ("'=P1").
+    known = set(study.participants())
+    people = sorted({p if p in known else p[1:] for p in metrics["participant"].astype(str)
+                     if p in known or p[1:] in known})
     pairs = group.within_day_pairs(study, people)
+    pairs["participant"] = pairs["participant"].map(t.safe_cell)
     frames = compute(metrics, findings, study.schedule, pairs, study.settings)
     return files(frames, study.settings.study.title, study.settings.metrics.alpha)
 

@@ -28,7 +28,8 @@ FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 leading apostrophe, as in the build's study tables; numbers are left as they are."""
 
 
-def _safe(value: object) -> object:
+def safe_cell(value: object) -> object:
+    """The cell as a study table writes it: formula-like text quoted, anything else as is."""
     if not isinstance(value, str) or not value.startswith(FORMULA_STARTS):
         return value
     try:
@@ -43,7 +44,7 @@ def csv_bytes(df: pd.DataFrame) -> bytes:
     text = [c for c in df.columns
             if df[c].dtype == object or pd.api.types.is_string_dtype(df[c].dtype)]
     if text:
-        df = df.assign(**{str(c): df[c].map(_safe) for c in text})
+        df = df.assign(**{str(c): df[c].map(safe_cell) for c in text})
     buf = io.StringIO()
     df.to_csv(buf, index=False, lineterminator="\n")
     return buf.getvalue().encode("utf-8")
