@@ -258,3 +258,15 @@ def test_without_design_or_listed_prompts_compliance_is_unknown(tmp_path: Path) 
     # Rule 4: answered rows only and no prompts_per_day: the number sent is not known.
     q = load_study(make_project(tmp_path / "p")).quality
     assert q["scheduled"].isna().all() and q["compliance"].isna().all()
+
+
+def test_unreadable_day_and_prompt_numbers_are_told_by_row(tmp_path: Path) -> None:
+    rows = "p1,1,1,3,5\np1,x,2,,\np1,1,7,4,4\np1,1e9,1,4,4\np1,2,,,\n"
+    report = check_study(_numbers(tmp_path / "p", rows))
+    found = [(p.row, p.column, p.what) for p in report.errors]
+    # Rows counted in the file above (header = row 1); row 6 has no prompt and no answer.
+    assert found == [
+        (3, "day", "the day number is not a whole number from 1 to 36,600"),
+        (5, "day", "the day number is not a whole number from 1 to 36,600"),
+        (4, "beep", "the prompt number has no time in prompt_times"),
+    ]

@@ -23,6 +23,9 @@ from springback.intake.readers import Table, as_number, as_text
 from springback.settings import StudySettings
 from springback.settings.data_files import parse_clock
 
+MAX_DAY = 36_600
+"""The largest day number read (about a hundred years)."""
+
 TIME_KEY = "timestamp"
 """The raw column the built times go into (as local ISO text, read like any timestamp)."""
 
@@ -86,8 +89,9 @@ def build_times(where: str, raw: pd.DataFrame, given: np.ndarray, settings: Stud
     day = pd.to_datetime(as_text(raw["date"], missing), errors="coerce", format="ISO8601")
     clock = as_text(raw["clock"], missing)
     seconds = _clock_seconds(clock)
-    bad_day = given & day.isna().to_numpy() & as_text(raw["date"], missing).notna().to_numpy()
-    bad_clock = given & np.isnan(seconds) & clock.notna().to_numpy()
+    named = as_text(raw["participant"], missing).notna().to_numpy()
+    bad_day = named & day.isna().to_numpy() & as_text(raw["date"], missing).notna().to_numpy()
+    bad_clock = named & np.isnan(seconds) & clock.notna().to_numpy()
     rows, who = raw["source_row"].to_numpy(), _who(raw, missing)
     sink.bad_rows(where, rows[bad_day], who[bad_day], [f"'{v}'" for v in raw["date"][bad_day]],
                   what="the date cannot be read", column=data.columns.date,
@@ -113,9 +117,14 @@ def _from_day_numbers(where: str, raw: pd.DataFrame, given: np.ndarray,
     offsets = np.array([h * 3600 + m * 60 + s for h, m, s in (t for t in times if t)], dtype=float)
     bad = np.zeros(len(raw), bool)
 
+    named = as_text(raw["participant"], missing).notna().to_numpy()
+
     def report(hit: np.ndarray, column: str | None, values: pd.Series, what: str,
-               expected: str, code: str, fix: str | None = None) -> None:
-        hit = hit & given & ~bad
+               expected: str, code: str, fix: str | None = None, unanswered: bool = False
+               ) -> None:
+        # An unreadable number is told on unanswered rows too (it decides what was sent);
+        # a missing one only with an answer (rows with no time and no answer are no prompt).
+        hit = hit & (named if unanswered else given) & ~bad
         extra = {"fix": fix} if fix else {}
         sink.bad_rows(where, rows[hit], who[hit], [f"'{v}'" for v in values[hit]], what=what,
                       column=column, expected=expected, code=code, **extra)
@@ -123,10 +132,10 @@ def _from_day_numbers(where: str, raw: pd.DataFrame, given: np.ndarray,
 
     d = day.to_numpy()
     p = prompt.to_numpy()
-    day_ok = np.isfinite(d) & (d >= 1) & (d == np.round(d))
+    day_ok = np.isfinite(d) & (d >= 1) & (d <= MAX_DAY) & (d == np.round(d))
     report(day_wrong.to_numpy() | (np.isfinite(d) & ~day_ok), cols.day, raw["day"],
-           "the day number is not a whole number from 1", "a study day number (1 = day 1)",
-           "bad-day-number")
+           f"the day number is not a whole number from 1 to {MAX_DAY:,}",
+           "a study day number (1 = day 1)", "bad-day-number", unanswered=True)
     report(np.isnan(d) & ~day_wrong.to_numpy(), cols.day, raw["day"],
            "the day number is missing", "a study day number (1 = day 1)", "missing-time")
     n = len(offsets)
@@ -135,7 +144,7 @@ def _from_day_numbers(where: str, raw: pd.DataFrame, given: np.ndarray,
            raw["prompt"], "the prompt number has no time in prompt_times",
            f"a whole number from 1 to {n} (prompt_times under [data] lists {n} times)",
            "bad-prompt-number", fix="correct the value, or list every prompt's time in "
-           "prompt_times under [data]")
+           "prompt_times under [data]", unanswered=True)
     report(np.isnan(p) & ~prompt_wrong.to_numpy(), cols.prompt, raw["prompt"],
            "the prompt number is missing, so the answer has no time",
            "the number of the prompt within its day", "missing-time")
