@@ -194,13 +194,13 @@ def _readings(readings: pd.DataFrame) -> str:
 
 def _group(people: pd.DataFrame, group: pd.DataFrame) -> str:
     out = ['<section id="group">\n<h2>Group-level estimates</h2>',
-           "<p>Mean inertia of the group from a multilevel model (the next answer's deviation "
-           "on the current one, a random intercept and a random slope per participant, on the "
-           "pairs of answers on one day the booklets use), beside the plain mean of the "
-           "person-level estimates; the half-life follows from inertia and the median time "
-           "between paired answers. The trends are the mean Kendall tau of each rolling "
-           "indicator across participants (above 0: the indicator rose over the study on "
-           "average).</p>",
+           "<p>Mean inertia of the group from a multilevel model (the next answer on the "
+           "current answer's deviation from the person's mean, a random intercept and a random "
+           "slope per participant, on the pairs of answers on one day the booklets use), "
+           "beside the plain mean of the person-level estimates; the half-life follows from "
+           "inertia and the median time between paired answers. The trends are the mean "
+           "Kendall tau of each rolling indicator across participants (above 0: the indicator "
+           "rose over the study on average).</p>",
            table(group, "Group-level estimates with 95% intervals",
                  {"label": "Estimate", "value": "Value", "lower": "Lower", "upper": "Upper",
                   "n": "Participants", "method": "Method"}, {"n": _int})]
@@ -220,9 +220,10 @@ def _warnings(counts: pd.DataFrame, accuracy: pd.DataFrame, alpha: float) -> str
     return "\n".join([
         '<section id="before-shifts">\n<h2>Did the indicators rise before shifts?</h2>',
         "<p>For participants whose course read as an abrupt shift, the warning reading is that "
-        "of the lead-up (the answers before the first large shift); for the others, that of "
-        "all their data. This is what happened in this study: with so few participants the "
-        "intervals are wide, and none of it shows that rising indicators predict a shift.</p>",
+        "of the lead-up (the answers before the first large shift); for the others (no_shift: "
+        "no clear change, gradual change or switching), that of all their data. This is "
+        "what happened in this study: with so few participants the intervals are wide, and "
+        "none of it shows that rising indicators predict a shift.</p>",
         table(counts, "Warning reading by course: participants",
               {"group": "Course", "rising": "Rising", "not_rising": "Not rising",
                "read": "Read", "not_read": "Not enough data"}),
