@@ -18,23 +18,27 @@ Rules, in this order (thresholds are those of the family that computed the numbe
    knot (for drifts that start mid-study), penalised as PELT is: 2 ln n per change point,
    ln n for a slope, 3 ln n for slope, bend and knot, residuals in units of the day-to-day
    noise, i.e. BIC with known variance (Schwarz 1978, Annals of Statistics 6:461-464).
-   Lasts: the largest large change point has at least PERSIST_DAYS days on either side, the
-   mean of all days after it differs from the mean of all days before it by more than twice
-   the swing in the shift's direction, and the gradual course does not beat the model with
+   Lasts: the largest large change point has at least PERSIST_DAYS days on either side; in
+   the shift's direction, the mean of all days after it differs from the mean of all days
+   before it by more than twice the swing, and so does the step over and above a straight
+   line (least squares on intercept, day and step: a steady drift also makes the days after
+   a point differ from those before); and the gradual course does not beat the model with
    that one step alone by more than BARE_MENTION (Kass & Raftery 1995, JASA 90:773-795). A
    change point that does not last (an excursion that comes back, a swing in the last days)
    is not a shift: slow processes (a long half-life, a variance that grows) wander for days
    at a time, and on simulated people with rising half-life and rising variance such wanders
-   were read as shifts in about half of them without this test; with it, a jump of two SDs is
-   still read as a shift in nearly all simulated people (tests/findings/test_calibration.py).
-   A staircase (the largest step is less than half of a run of same-direction steps around
+   were read as shifts in about half of them without this test; with it, a jump of two SDs
+   is still read as a shift in about nine in ten simulated people
+   (tests/findings/test_calibration.py). A passing episode that returns to the usual level
+   is therefore not a shift either; its evidence says that the change did not last;
+   a staircase (the largest step is less than half of a run of same-direction steps around
    it) is gradual, not abrupt;
 3. gradual change: the Theil-Sen slope of the daily means (Sen 1968, JASA 63:1379-1389) has a
    95% interval that excludes 0 and the drift over the study exceeds twice the day-to-day
    noise;
 4. otherwise no clear change.
 PERSIST_DAYS (a week, the span over which weekly questionnaires can bracket a shift) and the
-twice-the-swing contrast are design choices, calibrated on the simulated classes of
+twice-the-swing level change are design choices, calibrated on the simulated classes of
 tests/findings/test_calibration.py.
 Certainty: `clear` when the evidence is strong on every count (a shift of more than
 CLEAR_SHIFT_FACTOR swings whose step model wins by more than CLEAR_BIC, "very strong" on the
@@ -129,18 +133,24 @@ def staircase(cps: pd.DataFrame) -> dict[str, Any] | None:
 
 def lasting(days: np.ndarray, y: np.ndarray, level: np.ndarray, at: int, s: float,
             swing: float) -> dict[str, Any]:
-    """Whether the change point starting day `at` lasts: days on both sides, the contrast of
-    all days after it with all days before it, and a one-step model against a gradual one."""
+    """Whether the change point starting day `at` lasts: days on both sides, the level change
+    (all days after against all days before, and the step over and above a straight-line
+    trend), and the one-step model against a gradual one."""
     up = 1.0 if level[at] > level[at - 1] else -1.0
-    contrast = up * float(np.mean(y[at:]) - np.mean(y[:at]))
+    after_step = np.arange(len(y)) >= at
+    contrast = up * float(np.mean(y[after_step]) - np.mean(y[~after_step]))
+    design = np.column_stack([np.ones(len(y)), days, after_step])
+    coef, *_ = np.linalg.lstsq(design, y, rcond=None)
+    net = up * float(coef[2])
     before, after = float(days[at] - days[0]), float(days[-1] - days[at] + 1)
-    one_step = np.where(np.arange(len(y)) < at, np.mean(y[:at]), np.mean(y[at:]))
+    one_step = np.where(after_step, np.mean(y[after_step]), np.mean(y[~after_step]))
     tr = trend(days, y, one_step, 1, s)
     lasts = (before >= PERSIST_DAYS and after >= PERSIST_DAYS
-             and contrast > SWING_FACTOR * swing
+             and min(contrast, net) > SWING_FACTOR * swing
              and float(tr["bic_gradual_minus_step"]) > -BARE_MENTION)
-    return {"lasts": bool(lasts), "contrast": contrast, "days_before": before,
-            "days_after": after, "bic": float(tr["bic_gradual_minus_step"])}
+    return {"lasts": bool(lasts), "contrast": contrast, "net_of_trend": net,
+            "days_before": before, "days_after": after,
+            "bic": float(tr["bic_gradual_minus_step"])}
 
 
 def course(participant: str, families: Mapping[str, Family], alpha: float,
@@ -183,7 +193,9 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
         "slope_high": tr["slope_high"], "bic_gradual_minus_step": tr["bic_gradual_minus_step"],
         "valleys": valleys, "switches": switches, "bimodality_coefficient": bc, "dip_p": dip_p}
     if shift is not None:
-        numbers.update(shift_contrast=shift["contrast"], days_before_shift=shift["days_before"],
+        numbers.update(shift_contrast=shift["contrast"],
+                       shift_net_of_trend=shift["net_of_trend"],
+                       days_before_shift=shift["days_before"],
                        days_after_shift=shift["days_after"],
                        bic_gradual_minus_one_step=shift["bic"])
     evidence: list[dict[str, Any]] = []
@@ -234,6 +246,7 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
         evidence.append({"code": "line_better"})
     else:
         evidence.append({"code": "shift_did_not_last", "contrast": shift["contrast"],
+                         "net_of_trend": shift["net_of_trend"],
                          "days_before": shift["days_before"], "days_after": shift["days_after"],
                          "factor": SWING_FACTOR})
     evidence.append({"code": "nothing_stood_out"})
