@@ -196,3 +196,14 @@ def test_unknown_entries_under_archive_are_refused(tmp_path: Path) -> None:
     assert "notes.txt: springback did not make this" in text and "an unknown file" in text
     assert "data-link: springback makes no links in archive/" in text
     assert ".0002-20260306T120000Z.partial-99: a build or write was stopped here" in text
+
+
+def test_short_key_is_refused_before_any_work(tmp_path: Path,
+                                              monkeypatch: pytest.MonkeyPatch) -> None:
+    """Check `check` (and so `build`, before it starts) names a key too short to sign with."""
+    project = make_project(tmp_path / "study")
+    monkeypatch.setenv(audit.KEY_VARIABLE, "short")
+    result = CliRunner().invoke(main, ["check", str(project)])
+    assert result.exit_code == 1
+    assert ("environment: SPRINGBACK_AUDIT_KEY: is set but holds only 5 characters. Fix: use a "
+            "secret of at least 16") in _words(result.output)

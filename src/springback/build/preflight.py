@@ -27,7 +27,22 @@ def study_problems(project: Path, study: Study) -> list[Problem]:
     problems += catalogue_problems(sorted(undeclared), where="data/participants.csv: language")
     problems += expired_builds(project, study.settings)
     problems += contact_problems(project, study.settings)
+    problems += _key_problems()
     return problems
+
+
+def _key_problems() -> list[Problem]:
+    """A signing key in the environment that the audit log could not use (found before work)."""
+    from springback.archive.audit import KEY_VARIABLE, audit_key
+    from springback.errors import ArchiveError, error
+
+    try:
+        audit_key()
+    except ArchiveError as exc:
+        what, _, fix = str(exc).partition("; use ")
+        return [error(f"environment: {KEY_VARIABLE}", what.removeprefix(f"{KEY_VARIABLE} "),
+                      fix="use " + fix, code="audit-key")]
+    return []
 
 
 def preflight(project: Path, *, strict: bool = False) -> CheckReport:
