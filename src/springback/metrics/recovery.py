@@ -21,9 +21,12 @@ x_j - m = e^{-k dt} (x_i - m) + w, Var(w) = s2 (1 - e^{-2 k dt}) (Uhlenbeck & Or
 "On the theory of the Brownian motion", Phys Rev 36:823; Gardiner 2009, "Stochastic methods",
 §3.8.4). Each episode is conditioned on its first answer (however the upset arose, the return
 from there is the same process) and followed until the next upsetting event, the next
-episode, the end of data or `FOLLOW_HOURS`. The exact likelihood comes from the Kalman filter
-of `dynamics` (Harvey 1989, from memory) with m (the level returned to, relative to the
-baseline), s2 and r2 profiled out; the interval for k is from the profile likelihood
+episode, the end of data or `FOLLOW_HOURS`. Deviations are from the person's mean, or, when the
+level itself drifts (`slow_trend_share` above `TREND_REFERENCE_SHARE`), from the slow trend of
+the early-warning detrending (which shortens a stationary 24 h half-life by a fifth, so it is
+kept for drifting levels). The exact likelihood comes from the Kalman filter of `dynamics`
+(Harvey 1989, from memory) with m (the level returned to, relative to the reference), s2 and
+r2 profiled out; the interval for k is from the profile likelihood
 (chi-square, 1 df). Half-life = ln 2 / k. Ended at night, the same episodes gave half-lives of
 0.6-0.7 of a simulated 12 h truth, or none at all.
 
@@ -40,8 +43,15 @@ import math
 import numpy as np
 import pandas as pd
 
+from springback.metrics import _rolling as rl
 from springback.metrics._series import Series, hours_since
-from springback.metrics.dynamics import fit_ou, fit_ou_noise, rate_status, segments
+from springback.metrics.dynamics import (
+    fit_ou,
+    fit_ou_noise,
+    rate_status,
+    segments,
+    slow_trend_share,
+)
 from springback.metrics.results import Estimate, Family
 from springback.model import ParticipantData
 from springback.settings import StudySettings
@@ -55,6 +65,10 @@ MIN_FIT_POINTS = 8
 FOLLOW_HOURS = 48.0
 """Longest follow-up of an episode for the pooled fit (design choice: two nights, twice the
 slowest half-life checked in the tests)."""
+TREND_REFERENCE_SHARE = 0.25
+"""Above this `slow_trend_share` the followed deviations are taken from the slow trend instead
+of the person's mean (design choice: simulated stationary people with half-lives up to 24 h
+stayed below 0.22, the example study's drifting and shifting people were at 0.33-0.77)."""
 
 
 def rolling_baseline(series: Series, days: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -147,17 +161,20 @@ def km_median(times: np.ndarray, observed: np.ndarray) -> float:
     return float(times[below[0]]) if len(below) else float("nan")
 
 
-def follow_up(series: Series, episodes: list[dict], events: np.ndarray
+def follow_up(series: Series, episodes: list[dict], events: np.ndarray,
+              reference: np.ndarray | None = None
               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Every episode's answers for the pooled fit, nights included: episode, hours, deviation.
 
     An episode is followed from its first answer up to the next episode's first answer, and
     never to an answer after the next upsetting event or beyond FOLLOW_HOURS. The deviation is
-    from the person's mean, positive = worse (the level returned to is fitted: a baseline per
-    episode would add its own error to each episode and read as slow return).
+    from `reference` (one level per answer; default the person's mean), positive = worse. The
+    level returned to is fitted: a baseline per episode would add its own error to each
+    episode and read as slow return (12 h came out as 14 h with 85% coverage).
     """
     t = series.hours
-    level = float(series.value.mean()) if series.n else 0.0
+    if reference is None:
+        reference = np.full(series.n, float(series.value.mean()) if series.n else 0.0)
     starts = [ep["index"] for ep in episodes]
     parts: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
     for e_no, ep in enumerate(episodes, start=1):
@@ -168,7 +185,7 @@ def follow_up(series: Series, episodes: list[dict], events: np.ndarray
         # only conditions the next), unless an upsetting event came in between.
         stop = min(int(np.searchsorted(t, until, side="left")),
                    starts[e_no] + 1 if e_no < len(starts) else series.n)
-        dev = series.worse(series.value[i:stop] - level)
+        dev = series.worse(series.value[i:stop] - reference[i:stop])
         parts.append((np.full(stop - i, e_no), t[i:stop] - t[i], dev))
     if not parts:
         return np.zeros(0, dtype=int), np.zeros(0), np.zeros(0)
@@ -201,8 +218,12 @@ def bounce_back(series: Series, data: ParticipantData, settings: StudySettings) 
            "n_censored": Estimate(float(n_cens), n=n_ep,
                                   note="episodes cut off by the night, the end of data or the "
                                        "next event before recovery")}
+    share = slow_trend_share(series, m.bandwidth_days)
+    drifting = share.ok and float(share.value or 0.0) > TREND_REFERENCE_SHARE
+    reference = rl.gaussian_trend(series.hours, series.value, m.bandwidth_days * 24.0) \
+        if drifting else None
     est["recovery_half_life_hours"], fit_df, followed = _pooled_estimate(
-        series, episodes, events, aligned_df)
+        series, episodes, events, aligned_df, reference)
     if n_ep >= MIN_EPISODES:
         times = np.where(table["censored"], 0.0, table["hours_to_baseline"].fillna(0.0))
         # A censored episode is known to last at least until its last observed answer.
@@ -225,6 +246,8 @@ def bounce_back(series: Series, data: ParticipantData, settings: StudySettings) 
                 "recovery_band_sd": m.recovery_band_sd, "max_gap_hours": m.max_gap_hours,
                 "min_baseline_answers": MIN_BASELINE_ANSWERS, "min_episodes": MIN_EPISODES,
                 "events_upsetting": len(events), "follow_hours": FOLLOW_HOURS,
+                "reference": f"Gaussian trend, kernel SD {m.bandwidth_days:g} days"
+                             if drifting else "the person's mean",
                 "curve": "Ornstein-Uhlenbeck with answer noise, exact transitions across "
                          "nights, each episode from its first answer; profile-likelihood "
                          "interval",
@@ -250,10 +273,11 @@ def pooled_fit(episode: np.ndarray, hours: np.ndarray, dev: np.ndarray) -> dict[
 
 
 def _pooled_estimate(series: Series, episodes: list[dict], events: np.ndarray,
-                     aligned: pd.DataFrame) -> tuple[Estimate, pd.DataFrame, pd.DataFrame]:
+                     aligned: pd.DataFrame, reference: np.ndarray | None
+                     ) -> tuple[Estimate, pd.DataFrame, pd.DataFrame]:
     """Fit the pooled return across nights; the half-life with interval, curve and answers."""
     n_ep = len(episodes)
-    no, h, d = follow_up(series, episodes, events)
+    no, h, d = follow_up(series, episodes, events, reference)
     followed = pd.DataFrame({"episode": no, "hours": h, "deviation": d})
     empty = pd.DataFrame({"hours": pd.Series([], dtype=float),
                           "deviation": pd.Series([], dtype=float)})
