@@ -33,8 +33,8 @@ def test_refer_flags_reach_the_list_without_a_booklet(quick_example: Path,
     rows = _actions(quick_example)
     assert set(rows) == {"P09", "P12"}
     assert rows["P09"]["reason"].startswith("stopped answering: no answers for 107.0 days")
-    assert rows["P09"]["since"] == "2026-02-06"
-    assert rows["P12"]["since"] == "2026-05-14"
+    assert rows["P09"]["since"] == "2026-02-13"  # 7 days after the last answer
+    assert rows["P12"]["since"] == "2026-05-21"
     assert rows["P09"]["booklet"].startswith("none: 23 answered prompts")
     page = (quick_example / "out" / "index.html").read_text(encoding="utf-8")
     todo = page[page.index('id="todo"'):page.index('id="with-booklet"')]

@@ -156,3 +156,14 @@ def test_init_template_shows_the_reviewers_list() -> None:
         '# name = "Dr. A. Example"', 'name = "Dr. A. Example"')
     settings, _ = from_mapping(tomllib.loads(used))
     assert [r.name for r in settings.review.reviewers] == ["Dr. A. Example"]
+
+
+def test_a_silence_applies_its_days_after_the_last_answer(tmp_path: Path) -> None:
+    """Check a silence rule of 7 days first applied 7 days after the last answer."""
+    project = make_project(tmp_path / "study")
+    with open(project / "study.toml", "a", encoding="utf-8") as fh:
+        fh.write('\n[[safety.rules]]\nname = "stopped answering"\nsilence_days = 7\n'
+                 'action = "refer"\n')
+    fake_build(project, tmp_path / "s1", extra=no_booklet())
+    (action,) = actions.open_actions(project)
+    assert action.since == "2026-02-13" and action.when == "2026-02-06"

@@ -136,12 +136,13 @@ def overview(project: Path, study: Study, outcomes: Iterable[ParticipantOutcome]
     """The overview page and out/actions.csv of this build."""
     from springback import render
     from springback.build.records import BOOKLETS
-    from springback.review.actions import actions_csv, open_actions
+    from springback.review.actions import actions_csv, open_actions, silence_rules
     from springback.safety.rules import study_end
 
     outcomes = list(outcomes)
     records = {o.participant: outcome_record(o) for o in outcomes}
-    actions = open_actions(project, records, today=built_at.date().isoformat())
+    actions = open_actions(project, records, today=built_at.date().isoformat(),
+                           silence=silence_rules(study.settings))
     by_person: dict[str, list[Any]] = {}
     for a in actions:
         by_person.setdefault(a.participant, []).append(a)

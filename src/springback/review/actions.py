@@ -17,13 +17,14 @@ waits for a decision). A 'refer' or 'hold' action stays open across builds until
 entry in the audit log records it done for the same triggering data (the flag's `when`); a
 later hit of the same rule (new data) opens it again. A 'review' action closes with the
 approval or rejection of that booklet version (`review.gate`). `since` is the date the rule
-first applied in the current run of builds: the date of its data (for a silence, the last
-answer), or the build's date when the flag has none.
+first applied in the current run of builds: the date of its data (for a silence rule of N
+days, N days after the last answer), or the build's date when the flag has none.
 """
 
 from __future__ import annotations
 
 import csv
+import datetime as dt
 import io
 from dataclasses import dataclass
 from pathlib import Path
@@ -81,8 +82,31 @@ def _booklet(rec: dict[str, Any], held: bool) -> str:
     return f"none: {why}"
 
 
-def _candidates(pid: str, rec: dict[str, Any]) -> list[dict[str, str]]:
+def silence_rules(settings: Any) -> dict[str, int]:
+    """Rule name -> silence_days of each silence rule, from settings or their manifest form."""
+    if isinstance(settings, dict):
+        rules = settings.get("safety", {}).get("rules", [])
+        return {str(r["name"]): int(r["silence_days"]) for r in rules
+                if isinstance(r, dict) and r.get("silence_days") is not None}
+    return {r.name: int(r.silence_days) for r in settings.safety.rules
+            if r.silence_days is not None}
+
+
+def _applied(rule: str, when: str, silence: dict[str, int]) -> str:
+    """The date a rule first applied: a silence rule N days after the last answer, any other
+    rule on the date of its data."""
+    if rule in silence and when:
+        try:
+            return (dt.date.fromisoformat(when) + dt.timedelta(days=silence[rule])).isoformat()
+        except ValueError:
+            return when
+    return when
+
+
+def _candidates(pid: str, rec: dict[str, Any],
+                silence: dict[str, int] | None = None) -> list[dict[str, str]]:
     """The actions one record asks for, before the log says which are done."""
+    silence = silence or {}
     flags = [f for f in rec.get("flags", []) if isinstance(f, dict)]
     holds = [f for f in flags if f.get("action") == "hold"]
     has_booklet = bool(rec.get("files")) and rec.get("status", "built") in ("built", "unchanged")
@@ -103,6 +127,8 @@ def _candidates(pid: str, rec: dict[str, Any]) -> list[dict[str, str]]:
                     "when": str(f.get("when", "") or ""),
                     "reason": f"{f.get('rule')}: {f.get('detail', '')}",
                     "booklet": _booklet(rec, bool(holds))})
+    for c in out:
+        c["since"] = _applied(c["rule"], c["when"], silence)
     return out
 
 
@@ -129,21 +155,21 @@ def _tokens(archive: Path, pids: list[str]) -> dict[str, str]:
 
 
 def _replay(archive: Path, entries: list[dict[str, Any]], tokens: dict[str, str],
-            current: dict[str, dict[str, Any]] | None, now: str) -> dict[tuple[str, str, str],
-                                                                          _Episode]:
+            current: dict[str, dict[str, Any]] | None, now: str,
+            silence: dict[str, int]) -> dict[tuple[str, str, str], _Episode]:
     """Walk the log in order: builds open or end episodes, `action` entries close them."""
     episodes: dict[tuple[str, str, str], _Episode] = {}
     manifests = expected_manifests(entries)
 
-    def step(people: dict[str, Any], build: str, day: str) -> None:
+    def step(people: dict[str, Any], build: str, day: str, rules: dict[str, int]) -> None:
         seen = set()
         for pid, rec in people.items():
-            for c in _candidates(pid, rec):
+            for c in _candidates(pid, rec, rules):
                 key = (pid, c["kind"], c["rule"])
                 seen.add(key)
                 ep = episodes.get(key)
                 if ep is None or (ep.closed and ep.when != c["when"]):
-                    episodes[key] = _Episode(c["when"] or day, build, c["when"])
+                    episodes[key] = _Episode(c["since"] or day, build, c["when"])
                 elif not ep.closed:
                     ep.when = c["when"]
         for key in [k for k in episodes if k not in seen]:
@@ -153,15 +179,16 @@ def _replay(archive: Path, entries: list[dict[str, Any]], tokens: dict[str, str]
         kind = e.get("kind")
         if kind == "build" and e.get("build") in manifests:
             build = str(e["build"])
-            people = read_json(archive / build / "manifest.json").get("participants", {})
-            step(people, build, _date(e))
+            manifest = read_json(archive / build / "manifest.json")
+            rules = silence_rules(manifest.get("settings", {}).get("normalised", {}))
+            step(manifest.get("participants", {}), build, _date(e), rules)
         elif kind == "action":
             pid = tokens.get(str(e.get("subject", "")))
             ep = episodes.get((pid or "", str(e.get("action")), str(e.get("rule"))))
             if ep is not None and ep.when == str(e.get("when", "")):
                 ep.closed = True
     if current is not None:
-        step(current, "this build", now)
+        step(current, "this build", now, silence)
     return episodes
 
 
@@ -173,8 +200,9 @@ def latest_build(project: Path) -> dict[str, Any]:
 
 
 def open_actions(project: Path, people: dict[str, dict[str, Any]] | None = None,
-                 today: str = "") -> list[Action]:
-    """Every action still open: of this build's records (`people`), else of the latest build."""
+                 today: str = "", silence: dict[str, int] | None = None) -> list[Action]:
+    """Every action still open: of this build's records (`people`, with this build's
+    `silence_rules`), else of the latest build."""
     from springback.review.gate import HELD, review_state
 
     archive = project_dirs(project).archive
@@ -189,7 +217,7 @@ def open_actions(project: Path, people: dict[str, dict[str, Any]] | None = None,
     else:
         records = people
     tokens = _tokens(archive, sorted(records))
-    episodes = _replay(archive, entries, tokens, people, today)
+    episodes = _replay(archive, entries, tokens, people, today, silence or {})
     out: list[Action] = []
     for pid, rec in sorted(records.items()):
         for c in _candidates(pid, rec):
