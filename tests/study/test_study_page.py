@@ -124,7 +124,7 @@ def test_the_page_has_the_accessibility_basics() -> None:
     assert not [u for u in page.urls if "://" in u or u.startswith("//")]
     assert "Harbour &lt;Light&gt; Study" in html
     # Every chart is followed by the table of its data.
-    assert html.count("<figure>") == html.count("Data of the chart:")
+    assert html.count("<figure>") == html.count("<caption>Data of the chart:")
 
 
 def test_the_page_words_the_count_as_the_studys_own_observation() -> None:

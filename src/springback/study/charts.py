@@ -75,7 +75,7 @@ def weeks(table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
     """Answered share of prompts sent by study week: pooled, with the participants' range."""
     data = table[["week", "participants", "pooled", "min", "max"]]
     x = {"field": "week", "type": "quantitative", "title": "Study week",
-         "axis": {"tickMinStep": 1, "format": "d"}}
+         "scale": {"zero": False}, "axis": {"tickMinStep": 1, "format": "d"}}
     spec = {"width": PLOT_WIDTH, "height": 200, "data": {"values": _records(data)},
             "layer": [
                 {"mark": {"type": "area", "color": CHART.band},

@@ -30,6 +30,10 @@ caption {{ text-align: left; font-weight: bold; padding: 0.25rem 0; }}
 th, td {{ border: 1px solid {PAGE.border}; padding: 0.2rem 0.5rem; text-align: left; }}
 td.num {{ text-align: right; font-variant-numeric: tabular-nums; }}
 figure {{ margin: 1rem 0; }}
+.table-wrap {{ max-width: 100%; overflow-x: auto; }}
+figure svg {{ max-width: 100%; height: auto; display: block; }}
+td, th {{ overflow-wrap: break-word; }}
+td.num {{ white-space: nowrap; }}
 .note {{ background: {PAGE.caution_background}; border-left: 4px solid {PAGE.caution_border};
   padding: 0.5rem 1rem; }}
 a {{ color: {PAGE.link}; }}
@@ -79,8 +83,11 @@ def table(frame: pd.DataFrame, caption: str, columns: Mapping[str, str],
                 v, bool) else ""
             cells.append(f'<th scope="row">{text}</th>' if i == 0 else f"<td{cls}>{text}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
-    return (f"<table>\n<caption>{escape(caption)}</caption>\n<thead><tr>{head}</tr></thead>\n"
-            f"<tbody>\n" + "\n".join(body) + "\n</tbody>\n</table>")
+    # A wide table scrolls in its own focusable region, so the page itself never does.
+    return (f'<div class="table-wrap" role="region" tabindex="0" '
+            f'aria-label="{escape(caption)}">\n'
+            f"<table>\n<caption>{escape(caption)}</caption>\n<thead><tr>{head}</tr></thead>\n"
+            f"<tbody>\n" + "\n".join(body) + "\n</tbody>\n</table>\n</div>")
 
 
 def figure(svg: str, data: pd.DataFrame, caption: str, columns: Mapping[str, str],
