@@ -30,7 +30,8 @@ Rules, in this order (thresholds are those of the family that computed the numbe
    were read as shifts in about half of them without this test; with it, a jump of two SDs
    is still read as a shift in about nine in ten simulated people
    (tests/findings/test_calibration.py). A passing episode that returns to the usual level
-   is therefore not a shift either; its evidence says that the change did not last;
+   is therefore not a shift either; its evidence (`shift_did_not_last`, with the date, the
+   size and both level changes) says so;
    a staircase (the largest step is less than half of a run of same-direction steps around
    it) is gradual, not abrupt;
 3. gradual change: the Theil-Sen slope of the daily means (Sen 1968, JASA 63:1379-1389) has a
@@ -175,9 +176,11 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
     shift: dict[str, Any] | None = None
     if not big.empty:
         sizes = big["size"].to_numpy(float)
-        largest_day = big["study_day"].to_numpy()[int(np.argmax(np.abs(sizes)))]
+        k = int(np.argmax(np.abs(sizes)))
+        largest_day = big["study_day"].to_numpy()[k]
         at = int(np.searchsorted(daily["study_day"].to_numpy(), largest_day))
         shift = lasting(days, y, level, at, s, swing)
+        shift.update(date=pd.Timestamp(largest_day).date().isoformat(), size=abs(sizes[k]))
     valleys, switches = value(land, "landscape_valleys"), value(land, "switches")
     bc, dip_p = value(land, "bimodality_coefficient"), value(land, "dip_p")
     dirs = list(big["direction"])
@@ -245,7 +248,8 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
     elif shift["lasts"] or tr["line_better"]:
         evidence.append({"code": "line_better"})
     else:
-        evidence.append({"code": "shift_did_not_last", "contrast": shift["contrast"],
+        evidence.append({"code": "shift_did_not_last", "date": shift["date"],
+                         "size": shift["size"], "contrast": shift["contrast"],
                          "net_of_trend": shift["net_of_trend"],
                          "days_before": shift["days_before"], "days_after": shift["days_after"],
                          "factor": SWING_FACTOR})
