@@ -128,8 +128,13 @@ def test_gate_across_rebuilds(built: tuple[Path, float], tmp_path: Path) -> None
     assert review.release(project).released == ("P01", "P08")
     # Change one of P08's answers: the booklet's fingerprint changes, the approval lapses.
     _change_one_answer(project, "P08")
+    released = {q.relative_to(project).as_posix(): q.read_bytes()
+                for q in sorted((project / "out" / "release").rglob("*")) if q.is_file()}
     run_build(project)
-    assert not (project / "out" / "release").exists()
+    # The build leaves out/release/ as the last release made it; only `release` changes it
+    # (and `send` refuses a released copy the latest build and the gate no longer allow).
+    assert {q.relative_to(project).as_posix(): q.read_bytes()
+            for q in sorted((project / "out" / "release").rglob("*")) if q.is_file()} == released
     assert review.release(project).released == ("P01",)
     assert not (project / "out" / "release" / "P08").exists()
     assert [h.state for h in review.list_held(project)] == ["held"]
