@@ -86,7 +86,7 @@ def test_every_section_is_present_in_order(editions, edition, expected) -> None:
     """Check that each edition has every section of the design, in reading order."""
     page = parse(editions[edition])
     found = [a["id"].removeprefix("s-") for a in page.tags("section") if a.get("id")]
-    assert found == expected
+    assert found == [*expected, "appendix"]  # the print appendix of the charts' numbers
 
 
 def test_document_structure_is_accessible(editions) -> None:
@@ -178,7 +178,7 @@ def test_refer_flag_puts_help_first() -> None:
     assert "it may help to talk with someone soon" in page.text
     other = [SampleFlag("P999", "phq9 high", "refer", 16.0, "2026-03-11", "score 16")]
     page = parse(render_booklet("participant", flags=other))
-    assert [a["id"] for a in page.tags("section")][:2] == ["s-summary", "s-about_booklet"]
+    assert [a["id"] for a in page.tags("section")][:2] == ["s-summary", "s-mood"]
 
 
 def test_therapist_edition_shows_flags_and_review_state() -> None:
@@ -261,23 +261,24 @@ def test_overview_lists_every_participant_with_reason() -> None:
     assert len(page.tags("h1")) == 1
 
 
-def test_long_chart_tables_move_to_the_print_appendix() -> None:
-    """Check that a long data table stays in <details> on screen and is repeated in the appendix."""
-    long_chart = sample_chart("mood")
-    rows = {"Day": [f"{d} March" for d in range(1, 31)], "mood": ["3.0"] * 30}
-    long_chart = type(long_chart)(long_chart.key, long_chart.title, long_chart.description,
-                                  long_chart.svg, pd.DataFrame(rows), "Daily mood")
-    charts = {"mood": long_chart, "calendar": sample_chart("calendar"),
-              "grid": type(long_chart)("grid", "Grid", "A grid.", long_chart.svg,
-                                       pd.DataFrame(rows), "Grid numbers")}
-    page = parse(render_booklet("participant", charts=charts))
-    details = page.tags("details")
-    assert [d["class"] for d in details] == ["chart-data", "chart-data long-table"]
+def test_chart_numbers_go_to_the_print_appendix_condensed_when_long() -> None:
+    """Check that every chart's table stays in <details> on screen and is in the appendix in
+    print: as it is when short, in its weekly form when long, and named as screen-only when
+    there is no short form."""
+    base = sample_chart("mood")
+    daily = pd.DataFrame({"Day": [f"{d} March" for d in range(1, 61)], "mood": ["3.0"] * 60})
+    weekly = pd.DataFrame({"Week starting": ["2 March", "9 March"], "Average": ["3.0", "3.1"]})
+    mood = type(base)("mood", "Mood", "A line.", base.svg, daily, "Daily mood", weekly,
+                      "Weekly mood")
+    recovery = type(base)("recovery", "Recovery", "Curves.", base.svg, daily, "Episodes")
+    page = parse(render_booklet("participant", charts={"mood": mood, "recovery": recovery}))
+    assert [d["class"] for d in page.tags("details")] == ["chart-data", "chart-data"]
     appendix = [a for a in page.tags("section") if a.get("id") == "s-appendix"]
     assert appendix and "print-only" in appendix[0]["class"]
-    # the grid belongs to the therapist edition only, so its table is not in this appendix
-    captions = [t for t in page.text_parts if t in ("Daily mood", "Grid numbers")]
-    assert captions == ["Daily mood", "Daily mood"]
+    captions = [t for t in page.text_parts if t in ("Daily mood", "Weekly mood", "Episodes")]
+    assert captions == ["Daily mood", "Episodes", "Weekly mood"]  # screen tables, then print
+    text = " ".join(page.text.split())
+    assert "The numbers behind “Recovery” are in the screen version of this booklet" in text
 
 
 def test_prefixed_svg_is_made_readable_for_html() -> None:

@@ -186,6 +186,8 @@ class SampleChart:
     svg: str
     table: pd.DataFrame
     table_caption: str
+    print_table: pd.DataFrame | None = None
+    print_caption: str = ""
 
 
 def sample_chart(key: str, label: str = "mood") -> SampleChart:

@@ -36,6 +36,10 @@ class Chart:
     table: pd.DataFrame
     """The chart's data, display-ready: translated column names, cells formatted as text."""
     table_caption: str
+    print_table: pd.DataFrame | None = None
+    """A condensed version for the printed appendix (weekly rows instead of daily), or None
+    when the table is printed as it is."""
+    print_caption: str = ""
 
 
 @dataclass(frozen=True)

@@ -97,7 +97,35 @@ def mood_chart(ctx: Inputs) -> Chart | None:
     table = _mood_table(ctx, daily, events)
     return Chart("mood", title, description, to_svg(spec, "mood", title, description,
                                                     ctx.language),
-                 table, _("Daily averages, answers and events per day"))
+                 table, _("Daily averages, answers and events per day"),
+                 _weekly_table(ctx, daily, events), _("Weekly summary of the daily averages"))
+
+
+def _weekly_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None
+                  ) -> pd.DataFrame:
+    """The daily table condensed to weeks (Monday first) for the printed appendix."""
+    _ = ctx.gettext
+    days = pd.to_datetime(daily["study_day"])
+    week = days - pd.to_timedelta(days.dt.weekday, unit="D")
+    frame = pd.DataFrame({"week": week.to_numpy(), "mean": daily["mean"].to_numpy(float),
+                          "n": daily["n"].to_numpy(float)})
+    groups = frame.groupby("week", sort=True)
+    counts: dict[pd.Timestamp, int] = {}
+    if events is not None and len(events):
+        ev_days = pd.to_datetime(events["day"])
+        if ev_days.dt.tz is not None:  # the local day, as the daily table's days are
+            ev_days = ev_days.dt.tz_localize(None)
+        ev_week = ev_days - pd.to_timedelta(ev_days.dt.weekday, unit="D")
+        counts = {pd.Timestamp(cast(Any, k)): int(v) for k, v in ev_week.value_counts().items()}
+    rows = [(pd.Timestamp(cast(Any, w)), g) for w, g in groups]
+    return pd.DataFrame({
+        _("Week starting"): [ctx.date_short(w) for w, _g in rows],
+        _("Average"): [ctx.num(float(np.average(g["mean"], weights=g["n"]))) for _w, g in rows],
+        _("Lowest day"): [ctx.num(float(g["mean"].min())) for _w, g in rows],
+        _("Highest day"): [ctx.num(float(g["mean"].max())) for _w, g in rows],
+        _("Answers"): [str(int(g["n"].sum())) for _w, g in rows],
+        _("Events"): [str(counts.get(w, 0)) for w, _g in rows],
+    })
 
 
 def _band_layers(lo: float, hi: float, y: dict[str, Any]) -> list[dict[str, Any]]:

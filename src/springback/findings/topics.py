@@ -24,6 +24,10 @@ VARIABILITY_SHARES = (0.10, 0.20)
 CARRY_OVER_CUTS = (0.1, 0.3, 0.5)
 """Lag-1 correlation: below 0.1 `none`, 0.3 `weak`, 0.5 `moderate`, else `strong` (Cohen 1988,
 Statistical Power Analysis for the Behavioral Sciences, small / medium / large r)."""
+MAX_SLOW_TREND_SHARE = 0.2
+"""Carry-over is not read when more than this share of the ratings' variance is a slow (7-day)
+trend: a drifting level makes neighbouring answers alike without any carry-over (stationary
+simulated people stay below 0.08; design choice)."""
 CLEAR_INTERVAL_RATIO = 3.0
 """A half-life whose 95% interval spans at most this factor is `clear` (design choice)."""
 RCI_CLEAR_Z = 2.576
@@ -113,6 +117,13 @@ def carry_over(results: ParticipantResults) -> Finding:
     inertia = _est(results, "inertia")
     if inertia is None or not inertia.ok:
         return missing(pid, "carry_over", inertia.note if inertia else "no consecutive pairs")
+    drift = _est(results, "slow_trend_share")
+    if drift is not None and drift.ok and float(drift.value or 0.0) > MAX_SLOW_TREND_SHARE:
+        share = float(drift.value or 0.0)
+        return missing(pid, "carry_over",
+                       f"the level drifted during the study ({share:.0%} of the variation is a "
+                       "slow trend), so carry-over from one moment to the next cannot be told "
+                       "apart from the drift", inertia=inertia.value, slow_trend_share=share)
     r = float(inertia.value or 0.0)
     reading = ("none" if abs(r) < CARRY_OVER_CUTS[0] else "weak" if abs(r) < CARRY_OVER_CUTS[1]
                else "moderate" if abs(r) < CARRY_OVER_CUTS[2] else "strong")

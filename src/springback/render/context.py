@@ -12,33 +12,57 @@ import pandas as pd
 
 from springback.charts import Chart, palette
 from springback.findings import Finding, Findings, FlagLike
+from springback.i18n.language import LocaleFormat, translations
 from springback.metrics.results import Estimate, ParticipantResults
 from springback.model import EDITIONS, Edition, ParticipantData
+from springback.render import phrases
 from springback.settings import Referral, StudySettings
 
 PARTICIPANT_SECTIONS = (
-    "summary", "about_booklet", "participation", "mood", "ups_downs", "bouncing_back", "carry_over",
-    "change", "landscape", "questionnaires", "reflect", "help", "how_made", "glossary",
+    "summary", "mood", "participation", "ups_downs", "bouncing_back", "carry_over", "change",
+    "questionnaires", "reflect", "help", "about_booklet",
 )
-"""Section partials (templates/sections/<name>.html) of the participant edition, in order."""
+"""Section partials (templates/sections/<name>.html) of the participant edition, in order: the
+summary page, one section per topic, help, and what the booklet is (with how it was made and
+the words used) at the end."""
 
 THERAPIST_SECTIONS = (
-    "summary", "review", "about_booklet", "participation", "data_quality", "mood", "ups_downs",
-    "bouncing_back", "carry_over", "change", "sensitivity", "landscape", "pattern",
-    "questionnaires", "reflect", "help", "how_made", "methods", "glossary",
+    "summary", "mood", "pattern", "change", "sensitivity", "questionnaires", "participation",
+    "data_quality", "ups_downs", "bouncing_back", "carry_over", "landscape", "methods",
 )
-"""Section partials of the therapist edition, in order."""
+"""Section partials of the therapist edition, in order: the clinical summary (with the review
+state and its checklist), the detail, then the methods appendix."""
 
-SECTION_CHARTS = {
-    "participation": ("calendar",), "mood": ("mood",), "bouncing_back": ("recovery", "load"),
-    "change": ("warnings",), "sensitivity": ("grid",), "landscape": ("landscape",),
-    "questionnaires": ("questionnaire_",),
+SECTION_CHARTS: dict[Edition, dict[str, tuple[str, ...]]] = {
+    "participant": {"summary": ("mood",), "bouncing_back": ("recovery",),
+                    "change": ("warnings",), "questionnaires": ("questionnaire_",)},
+    "therapist": {"mood": ("mood",), "change": ("warnings",), "sensitivity": ("grid",),
+                  "questionnaires": ("questionnaire_",), "participation": ("calendar",),
+                  "bouncing_back": ("recovery", "load"), "landscape": ("landscape",)},
 }
-"""Charts each section shows (a key ending in '_' stands for every key it starts)."""
+"""Charts each section of each edition shows (a key ending in '_' stands for every key it
+starts); a participant is spared the answer calendar, the load loop and the landscape."""
 
-LONG_TABLE_ROWS = 16
-"""Data tables longer than this cannot sit on the page of their chart; in print they move to
-an appendix at the end of the booklet (on screen they stay in their <details>)."""
+APPENDIX_MAX_ROWS = 45
+"""In print, the numbers behind each chart are in an appendix at the end (on screen they stay
+in a <details> beside the chart). A table longer than this (about one page) is printed in its
+condensed form (weekly rows) or, without one, left to the HTML edition."""
+
+
+NUMBERS_IN_PICTURE = ("calendar", "grid")
+"""Charts that write every number of their table into the picture itself (the answer
+calendar's counts, the sensitivity grid's tau values): the printed appendix does not repeat
+them."""
+
+
+@dataclass(frozen=True)
+class AppendixTable:
+    """One chart's numbers as the printed appendix shows them (`table is None`: HTML only)."""
+
+    key: str
+    title: str
+    caption: str
+    table: pd.DataFrame | None
 
 
 @dataclass(frozen=True)
@@ -94,8 +118,12 @@ class BookletContext(TypedDict):
     review_state: str
     referral: Referral | None
     charts: dict[str, Chart]
-    long_tables: list[str]
+    appendix: list[AppendixTable]
+    section_charts: dict[str, list[str]]
+    """Section -> keys of the charts it shows, in order."""
     findings: dict[str, Finding]
+    refer_reasons: list[str]
+    """The help banner's reason per refer flag, in the rule's own words (phrases.refer_sentence)."""
     """Topic -> the finding every sentence about it phrases (springback.findings)."""
     summary: list[Finding]
     """The findings this edition's summary states, most important first."""
@@ -168,8 +196,13 @@ def build_context(
         review_state=review_state,
         referral=settings.referral_for(data.region, language),
         charts={key: _chart_view(chart) for key, chart in charts.items()},
-        long_tables=_long_tables(sections, charts),
+        appendix=_appendix(sections, charts, edition),
+        section_charts={name: _shown(SECTION_CHARTS[edition].get(name, ()), charts)
+                        for name in sections},
         findings=by_topic,
+        refer_reasons=phrases.refer_sentences(
+            own_flags, settings, language, translations(language),
+            LocaleFormat(language, settings.study.timezone).date_long),
         summary=[by_topic[t] for t in findings.summary.get(edition, ()) if t in by_topic],
         alpha=float(_params(results, "warnings").get("alpha", settings.metrics.alpha)),
         large_print=settings.booklet.large_print,
@@ -209,16 +242,28 @@ def inline_svg(svg: str) -> str:
     return ET.tostring(root, encoding="unicode")
 
 
-def _long_tables(sections: list[str], charts: dict[str, Chart]) -> list[str]:
-    """Keys of the shown charts whose data tables go to the print appendix, in reading order."""
-    keys = []
+def _shown(wanted: tuple[str, ...], charts: dict[str, Chart]) -> list[str]:
+    """Keys of the charts matching the wanted names (a name ending in '_' is a prefix)."""
+    return [key for name in wanted for key in sorted(charts)
+            if (key.startswith(name) if name.endswith("_") else key == name)]
+
+
+def _appendix(sections: list[str], charts: dict[str, Chart],
+              edition: Edition) -> list[AppendixTable]:
+    """The shown charts' tables for the printed appendix, in reading order."""
+    out = []
     for section in sections:
-        for wanted in SECTION_CHARTS.get(section, ()):
-            for key in sorted(charts):
-                matches = key.startswith(wanted) if wanted.endswith("_") else key == wanted
-                if matches and len(charts[key].table) > LONG_TABLE_ROWS:
-                    keys.append(key)
-    return keys
+        for key in _shown(SECTION_CHARTS[edition].get(section, ()), charts):
+            c = charts[key]
+            if key in NUMBERS_IN_PICTURE:
+                continue
+            if len(c.table) <= APPENDIX_MAX_ROWS:
+                out.append(AppendixTable(key, c.title, c.table_caption, c.table))
+            elif c.print_table is not None and len(c.print_table) <= APPENDIX_MAX_ROWS:
+                out.append(AppendixTable(key, c.title, c.print_caption, c.print_table))
+            else:
+                out.append(AppendixTable(key, c.title, c.table_caption, None))
+    return out
 
 
 def _sections(settings: StudySettings, edition: Edition, refer: bool) -> list[str]:
@@ -226,11 +271,11 @@ def _sections(settings: StudySettings, edition: Edition, refer: bool) -> list[st
     names = list(PARTICIPANT_SECTIONS if edition == "participant" else THERAPIST_SECTIONS)
     if edition == "participant" and not settings.booklet.show_change_to_participant:
         names.remove("change")
-    if not settings.booklet.show_landscape:
+    if not settings.booklet.show_landscape and "landscape" in names:
         names.remove("landscape")
-    if refer:
+    if refer and "help" in names:  # the participant's edition: help right after the summary
         names.remove("help")
-        names.insert(2 if edition == "therapist" else 1, "help")  # right after the summary
+        names.insert(1, "help")
     return names
 
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import re
 from collections.abc import Callable, Iterable, Mapping
 from typing import Any, Protocol
 
@@ -179,3 +180,12 @@ def refer_sentences(flags: Iterable[Any], settings: Any, language: str, tr: Tran
         if text not in out:
             out.append(text)
     return out
+
+
+_DIGIT_GAP = re.compile(r"(?<=[\d+]) (?=[\d(])")
+
+
+def keep_together(text: str) -> str:
+    """Join the digit groups of phone numbers with no-break spaces, so that '+99 800 0000'
+    or '+99 20 555 0100 (fictional)' never breaks across lines (U+00A0, Unicode UAX #14)."""
+    return _DIGIT_GAP.sub("\u00a0", str(text))
