@@ -8,6 +8,6 @@ from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 
-for script in ("bench_metrics.py", "bench_stages.py", "bench_build.py"):
+for script in ("bench_metrics.py", "bench_stages.py", "bench_build.py", "bench_editions.py"):
     print(f"\n== {script} ==", flush=True)
     subprocess.run([sys.executable, str(HERE / script)], check=False)
