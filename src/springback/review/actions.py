@@ -35,7 +35,9 @@ from springback.archive.verify import expected_manifests, read_json
 from springback.errors import ArchiveError, ReviewError
 from springback.files import BuildLock, project_dirs
 
-ACTION_COLUMNS = ("participant", "action", "reason", "since", "booklet", "rule", "first_build")
+ACTION_COLUMNS = ("participant", "action", "reason", "since", "booklet", "rule")
+"""Columns of out/actions.csv. The build that first saw an action is known only once the build
+is archived, so it is not a column: a rebuild with nothing changed writes the same bytes."""
 """Columns of out/actions.csv, in order."""
 
 ACTION_WORDS = {
@@ -71,8 +73,7 @@ class Action:
     def row(self) -> dict[str, str]:
         """The action as a row of out/actions.csv."""
         return {"participant": self.participant, "action": self.words, "reason": self.reason,
-                "since": self.since, "booklet": self.booklet, "rule": self.rule,
-                "first_build": self.first_build}
+                "since": self.since, "booklet": self.booklet, "rule": self.rule}
 
 
 def _booklet(rec: dict[str, Any], held: bool) -> str:
