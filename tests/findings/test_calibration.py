@@ -31,7 +31,7 @@ once with seed + 1000, to set margins a different seed also passes):
   staircase (40)               6 steps of 0.25, 8 days    course gradual      95%   100%  100%
                                apart                      course abrupt        5%     0%    0%
 
-  * on the lead-up: the answers before the first large shift (springback.metrics.leadup).
+  * on the lead-up: the answers before the largest shift (springback.metrics.leadup).
 
 At seed + 1000 the rules as first committed read 12% of the drifting, 8% of the slowing, 48%
 of the slowing-with-rising-variance, 8% of the close two-state and 12% of the staircase people
@@ -143,7 +143,7 @@ def test_reading_rate_agrees_with_the_simulated_truth(rate: Rate) -> None:
 
 def test_a_shift_is_warned_about_from_its_lead_up() -> None:
     """Check the warning of a simulated jump is read on the lead-up before it, not all data."""
-    # Source: simulated OU with a jump on day 42 (known truth): the first large shift is found
+    # Source: simulated OU with a jump on day 42 (known truth): the largest shift is found
     # near day 42, so the lead-up holds about six weeks of answers.
     found = [f.by_topic() for f in _found("jump")]
     shifts = [f for f in found if f["course"].reading == "abrupt_shift"]

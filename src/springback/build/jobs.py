@@ -145,7 +145,7 @@ def render_booklets(
     env = render.make_environment(job.project / "templates", language,
                                   timezone=settings.study.timezone)
     gettext = translations(language).gettext
-    chart_set = charts.make_charts(data, results, settings, language, gettext)
+    chart_set = charts.make_charts(data, results, settings, language, gettext, found)
     files: dict[str, bytes] = {}
     folder = f"{BOOKLETS}/{data.participant}"
     for edition in editions:

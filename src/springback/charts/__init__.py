@@ -13,6 +13,7 @@ from springback.charts.common import Chart, Inputs, checked_gettext
 from springback.charts.landscape import landscape_chart, load_chart
 from springback.charts.mood import calendar_chart, mood_chart
 from springback.charts.questionnaires import questionnaire_charts
+from springback.findings import Findings
 from springback.metrics.results import ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import StudySettings
@@ -26,9 +27,10 @@ def make_charts(
     settings: StudySettings,
     language: str,
     gettext: Callable[[str], str],
+    findings: Findings | None = None,
 ) -> dict[str, Chart]:
     """Build every chart that has data, keyed 'mood', 'calendar', ..., 'questionnaire_<q>'."""
-    ctx = Inputs(data, results, settings, language, checked_gettext(gettext))
+    ctx = Inputs(data, results, settings, language, checked_gettext(gettext), findings)
     charts: dict[str, Chart] = {}
     for build in (mood_chart, calendar_chart, recovery_chart, warnings_chart):
         chart = build(ctx)

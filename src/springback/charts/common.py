@@ -13,6 +13,7 @@ import babel.dates
 import numpy as np
 import pandas as pd
 
+from springback.findings import Findings
 from springback.i18n.language import LOCALES, LocaleFormat
 from springback.metrics.results import Estimate, Family, ParticipantResults
 from springback.model import ParticipantData
@@ -51,6 +52,9 @@ class Inputs:
     settings: StudySettings
     language: str
     gettext: Callable[[str], str]
+    findings: Findings | None = None
+    """The participant's findings: pictures show what the booklet's sentences say (a chart
+    never draws a conclusion of its own)."""
 
     # -- where the numbers come from -----------------------------------------------------
     def family(self, name: str) -> Family | None:

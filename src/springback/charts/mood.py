@@ -106,7 +106,7 @@ def _weekly_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None
     """The daily table condensed to weeks (Monday first) for the printed appendix."""
     _ = ctx.gettext
     days = pd.to_datetime(daily["study_day"])
-    week = days - pd.to_timedelta(days.dt.weekday, unit="D")
+    week = days - pd.to_timedelta(days.dt.day_of_week, unit="D")
     frame = pd.DataFrame({"week": week.to_numpy(), "mean": daily["mean"].to_numpy(float),
                           "n": daily["n"].to_numpy(float)})
     groups = frame.groupby("week", sort=True)
@@ -115,7 +115,7 @@ def _weekly_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None
         ev_days = pd.to_datetime(events["day"])
         if ev_days.dt.tz is not None:  # the local day, as the daily table's days are
             ev_days = ev_days.dt.tz_localize(None)
-        ev_week = ev_days - pd.to_timedelta(ev_days.dt.weekday, unit="D")
+        ev_week = ev_days - pd.to_timedelta(ev_days.dt.day_of_week, unit="D")
         counts = {pd.Timestamp(cast(Any, k)): int(v) for k, v in ev_week.value_counts().items()}
     rows = [(pd.Timestamp(cast(Any, w)), g) for w, g in groups]
     return pd.DataFrame({
@@ -143,7 +143,7 @@ def _band_layers(lo: float, hi: float, y: dict[str, Any]) -> list[dict[str, Any]
 def _shift_layers(ctx: Inputs, x: dict[str, Any], y: dict[str, Any]) -> list[dict[str, Any]]:
     """Detected shifts: dashed rules with a written direction, and the segment levels."""
     _ = ctx.gettext
-    points = ctx.table("shifts", "change_points")
+    points = _shown_shifts(ctx)
     if points is None:
         return []
     words = {"worse": _("shift: worse"), "better": _("shift: better")}
@@ -228,10 +228,25 @@ def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
     return " ".join(parts)
 
 
+def _shown_shifts(ctx: Inputs) -> pd.DataFrame | None:
+    """The change points the picture shows: with findings, only the abrupt shift the course
+    reading found (none for a gradual change, switching or no clear change); without them,
+    every change point."""
+    points = ctx.table("shifts", "change_points")
+    if points is None or ctx.findings is None:
+        return points
+    course = ctx.findings.get("course")
+    if course is None or course.reading != "abrupt_shift":
+        return None
+    day = pd.Timestamp(str(course.numbers.get("date")))
+    chosen = points[pd.to_datetime(points["study_day"]) == day]
+    return chosen if len(chosen) else None
+
+
 def _shift_sentences(ctx: Inputs) -> list[str]:
     """One sentence per shift, or a summary naming the largest when there are many."""
     _ = ctx.gettext
-    points = ctx.table("shifts", "change_points")
+    points = _shown_shifts(ctx)
     if points is None:
         return []
     worse = _("Around {date} your mood seemed to shift to feeling worse.")

@@ -9,7 +9,7 @@ texts only phrase them. Topics and their readings:
   warning        rising | not_rising (on the lead-up of an abrupt shift, else on all data)
   pattern        the combination: shift_after_rising | shift_without_rising |
                  rising_no_shift | gradual_change | switching | no_clear_change
-  level          better_side | middle | worse_side
+  level          better_side | middle | worse_side | changed (the course moved)
   variability    small | moderate | large
   recovery       within_hours | within_a_day | days
   carry_over     none | weak | moderate | strong
@@ -25,6 +25,8 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+import pandas as pd
+
 from springback.findings import topics
 from springback.findings.course import course
 from springback.findings.records import (
@@ -38,7 +40,6 @@ from springback.findings.records import (
     missing,
 )
 from springback.findings.warning import warning
-from springback.metrics.leadup import first_large_shift
 from springback.metrics.results import ParticipantResults
 from springback.settings import StudySettings
 
@@ -60,10 +61,12 @@ def decide(results: ParticipantResults, flags: Sequence[FlagLike],
     alpha = settings.metrics.alpha
     fams = results.families
     shape = course(pid, fams, alpha, worse)
-    warn = warning(pid, fams, shape, alpha, first_large_shift(fams.get("shifts")))
+    shift_day = (pd.Timestamp(shape.numbers["date"]) if shape.reading == "abrupt_shift"
+                 else None)
+    warn = warning(pid, fams, shape, alpha, shift_day)
     items = [
         shape, warn, overall(pid, shape, warn),
-        topics.level(results, scale, worse), topics.variability(results, scale),
+        topics.level(results, scale, worse, shape.reading), topics.variability(results, scale),
         topics.recovery(results), topics.carry_over(results), topics.landscape(results),
         *topics.questionnaires(results, settings),
         topics.participation(results), topics.help_needed(pid, flags),
@@ -103,7 +106,8 @@ def _summary(items: Sequence[Finding], show_warning: bool) -> tuple[str, ...]:
                and f.reading in ("improved", "worsened")]
     if show_warning and by["warning"].reading == "rising":
         chosen.append("warning")
-    chosen += [t for t in ("level", "recovery", "carry_over") if by[t].known]
+    chosen += [t for t in ("level", "recovery", "carry_over")
+               if by[t].known and by[t].reading != "changed"]
     return tuple(chosen[:SUMMARY_POINTS])
 
 

@@ -236,7 +236,7 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
                        numbers, evidence=tuple(evidence))
     if tr["slope_excludes_zero"] and abs(tr["drift"]) > SWING_FACTOR * s:
         evidence += [{"code": "drift", "drift": tr["drift"], "noise": s},
-                     {"code": "line_better" if tr["line_better"] else "steps_better"}]
+                     *([{"code": "line_better"}] if tr["line_better"] else [])]
         evidence += [stairs] if stairs else []
         evidence.append({"code": "drift_worse" if drift_worse else "drift_better"})
         numbers["direction"] = "worse" if drift_worse else "better"

@@ -51,8 +51,10 @@ def _numbers(est: Estimate, name: str) -> dict[str, Any]:
 
 
 def level(results: ParticipantResults, scale: tuple[float, float],
-          higher_is_worse: bool) -> Finding:
-    """Where the mean lies on the scale: `better_side`, `middle` or `worse_side`."""
+          higher_is_worse: bool, course: str = "no_clear_change") -> Finding:
+    """Where the mean lies on the scale: `better_side`, `middle` or `worse_side`; `changed`
+    when the course reading found a shift, a drift or switching (a mean over the whole study
+    then describes no time the person lived through)."""
     pid = results.participant
     mean = _est(results, "mean")
     if mean is None or not mean.ok:
@@ -73,8 +75,11 @@ def level(results: ParticipantResults, scale: tuple[float, float],
     edges = [low + c * (high - low) for c in LEVEL_THIRDS]
     m = float(mean.value or 0.0)
     sure = all(not (m - half < e < m + half) for e in edges)
-    return Finding(pid, "level", reading, "clear" if sure else "some_signs",
-                   {"mean": m, "scale_low": low, "scale_high": high, "n": n, **typical})
+    numbers = {"mean": m, "scale_low": low, "scale_high": high, "n": n, **typical,
+               "place": reading}
+    if course in ("gradual_change", "abrupt_shift", "switching"):
+        return Finding(pid, "level", "changed", "clear", numbers)
+    return Finding(pid, "level", reading, "clear" if sure else "some_signs", numbers)
 
 
 def variability(results: ParticipantResults, scale: tuple[float, float]) -> Finding:

@@ -60,6 +60,10 @@ def warning(participant: str, families: Mapping[str, Family], course: Finding, a
     if fam is None:
         return missing(participant, "warning", "the early-warning trends were not computed",
                        **base)
+    if on_leadup and fam.params.get("leadup_end") not in (None, base["shift_date"]):
+        return missing(participant, "warning", "the lead-up was computed up to "
+                       f"{fam.params['leadup_end']}, not up to the shift of "
+                       f"{base['shift_date']}", **base)
     end = SUFFIX if on_leadup else ""
     tests: list[tuple[str, float, float, float | None]] = []
     for label, robust_name in INDICATORS:
