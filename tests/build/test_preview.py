@@ -42,7 +42,8 @@ def test_preview_is_marked_and_leaves_no_trace(quick_example: Path) -> None:
         "participant.html", "participant.pdf", "therapist.html", "therapist.pdf"]
     for name in ("participant.html", "therapist.html"):
         html = (folder / name).read_text(encoding="utf-8")
-        assert 'class="preview-mark"' in html and "not for the participant" in html
+        # P08 reads German: the mark is in the booklet's language (the catalogue's words).
+        assert 'class="preview-mark"' in html and "nicht für die teilnehmende Person" in html
     assert (folder / "participant.pdf").read_bytes().startswith(b"%PDF")
     assert _snapshot(quick_example) == before
     assert gate.list_held(quick_example) == held

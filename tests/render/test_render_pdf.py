@@ -79,7 +79,7 @@ def test_text_reads_in_order_with_running_header(therapist_pdf: bytes) -> None:
     pages = [p.extract_text() for p in reader.pages]
     text = " ".join(" ".join(pages).split())
     assert text.index("Bouncing back after hard moments") < text.index(
-        "to get halfway back to your usual level")
+        "to get halfway back to the usual level")
     assert f"2 / {len(pages)}" in pages[1]
     assert "Harbour Light Mood Study" in pages[2] and "P007" in pages[2]
 

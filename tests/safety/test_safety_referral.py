@@ -82,9 +82,17 @@ def test_referral_texts_render_escaped() -> None:
                        questions='<script>alert("x")</script> Q & A',
                        feeling_worse="<b>GP</b>", self_harm="<img src=x onerror=alert(1)>",
                        emergency='"112"')
-    html = env.get_template("sections/help.html").render(
-        refer=True, referral=hostile, contact_name="Team <A>", contact_email="", contact_phone="",
-        edition="therapist")
+    from springback.findings import Finding
+
+    help_finding = Finding("P1", "help", "refer", "clear", {"rule": "r"})
+    common = dict(refer=True, findings={"help": help_finding}, contact_name="Team <A>",
+                  contact_email="", contact_phone="", edition="participant",
+                  refer_reasons=['<i>reason</i> & more'])
+    template = env.get_template("sections/help.html")
+    html = template.render(referral=hostile, **common)
     assert "<script>" not in html and "<img" not in html and "<b>GP" not in html
+    assert "<i>" not in html and "&lt;i&gt;reason&lt;/i&gt; &amp; more" in html
     assert "&lt;script&gt;alert(&#34;x&#34;)&lt;/script&gt; Q &amp; A" in html
-    assert "&lt;img src=x onerror=alert(1)&gt;" in html and "Team &lt;A&gt;" in html
+    assert "&lt;img src=x onerror=alert(1)&gt;" in html
+    # Without a referral text the study's own contact is the first rung, escaped as well.
+    assert "Team &lt;A&gt;" in template.render(referral=None, **common)

@@ -44,8 +44,9 @@ def forest(people: pd.DataFrame, group: pd.DataFrame) -> tuple[str, pd.DataFrame
     """Each participant's inertia with its 95% interval, then the two group estimates."""
     rows = people.rename(columns={"inertia": "value", "inertia_lower": "lower",
                                   "inertia_upper": "upper"})
-    rows = rows[np.isfinite(rows["value"].to_numpy(float))][
-        ["participant", "value", "lower", "upper"]].assign(kind="participant")
+    # A cohort in which nobody has an interval has no interval columns at all.
+    rows = rows.reindex(columns=["participant", "value", "lower", "upper"])
+    rows = rows[np.isfinite(rows["value"].to_numpy(float))].assign(kind="participant")
     g = group[group["estimate"].isin(["inertia_mixed", "inertia_person_mean"])]
     g = pd.DataFrame({"participant": g["label"], "value": g["value"], "lower": g["lower"],
                       "upper": g["upper"], "kind": "group"})
