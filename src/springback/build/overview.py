@@ -32,26 +32,37 @@ def outcome_record(o: ParticipantOutcome) -> dict[str, Any]:
 def weekly_compliance(data: ParticipantData, settings: StudySettings,
                       end: pd.Timestamp | None) -> list[dict[str, Any]]:
     """Answered prompts per week of the participant's period (week 1 starts on their first
-    day), with the share of prompts sent when the study says how many a day it sends."""
-    m = data.momentary
-    if not len(m):
+    day) and the share of prompts sent, from the prompts-sent table of intake (the rule and
+    the one compliance function of `springback.intake.schedule`). Days after the last
+    scheduled one up to the end of the data count as days the study kept sending
+    `prompts_per_day` prompts, so a silence shows as empty weeks."""
+    from springback.intake.schedule import compliance
+
+    sched = data.schedule
+    if not len(sched):
         return []
-    days = pd.to_datetime(m["study_day"])
-    first = days.min()
-    last = days.max()
+    days = pd.to_datetime(sched["study_day"])
+    first, last = days.min(), days.max()
+    weeks = ((days - first).dt.days // 7).to_numpy()
+    answered = sched["answered"].groupby(weeks).sum()
+    sent = sched["sent"].astype(float).groupby(weeks).sum(min_count=1)
+    stop = last
     if end is not None and pd.notna(end):
-        last = max(last, pd.Timestamp(end).tz_localize(None).normalize())
-    n_weeks = int((last - first).days // 7) + 1
-    counts = ((days - first).dt.days // 7).value_counts()
+        stop = max(last, pd.Timestamp(end).tz_localize(None).normalize())
     per_day = settings.study.prompts_per_day
-    out = []
-    for w in range(n_weeks):
-        answered = int(counts.get(w, 0))
-        span = min(7, int((last - first).days) + 1 - 7 * w)
-        share = min(answered / (per_day * span), 1.0) if per_day and span > 0 else None
-        start = (first + pd.Timedelta(days=7 * w)).date().isoformat()
-        out.append({"week": w + 1, "start": start, "answered": answered, "share": share})
-    return out
+    for day in pd.date_range(last + pd.Timedelta(days=1), stop, freq="D"):
+        w = int((day - first).days // 7)
+        answered[w] = answered.get(w, 0)
+        extra = float(per_day) if per_day else float("nan")
+        sent[w] = sent.get(w, 0.0) + extra if pd.notna(sent.get(w, 0.0)) else extra
+    n_weeks = int((stop - first).days // 7) + 1
+    answered = answered.reindex(range(n_weeks), fill_value=0)
+    sent = sent.reindex(range(n_weeks))
+    shares = compliance(answered, sent)
+    return [{"week": w + 1, "start": (first + pd.Timedelta(days=7 * w)).date().isoformat(),
+             "answered": int(answered[w]),
+             "share": float(shares[w]) if pd.notna(shares[w]) else None}
+            for w in range(n_weeks)]
 
 
 def _band(bands: list[tuple[float, str]], score: float) -> str:
