@@ -92,10 +92,7 @@ def _recovery_description(ctx: Inputs, episodes: pd.DataFrame) -> str:
     parts = [_("We found {n} times when your mood dipped or an upsetting event happened. "
                "In {back} of them your mood got back to your usual level before night or "
                "the end of the study.").format(n=n, back=n_back)]
-    median = ctx.estimate("recovery", "median_recovery_hours")
-    if median.ok:
-        parts.append(_("Getting back usually took {time}.").format(
-            time=ctx.hours_words(float(cast(float, median.value)))))
+    # One time only, the one the booklet's sentence gives (the pooled half-life).
     half = ctx.estimate("recovery", "recovery_half_life_hours")
     if half.ok:
         parts.append(_("The fitted curve is half-way back after {time}.").format(
