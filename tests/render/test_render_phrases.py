@@ -36,20 +36,9 @@ def test_duration(hours: float, words: str) -> None:
     assert phrases.duration(hours, EN) == words
 
 
-def test_counts_and_strength() -> None:
-    """Check counts in words and the carry-over strength scale."""
+def test_counts() -> None:
+    """Check counts in words."""
     assert [phrases.count(n, EN) for n in (1, 2, 5)] == ["once", "twice", "5 times"]
-    assert [phrases.strength(r, EN) for r in (0.05, 0.2, 0.4, 0.7)] == [
-        "hardly at all", "a little", "quite a bit", "a lot"]
-
-
-def test_sureness_follows_the_interval() -> None:
-    """Check that an interval spanning 'no effect' is called possibly chance."""
-    assert phrases.sureness(-0.1, 0.3, 0.0, EN) == "This could be chance."
-    assert phrases.sureness(0.1, 0.3, 0.0, EN).startswith("We can be fairly sure")
-    assert phrases.sureness(None, None, 0.0, EN).startswith("We cannot tell")
-    assert phrases.trend_sureness(0.5, 0.05, EN) == "This could be chance."
-    assert "false alarms" in phrases.trend_sureness(0.01, 0.05, EN)
 
 
 @pytest.mark.parametrize("bad", [float("nan"), -0.1])

@@ -114,10 +114,7 @@ def make_environment(
     env.filters["share_words"] = lambda x: phrases.share_of_prompts(float(x), catalogue)
     env.filters["duration_words"] = lambda x: phrases.duration(float(x), catalogue)
     env.filters["count_words"] = lambda x: phrases.count(int(x), catalogue)
-    env.filters["strength_words"] = lambda x: phrases.strength(float(x), catalogue)
     env.filters["keep_together"] = phrases.keep_together
-    env.globals["sureness"] = lambda lo, hi, null=0.0: phrases.sureness(lo, hi, null, catalogue)
-    env.globals["trend_sureness"] = lambda p, alpha: phrases.trend_sureness(p, alpha, catalogue)
     # The CSS holds only base64 text and fixed rules, so it is safe to mark as markup.
     env.globals["font_face_css"] = lambda: markupsafe.Markup(font_face_css())
     env.globals["language"] = language

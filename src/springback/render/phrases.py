@@ -71,45 +71,6 @@ def count(n: int, tr: Translator) -> str:
     return tr.ngettext("%(n)d time", "%(n)d times", n) % {"n": n}
 
 
-def strength(r: float, tr: Translator) -> str:
-    """Say how strong a carry-over (a correlation -1..1) is: 'a little', 'quite a lot'."""
-    if not math.isfinite(r):
-        raise ValueError(f"a correlation must be a number, got {r}")
-    a = abs(r)
-    if a < 0.1:
-        return tr.gettext("hardly at all")
-    if a < 0.3:
-        return tr.gettext("a little")
-    if a < 0.5:
-        return tr.gettext("quite a bit")
-    return tr.gettext("a lot")
-
-
-def sureness(lower: float | None, upper: float | None, null: float, tr: Translator) -> str:
-    """Say how sure we can be, from an interval and the value meaning 'no effect'.
-
-    An interval that contains the no-effect value could be chance; one that does not is
-    'fairly sure'; without an interval we say plainly that we cannot tell.
-    """
-    if lower is None or upper is None or not (math.isfinite(lower) and math.isfinite(upper)):
-        return tr.gettext("We cannot tell how sure this is.")
-    if lower <= null <= upper:
-        return tr.gettext("This could be chance.")
-    return tr.gettext("We can be fairly sure of this, but it is not certain.")
-
-
-def trend_sureness(p: float | None, alpha: float, tr: Translator) -> str:
-    """Say how sure a rise or fall over the study is, from its surrogate p-value."""
-    if p is None or not math.isfinite(p):
-        return tr.gettext("We cannot tell how sure this is.")
-    if p < alpha:
-        return tr.gettext(
-            "A change this clear is unlikely to be chance alone. Even so, signs like this often "
-            "turn out to be false alarms."
-        )
-    return tr.gettext("This could be chance.")
-
-
 def general_refer(tr: Translator) -> str:
     """The help banner's sentence when no rule-specific one applies (its earlier wording)."""
     return tr.gettext("Some of your answers suggest that it may help to talk with someone soon.")
