@@ -116,3 +116,26 @@ def test_the_help_banner_gives_the_flags_own_reason(built_example: Path,
     p12 = next(m for m in _marks(p12_page) if m["topic"] == "help")["text"]
     assert "You have not answered since" in p12
     assert "Some of your answers suggest" not in p12
+
+
+def test_phone_numbers_never_break_across_lines(built_example: Path) -> None:
+    """Check in the PDF text of every participant edition that each phone number of the help
+    ladder and the help strip sits on one line (no-break spaces between its digit groups)."""
+    import itertools
+    import re
+
+    import pypdf
+
+    numbers = ("+99 999", "+99 800 0000", "+99 800 1100", "+99 20 555 0100")
+    seen = 0
+    for path in sorted((built_example / "out" / "booklets").glob("*/participant.pdf")):
+        lines = [" ".join(line.replace("\u00a0", " ").split())
+                 for page in pypdf.PdfReader(path).pages
+                 for line in page.extract_text().splitlines()]
+        for this, after in itertools.pairwise(lines):
+            # A number cut at a line end: '+99' or '+99 800' with its rest on the next line.
+            if re.search(r"\+99( \d+)*$", this) and re.match(r"\d|\(fictional\)", after):
+                raise AssertionError(f"{path}: a phone number breaks: {this!r} / {after!r}")
+        text = "\n".join(lines)
+        seen += sum(n in text for n in numbers)
+    assert seen >= 10
