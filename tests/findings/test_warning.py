@@ -97,3 +97,15 @@ def test_before_cuts_the_series_at_the_start_of_the_shift_day() -> None:
     assert part.n == int((series.study_day < np.datetime64(day)).sum())
     assert len(part.admissible) == part.n - 1
     assert (part.hours == series.hours[:part.n]).all()
+
+
+def test_rising_indicators_with_no_shift_are_their_own_pattern() -> None:
+    """Check the case an early warning is for: indicators rising, no shift yet, graded as the
+    warning reading is."""
+    from springback.findings import overall
+
+    warn = warning("S1", {"warnings": _family({"inertia": 0.6}, {"inertia": 0.004})}, COURSE,
+                   0.05, None)
+    p = overall("S1", COURSE, warn)
+    assert (p.reading, p.certainty) == ("rising_no_shift", warn.certainty)
+    assert any(e["code"] == "inertia_rose" for e in p.evidence)

@@ -91,7 +91,9 @@ def overall(participant: str, shape: Finding, warn: Finding) -> Finding:
     else:
         reading = shape.reading
     certainty = shape.certainty
-    if rising and CERTAINTIES.index(warn.certainty) > CERTAINTIES.index(certainty):
+    if reading == "rising_no_shift" and shape.reading == "no_clear_change":
+        certainty = warn.certainty  # the reading is the warning's alone
+    elif rising and CERTAINTIES.index(warn.certainty) > CERTAINTIES.index(certainty):
         certainty = warn.certainty  # as sure as the less sure of the two
     evidence = shape.evidence + (warn.evidence if rising or reading.startswith("shift") else ())
     return Finding(participant, "pattern", reading, certainty, numbers, evidence=evidence)
