@@ -15,6 +15,9 @@ import pytest
 
 from tests.support.project import copy_example
 
+pytest_plugins = ["tests.support.browser"]
+"""The headless-browser fixture of the accessibility tests."""
+
 
 @pytest.fixture
 def example_copy(tmp_path: Path) -> Path:

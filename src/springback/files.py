@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import contextlib
 import hashlib
+import io
 import json
 import os
 import shutil
@@ -31,8 +32,12 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from springback.errors import BuildLocked
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 PARTIAL = ".partial-"
 """Marker in the name of a folder or file that is still being written."""
@@ -294,3 +299,38 @@ class BuildLock:
         assert self._cm is not None
         self._cm.__exit__(*exc)  # type: ignore[arg-type]
         self._cm = None
+
+
+# -- Study tables as CSV -------------------------------------------------------------------
+
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+"""A text cell starting with one of these is read as a formula by spreadsheet programs."""
+
+
+def spreadsheet_safe(value: object) -> object:
+    """A text cell that a spreadsheet would run as a formula, quoted with a leading apostrophe.
+
+    The OWASP "CSV Injection" guidance: prefix such cells with a single quote; numbers (also
+    negative ones written as text) are left as they are.
+    """
+    if not isinstance(value, str) or not value.startswith(FORMULA_STARTS):
+        return value
+    try:
+        float(value)
+    except ValueError:
+        return "'" + value
+    return value
+
+
+def csv_bytes(df: pd.DataFrame, date_format: str | None = None) -> bytes:
+    """A frame as CSV bytes (UTF-8, LF, no index); text cells that would run as spreadsheet
+    formulas are quoted (`spreadsheet_safe`)."""
+    import pandas as pd
+
+    text = [c for c in df.columns
+            if df[c].dtype == object or pd.api.types.is_string_dtype(df[c].dtype)]
+    if text:
+        df = df.assign(**{str(c): df[c].map(spreadsheet_safe) for c in text})
+    buf = io.StringIO()
+    df.to_csv(buf, index=False, lineterminator="\n", date_format=date_format)
+    return buf.getvalue().encode("utf-8")

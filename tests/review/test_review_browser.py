@@ -2,9 +2,7 @@
 
 from __future__ import annotations
 
-import shutil
 import threading
-from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
@@ -13,28 +11,11 @@ from click.testing import CliRunner
 from springback.cli import main
 from springback.review.serve import make_server
 from tests.review.test_review_actions import no_booklet
+from tests.support.browser import WCAG_TAGS
 from tests.support.tiny_projects import fake_build, make_project
 
 pytestmark = [pytest.mark.browser]
 
-CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
-WCAG_TAGS = ["wcag2a", "wcag2aa", "wcag21a", "wcag21aa"]
-LAUNCH_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-               "--disable-background-networking", "--disable-component-update",
-               "--disable-sync"]
-
-
-@pytest.fixture(scope="module")
-def browser() -> Iterator[object]:
-    """A headless chromium, or a loud skip when none can be had on this machine."""
-    if not Path(CHROMIUM).exists():
-        pytest.skip("CHROMIUM IS NOT INSTALLED: the review page browser test was SKIPPED")
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as pw:
-        instance = pw.chromium.launch(executable_path=CHROMIUM, headless=True, args=LAUNCH_ARGS)
-        yield instance
-        instance.close()
 
 
 def _violations(page: object) -> list[str]:

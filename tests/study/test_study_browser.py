@@ -7,31 +7,14 @@ horizontal overflow at 200% zoom.
 
 from __future__ import annotations
 
-import shutil
-from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
 
+from tests.support.browser import WCAG_TAGS
+
 pytestmark = [pytest.mark.browser, pytest.mark.slow, pytest.mark.xdist_group("example")]
 
-CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
-WCAG_TAGS = ["wcag2a", "wcag2aa", "wcag21a", "wcag21aa"]
-LAUNCH_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-               "--disable-background-networking", "--disable-component-update",
-               "--disable-sync"]
-
-
-@pytest.fixture(scope="module")
-def browser() -> Iterator[object]:
-    if not Path(CHROMIUM).exists():
-        pytest.skip("chromium is not installed (apt-get install chromium)")
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as pw:
-        instance = pw.chromium.launch(executable_path=CHROMIUM, headless=True, args=LAUNCH_ARGS)
-        yield instance
-        instance.close()
 
 
 def test_the_study_page_passes_axe_and_fetches_nothing(browser: object,

@@ -9,7 +9,6 @@ file by file. `archive_staged` then records the staged folder as an archived bui
 from __future__ import annotations
 
 import dataclasses
-import io
 import shutil
 from collections.abc import Iterable
 from datetime import datetime
@@ -17,6 +16,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, cast
 
 import pandas as pd
+
+from springback.files import csv_bytes
 
 if TYPE_CHECKING:
     from springback.build.records import Job, ParticipantOutcome
@@ -246,35 +247,10 @@ def _rows_by_participant(path: Path) -> dict[str, list[dict[str, Any]]]:
     return out
 
 
-FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
-"""A text cell starting with one of these is read as a formula by spreadsheet programs."""
-
-
-def spreadsheet_safe(value: object) -> object:
-    """A text cell that a spreadsheet would run as a formula, quoted with a leading apostrophe.
-
-    The OWASP "CSV Injection" guidance: prefix such cells with a single quote; numbers (also
-    negative ones written as text) are left as they are.
-    """
-    if not isinstance(value, str) or not value.startswith(FORMULA_STARTS):
-        return value
-    try:
-        float(value)
-    except ValueError:
-        return "'" + value
-    return value
-
-
 def frame_bytes(df: pd.DataFrame) -> bytes:
     """A frame as the CSV bytes of a study table (UTF-8, LF, ISO times with their offset);
-    text cells that would run as spreadsheet formulas are quoted (`spreadsheet_safe`)."""
-    text = [c for c in df.columns
-            if df[c].dtype == object or pd.api.types.is_string_dtype(df[c].dtype)]
-    if text:
-        df = df.assign(**{str(c): df[c].map(spreadsheet_safe) for c in text})
-    buf = io.StringIO()
-    df.to_csv(buf, index=False, lineterminator="\n", date_format="%Y-%m-%dT%H:%M:%S%z")
-    return buf.getvalue().encode("utf-8")
+    text cells that would run as spreadsheet formulas are quoted (`files.spreadsheet_safe`)."""
+    return csv_bytes(df, date_format="%Y-%m-%dT%H:%M:%S%z")
 
 
 def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[str, bytes]:

@@ -19,6 +19,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from springback.files import csv_bytes, spreadsheet_safe
 from springback.model import Study
 from springback.settings import StudySettings
 from springback.study import group
@@ -75,7 +76,7 @@ def study_files(study: Study, tables: Mapping[str, bytes]) -> dict[str, bytes]:
     people = sorted({p if p in known else p[1:] for p in metrics["participant"].astype(str)
                      if p in known or p[1:] in known})
     pairs = group.within_day_pairs(study, people)
-    pairs["participant"] = pairs["participant"].map(t.safe_cell)
+    pairs["participant"] = pairs["participant"].map(spreadsheet_safe)
     frames = compute(metrics, findings, study.schedule, pairs, study.settings)
     return files(frames, study.settings.study.title, study.settings.metrics.alpha)
 
@@ -91,7 +92,7 @@ def files(frames: Mapping[str, pd.DataFrame], title: str, alpha: float) -> dict[
     out: dict[str, bytes] = {}
     for name in TABLES:
         frame = frames[name] if name == "participants" else _rounded(frames[name])
-        out[f"{STUDY_DIR}/{name}.csv"] = t.csv_bytes(frame)
+        out[f"{STUDY_DIR}/{name}.csv"] = csv_bytes(frame)
     buf = io.BytesIO()
     frames["participants"].to_parquet(buf, index=False, engine="pyarrow", compression="zstd")
     out[f"{STUDY_DIR}/participants.parquet"] = buf.getvalue()

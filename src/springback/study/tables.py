@@ -7,7 +7,6 @@ share by study week (from the study's prompt schedule); `readings` counts readin
 
 from __future__ import annotations
 
-import io
 import math
 from collections.abc import Iterable
 from typing import cast
@@ -22,33 +21,6 @@ DISTRIBUTION_COLUMNS = ("measure", "label", "n", "n_missing", "mean", "sd", "med
 COMPLIANCE_COLUMNS = ("week", "participants", "answered", "sent", "pooled", "mean", "median",
                       "min", "max")
 READING_COLUMNS = ("topic", "reading", "participants", "share")
-
-FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
-"""Text cells a spreadsheet would run as a formula (OWASP "CSV Injection"): quoted with a
-leading apostrophe, as in the build's study tables; numbers are left as they are."""
-
-
-def safe_cell(value: object) -> object:
-    """The cell as a study table writes it: formula-like text quoted, anything else as is."""
-    if not isinstance(value, str) or not value.startswith(FORMULA_STARTS):
-        return value
-    try:
-        float(value)
-    except ValueError:
-        return "'" + value
-    return value
-
-
-def csv_bytes(df: pd.DataFrame) -> bytes:
-    """A frame as CSV bytes (UTF-8, LF, no index), formula-like text cells quoted."""
-    text = [c for c in df.columns
-            if df[c].dtype == object or pd.api.types.is_string_dtype(df[c].dtype)]
-    if text:
-        df = df.assign(**{str(c): df[c].map(safe_cell) for c in text})
-    buf = io.StringIO()
-    df.to_csv(buf, index=False, lineterminator="\n")
-    return buf.getvalue().encode("utf-8")
-
 
 def measure_order(names: Iterable[str], questionnaires: Iterable[str]) -> list[str]:
     """Measures in registry order (lead-up after its measure), unknown names last, sorted."""
