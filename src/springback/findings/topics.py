@@ -7,7 +7,7 @@ Cut-offs are design choices (said so beside each) unless a source is named.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Sequence
 from typing import Any
 
 from springback.findings.course import value
@@ -222,7 +222,3 @@ def help_needed(participant: str, flags: Sequence[FlagLike]) -> Finding:
                             "rules": ",".join(sorted({f.rule for f in hits}))},
                            reason=first.detail)
     return Finding(participant, "help", "none", "no_clear_sign", {"rules": ""})
-
-
-def by_name(findings: Sequence[Finding]) -> Mapping[str, Finding]:
-    return {f.topic: f for f in findings}
