@@ -14,6 +14,7 @@ import threading
 import xml.etree.ElementTree as ET
 from typing import Any, cast
 
+import altair as alt
 import vl_convert
 
 from springback.charts.palette import CHART, FONT_FAMILY
@@ -89,9 +90,23 @@ def _register_fonts() -> None:
         _fonts_registered = True
 
 
-def to_svg(spec: dict[str, Any], key: str, title: str, description: str, language: str) -> str:
-    """Render a Vega-Lite spec to an inline SVG with title, description and namespaced ids."""
+def vega_lite(chart: alt.TopLevelMixin) -> dict[str, Any]:
+    """The Vega-Lite spec of an altair chart, validated against the Vega-Lite schema.
+
+    altair's own default theme is left out (its view size and colours are not ours); the
+    booklet theme is added by `to_svg`.
+    """
+    with alt.theme.enable("none"):
+        return chart.to_dict(validate=True)
+
+
+def to_svg(spec: alt.TopLevelMixin | dict[str, Any], key: str, title: str, description: str,
+           language: str) -> str:
+    """Render a chart (altair, or a Vega-Lite dict) to an inline SVG with title, description
+    and namespaced ids."""
     _register_fonts()
+    if isinstance(spec, alt.TopLevelMixin):
+        spec = vega_lite(spec)
     full = {**spec, "config": THEME}
     locale = vega_locale(language)
     raw = vl_convert.vegalite_to_svg(
