@@ -42,10 +42,17 @@ class Series:
     max_gap_hours: float
     origin_ns: int = 0
     """UTC nanoseconds of the first answer (hours are measured from it)."""
+    period: np.ndarray | None = None
+    """int64 measurement period (1, 2, ...) of each answer; None = one period."""
 
     @property
     def n(self) -> int:
         return len(self.value)
+
+    @property
+    def periods(self) -> np.ndarray:
+        """Measurement period of each answer (all 1 when the series has none)."""
+        return self.period if self.period is not None else np.ones(self.n, dtype=np.int64)
 
     @property
     def gaps(self) -> np.ndarray:
@@ -110,6 +117,8 @@ def prepare(data: ParticipantData, settings: StudySettings, variable: str | None
     day_index = ((study_day - study_day[0]) // np.timedelta64(1, "D")).astype(int) if len(
         study_day) else np.zeros(0, dtype=int)
     max_gap = settings.metrics.max_gap_hours
+    period = frame["period"].to_numpy(dtype=np.int64) if "period" in frame.columns else \
+        np.ones(len(value), dtype=np.int64)
     admissible = (np.diff(day_index) == 0) & (np.diff(hours) <= max_gap) & (np.diff(hours) > 0)
     return Series(
         variable=variable,
@@ -125,6 +134,7 @@ def prepare(data: ParticipantData, settings: StudySettings, variable: str | None
         admissible=admissible,
         max_gap_hours=max_gap,
         origin_ns=int(ns[0]) if len(ns) else 0,
+        period=period,
     )
 
 

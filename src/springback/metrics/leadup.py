@@ -47,7 +47,8 @@ def before(series: Series, day: pd.Timestamp) -> Series:
         series, local_time=series.local_time.iloc[:k].reset_index(drop=True),
         hours=series.hours[:k], study_day=series.study_day[:k], day_index=series.day_index[:k],
         value=series.value[:k], items=series.items[:k],
-        admissible=series.admissible[:max(k - 1, 0)])
+        admissible=series.admissible[:max(k - 1, 0)],
+        period=None if series.period is None else series.period[:k])
 
 
 def leadup_warnings(series: Series, shifts: Family | None, settings: StudySettings,
