@@ -4,8 +4,11 @@ Episodes start at the first answer after an upsetting event (when it is worse th
 more than the recovery band) or at a data-driven dip (an answer more than `dip_k` rolling SDs
 worse than the rolling baseline of the previous `baseline_days`). An episode ends at the first
 later answer back within `recovery_band_sd` SDs of the baseline; it is censored when the study
-day ends (night or a gap longer than `max_gap_hours`), the data end, or the next upsetting event
-comes first. Censored episodes count as "not yet recovered", never as fast recoveries.
+day ends (night or a gap longer than `max_gap_hours`), the data end, the measurement period
+ends (its last answer) or the next upsetting event comes first. Censored episodes count as "not
+yet recovered", never as fast recoveries. Nothing spans a gap between measurement periods: the
+baseline, each episode, its follow-up for the pooled fit and the drifting level's trend are
+taken within the answer's own period.
 
 Sources: van Nes & Scheffer 2007, "Slow recovery from perturbations as a generic indicator of
 a nearby catastrophic shift", American Naturalist 169:738-747 (recovery speed as resilience);
@@ -71,10 +74,28 @@ of the person's mean (design choice: simulated stationary people with half-lives
 stayed below 0.22, the example study's drifting and shifting people were at 0.33-0.77)."""
 
 
+def period_bounds(series: Series) -> tuple[np.ndarray, np.ndarray]:
+    """First and last (inclusive) answer index of each answer's measurement period.
+
+    A period is a run of consecutive answers with the same period number, so a period number
+    that comes back after another one is a new run.
+    """
+    n = series.n
+    if n == 0:
+        return np.zeros(0, dtype=int), np.zeros(0, dtype=int)
+    new = np.concatenate([[True], np.diff(series.periods) != 0])
+    run = np.cumsum(new) - 1
+    firsts = np.flatnonzero(new)
+    lasts = np.concatenate([firsts[1:] - 1, [n - 1]])
+    return firsts[run], lasts[run]
+
+
 def rolling_baseline(series: Series, days: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Mean, SD and count of the answers in the `days` before each answer (itself excluded)."""
+    """Mean, SD and count of the answers in the `days` before each answer (itself excluded),
+    within the answer's own measurement period."""
     t, x = series.hours, series.value
-    start = np.searchsorted(t, t - days * 24.0, side="left")
+    start = np.maximum(np.searchsorted(t, t - days * 24.0, side="left"),
+                       period_bounds(series)[0])
     end = np.arange(len(t))  # exclusive: answers strictly before this one
     c1 = np.concatenate([[0.0], np.cumsum(x)])
     c2 = np.concatenate([[0.0], np.cumsum(x * x)])
@@ -107,7 +128,9 @@ def find_episodes(series: Series, events: np.ndarray, settings: StudySettings) -
     worse = series.worse(series.value - base)  # deviation, positive = worse than usual
     judged = (count >= MIN_BASELINE_ANSWERS) & (sd > 0)
     t, n = series.hours, series.n
-    gap_ok = np.concatenate([series.admissible, [False]])  # can we follow i -> i + 1?
+    period_last = period_bounds(series)[1]
+    # Can we follow i -> i + 1? Not across a night or long gap, nor out of the period.
+    gap_ok = np.concatenate([series.admissible, [False]]) & (np.arange(n) < period_last)
     starts: dict[int, tuple[str, int]] = {}
     for ev_i, te in enumerate(events):
         i = int(np.searchsorted(t, te, side="left"))
@@ -129,7 +152,8 @@ def find_episodes(series: Series, events: np.ndarray, settings: StudySettings) -
         points = [(0.0, float(worse[i]))]
         while True:
             if not gap_ok[j]:
-                censored_by = "end" if j == n - 1 else "night"
+                censored_by = "end" if j == n - 1 else \
+                    "period end" if j == period_last[j] else "night"
                 break
             if t[j + 1] >= limit:
                 censored_by = "next event"
@@ -167,7 +191,8 @@ def follow_up(series: Series, episodes: list[dict], events: np.ndarray,
     """Every episode's answers for the pooled fit, nights included: episode, hours, deviation.
 
     An episode is followed from its first answer up to the next episode's first answer, and
-    never to an answer after the next upsetting event or beyond FOLLOW_HOURS. The deviation is
+    never to an answer after the next upsetting event, beyond FOLLOW_HOURS or past the last
+    answer of its measurement period. The deviation is
     from `reference` (one level per answer; default the person's mean), positive = worse. The
     level returned to is fitted: a baseline per episode would add its own error to each
     episode and read as slow return (12 h came out as 14 h with 85% coverage).
@@ -176,6 +201,7 @@ def follow_up(series: Series, episodes: list[dict], events: np.ndarray,
     if reference is None:
         reference = np.full(series.n, float(series.value.mean()) if series.n else 0.0)
     starts = [ep["index"] for ep in episodes]
+    period_last = period_bounds(series)[1]
     parts: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
     for e_no, ep in enumerate(episodes, start=1):
         i = ep["index"]
@@ -184,7 +210,8 @@ def follow_up(series: Series, episodes: list[dict], events: np.ndarray,
         # The next episode's first answer ends this one too (its transition is data here; it
         # only conditions the next), unless an upsetting event came in between.
         stop = min(int(np.searchsorted(t, until, side="left")),
-                   starts[e_no] + 1 if e_no < len(starts) else series.n)
+                   starts[e_no] + 1 if e_no < len(starts) else series.n,
+                   int(period_last[i]) + 1)
         dev = series.worse(series.value[i:stop] - reference[i:stop])
         parts.append((np.full(stop - i, e_no), t[i:stop] - t[i], dev))
     if not parts:
@@ -216,12 +243,11 @@ def bounce_back(series: Series, data: ParticipantData, settings: StudySettings) 
                                   note=f"{int((table['trigger'] == 'event').sum())} after events"
                                   if n_ep else "no upsets or dips found"),
            "n_censored": Estimate(float(n_cens), n=n_ep,
-                                  note="episodes cut off by the night, the end of data or the "
-                                       "next event before recovery")}
+                                  note="episodes cut off by the night, the end of a period or "
+                                       "of the data, or the next event before recovery")}
     share = slow_trend_share(series, m.bandwidth_days)
     drifting = share.ok and float(share.value or 0.0) > TREND_REFERENCE_SHARE
-    reference = rl.gaussian_trend(series.hours, series.value, m.bandwidth_days * 24.0) \
-        if drifting else None
+    reference = _trend_by_period(series, m.bandwidth_days * 24.0) if drifting else None
     est["recovery_half_life_hours"], fit_df, followed = _pooled_estimate(
         series, episodes, events, aligned_df, reference)
     if n_ep >= MIN_EPISODES:
@@ -253,6 +279,16 @@ def bounce_back(series: Series, data: ParticipantData, settings: StudySettings) 
                          "interval",
                 "median": "Kaplan-Meier"},
     )
+
+
+def _trend_by_period(series: Series, bandwidth_hours: float) -> np.ndarray:
+    """The slow Gaussian trend of the ratings, smoothed within each measurement period."""
+    first, last = period_bounds(series)
+    trend = np.empty(series.n)
+    for a in np.unique(first):
+        b = int(last[a]) + 1
+        trend[a:b] = rl.gaussian_trend(series.hours[a:b], series.value[a:b], bandwidth_hours)
+    return trend
 
 
 _REASONS = {
