@@ -15,6 +15,13 @@ the level shifts being looked for (common practice in change-point work, e.g. Fr
 Annals of Statistics 42:2243-2281, from memory).
 
 Days without answers are skipped: the series is the sequence of days with at least one answer.
+
+Measurement periods: change points are looked for within each period, never across the gap
+between two. Each period is its own run of days (the optimal segmentation with a forced break
+at every period's start, i.e. PELT per period with the one penalty of all days), the noise
+scale uses only differences of days in the same period, and the level difference between the
+end of one period and the start of the next is reported as a difference between periods
+(`period_levels`, `period_difference`), never as a shift on a day nobody answered.
 """
 
 from __future__ import annotations
@@ -54,9 +61,26 @@ def daily_means(study_day: np.ndarray, value: np.ndarray) -> pd.DataFrame:
     return pd.DataFrame({"study_day": days, "mean": sums / np.maximum(n, 1), "n": n.astype(int)})
 
 
-def noise_scale(y: np.ndarray) -> float:
-    """Estimate the day-to-day noise SD robustly: scaled MAD of first differences / sqrt 2."""
+def day_periods(study_day: np.ndarray, period: np.ndarray, days: pd.Series) -> np.ndarray:
+    """The measurement period of each of `days` (that of its first answer)."""
+    day = np.asarray(study_day, dtype="datetime64[ns]")
+    first = pd.Series(np.asarray(period, dtype=np.int64)).groupby(day, sort=True).first()
+    return first.reindex(pd.DatetimeIndex(days)).to_numpy(dtype=np.int64)
+
+
+def period_starts(period: np.ndarray) -> list[int]:
+    """Indices (of the days) where a new measurement period begins, 0 excluded."""
+    return [int(i) + 1 for i in np.flatnonzero(np.diff(np.asarray(period)) != 0)]
+
+
+def noise_scale(y: np.ndarray, breaks: list[int] | None = None) -> float:
+    """Estimate the day-to-day noise SD robustly: scaled MAD of first differences / sqrt 2.
+
+    `breaks` are indices where a new period starts; differences across them are left out.
+    """
     d = np.diff(np.asarray(y, dtype=float))
+    if breaks:
+        d = np.delete(d, [b - 1 for b in breaks])
     if d.size == 0:
         return 0.0
     mad = MAD_TO_SD * float(np.median(np.abs(d - np.median(d))))
@@ -171,9 +195,13 @@ def shift_family(
     worse_sign = 1.0 if series.higher_is_worse else -1.0
     min_size = settings.metrics.min_segment_days
     daily = daily_means(series.study_day, series.value)
+    day_period = day_periods(series.study_day, series.periods, daily["study_day"])
+    breaks = period_starts(day_period)
+    n_periods = len(breaks) + 1
     params: dict[str, Any] = {"method": METHOD, "cost": "L2 (change in mean)", "jump": 1,
                               "min_segment_days": min_size, "swing_factor": SWING_FACTOR,
-                              "nearby_days": NEARBY_DAYS, "variable": variable}
+                              "nearby_days": NEARBY_DAYS, "variable": variable,
+                              "periods": n_periods if len(daily) else 0}
     empty_cp = pd.DataFrame(
         {"study_day": pd.Series([], dtype="datetime64[ns]"), "direction": pd.Series([], dtype=str),
          "size": pd.Series([], dtype=float), "method": pd.Series([], dtype=str),
@@ -181,9 +209,15 @@ def shift_family(
          "questionnaire_nearby": pd.Series([], dtype=str)}
     )
     n_days = len(daily)
-    if n_days < 2 * min_size:
+    bounds = [0, *breaks, n_days]
+    longest = max((b - a for a, b in pairwise(bounds)), default=0)
+    if longest < 2 * min_size:
         reason = (f"shifts need at least {2 * min_size} days with answers "
                   f"(two segments of {min_size} days); there were {n_days}")
+        if n_periods > 1:
+            reason = (f"shifts need at least {2 * min_size} days with answers in one "
+                      f"measurement period (two segments of {min_size} days); the longest of "
+                      f"the {n_periods} periods had {longest}")
         return Family(
             estimates={"n_shifts": Estimate.missing(reason, n=n_days),
                        "shift_largest": Estimate.missing(reason, n=n_days)},
@@ -191,18 +225,20 @@ def shift_family(
             params=params,
         )
     y = daily["mean"].to_numpy()
-    s = noise_scale(y)
+    s = noise_scale(y, breaks)
     penalty = settings.metrics.pelt_penalty or 2.0 * s * s * math.log(n_days)
-    starts = pelt_changepoints(y, penalty, min_size)
-    exact = optimal_partition(y, penalty, min_size)
+    starts: list[int] = []
+    missed = 0
+    for a, b in pairwise(bounds):
+        found, exact_found = _segment(y[a:b], penalty, min_size)
+        missed += found != exact_found
+        starts += [a + i for i in exact_found]
     check = "ruptures PELT matched the exact optimal partitioning"
-    if penalised_cost(y, exact, penalty) < penalised_cost(y, starts, penalty) - 1e-9 * (
-            1.0 + penalty):
+    if missed:
         # Why: known pruning defect of ruptures with a minimum segment length; the exact
         # optimum of the same objective is what PELT is meant to return.
-        starts = exact
         check = "ruptures PELT missed the optimum (minimum-length pruning); exact result used"
-    level, pooled = segment_levels(y, starts)
+    level, pooled = segment_levels(y, sorted([*starts, *breaks]))
     daily = daily.assign(level=level)
     params.update(penalty=penalty, penalty_rule="set in study.toml" if
                   settings.metrics.pelt_penalty else "2 s^2 ln n (BIC-type)",
@@ -223,6 +259,8 @@ def shift_family(
     change_points = pd.DataFrame(rows) if rows else empty_cp
     note = (f"PELT on {n_days} daily means, L2 cost, penalty {penalty:.3g}, "
             f"segments of at least {min_size} days")
+    if n_periods > 1:
+        note += f"; within each of {n_periods} measurement periods, never across a gap"
     if rows:
         largest = max(rows, key=lambda r: abs(r["size"]))
         n_big = sum(r["exceeds_swings"] for r in rows)
@@ -234,13 +272,50 @@ def shift_family(
         )
     else:
         shift_largest = Estimate.missing("no change point was found", n=n_days)
-    return Family(
-        estimates={"n_shifts": Estimate(float(len(rows)), n=n_days, note=note),
-                   "shift_largest": shift_largest},
-        tables={"daily": daily[["study_day", "mean", "n", "level"]],
-                "change_points": change_points},
-        params=params,
-    )
+    estimates = {"n_shifts": Estimate(float(len(rows)), n=n_days, note=note),
+                 "shift_largest": shift_largest}
+    tables = {"daily": daily[["study_day", "mean", "n", "level"]],
+              "change_points": change_points}
+    if n_periods > 1:
+        tables["period_levels"] = period_levels(daily, day_period, worse_sign)
+        estimates["period_difference"] = _largest_difference(tables["period_levels"], n_days)
+    return Family(estimates=estimates, tables=tables, params=params)
+
+
+def _segment(y: np.ndarray, penalty: float, min_size: int) -> tuple[list[int], list[int]]:
+    """PELT's and the exact optimal partitioning's segment starts in one period's days."""
+    found = pelt_changepoints(y, penalty, min_size)
+    exact = optimal_partition(y, penalty, min_size)
+    if penalised_cost(y, exact, penalty) < penalised_cost(y, found, penalty) - 1e-9 * (
+            1.0 + penalty):
+        return found, exact
+    return found, found
+
+
+def period_levels(daily: pd.DataFrame, day_period: np.ndarray, worse_sign: float
+                  ) -> pd.DataFrame:
+    """Per measurement period: its days, mean of the daily means, its level at the start and
+    the end (the segment levels), and the difference from the previous period's end level to
+    this period's start level (+ = worse; NaN for the first period)."""
+    frame = daily.assign(period=day_period)
+    g = frame.groupby("period", sort=True)
+    out = pd.DataFrame({"first_day": g["study_day"].min(), "last_day": g["study_day"].max(),
+                        "days": g.size(), "mean": g["mean"].mean(),
+                        "level_start": g["level"].first(), "level_end": g["level"].last()})
+    out["difference"] = worse_sign * (out["level_start"] - out["level_end"].shift(1))
+    return out.rename_axis("period").reset_index()
+
+
+def _largest_difference(levels: pd.DataFrame, n_days: int) -> Estimate:
+    """The largest level difference between consecutive periods (+ = worse)."""
+    diffs = levels["difference"].iloc[1:].to_numpy(float)
+    k = int(np.argmax(np.abs(diffs)))
+    row = levels.iloc[k + 1]
+    return Estimate(float(diffs[k]), n=n_days,
+                    note=f"period {int(row['period']) - 1} to period {int(row['period'])} "
+                         f"({pd.Timestamp(row['first_day']).date().isoformat()}): level at "
+                         "the start of a period minus the level at the end of the one before; "
+                         "a difference between periods, not a shift")
 
 
 def shift_rows(results: ParticipantResults) -> list[dict[str, Any]]:

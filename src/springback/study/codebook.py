@@ -160,6 +160,13 @@ MEASURES: tuple[Measure, ...] = (
             "Size of the largest change point, positive when worse", "scale points",
             "the scale's width either way", "difference of the segment means around the change",
             "Killick, Fearnhead & Eckley 2012, JASA 107:1590-1598", "shifts"),
+    Measure("period_difference", "Largest level difference between measurement periods "
+            "(+ = worse)", "How much the level at the start of a period differed from the level "
+            "at the end of the period before (only with two or more periods)", "scale points",
+            "the scale's width either way",
+            "segment mean at the start of a period minus the one at the end of the previous "
+            "period (change points are looked for within periods only)",
+            "Killick, Fearnhead & Eckley 2012, JASA 107:1590-1598", "shifts"),
     *_WARNINGS,
     Measure("landscape_valleys", "Valleys in the potential",
             "Levels the mood kept coming back to", "valleys", "1 or more",
