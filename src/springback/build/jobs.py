@@ -89,9 +89,9 @@ def run_job(job: Job) -> ParticipantOutcome:
 
 def _run_job(job: Job) -> ParticipantOutcome:
     from springback import findings, metrics
+    from springback.build.history import review_state
     from springback.build.runner import stage
     from springback.metrics.shifts import shift_rows
-    from springback.review.gate import review_state
     from springback.safety import rules as safety
 
     data, settings = job.data, job.settings
@@ -105,7 +105,7 @@ def _run_job(job: Job) -> ParticipantOutcome:
     results = metrics.compute(data, settings)
     flags = safety.evaluate(data, results, settings, period_end=job.period_end)
     found = findings.decide(results, flags, settings)
-    state = review_state(job.project, pid, job.fingerprint, flags)
+    state = review_state(flags, job.decision, job.unreadable)
     common: dict[str, Any] = dict(
         metrics_rows=metrics.results_rows(results),
         flag_rows=safety.flags_rows(flags),

@@ -9,18 +9,17 @@ file by file. `archive_staged` then records the staged folder as an archived bui
 from __future__ import annotations
 
 import dataclasses
-import shutil
 from collections.abc import Iterable
 from datetime import datetime
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, cast
+from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
 from springback.files import csv_bytes
 
 if TYPE_CHECKING:
-    from springback.build.records import Job, ParticipantOutcome
+    from springback.build.records import ParticipantOutcome
     from springback.model import Study
 
 OUT_MARKER = ".springback-out"
@@ -75,10 +74,6 @@ def check_out_dir(project: Path, out_dir: Path, archive_dir: Path) -> None:
         f"files would be lost. Fix: {fix}, or move the files away first")
 
 
-REUSABLE = ("built", "no feedback", "not enough data", "withdrawn")
-"""Outcomes that can be carried over from the last build when nothing they depend on changed."""
-
-
 def stage_files(outcome: ParticipantOutcome, staging: Path) -> ParticipantOutcome:
     """Write the outcome's files into `staging` and return it without their bytes."""
     write_files(outcome.files, staging)
@@ -98,7 +93,7 @@ def archive_staged(project: Path, out_dir: Path, staging: Path, *, study: Study,
                    templates: list[Path]) -> str:
     """Archive a fully staged build (the caller swaps `staging` into `out_dir` afterwards).
 
-    Reused participants' files were staged from the archive by `Previous`, so every outcome's
+    Reused participants' files were staged from the archive by `History.reused`, so every outcome's
     files are in `staging` already (or in `o.files`, written here).
     """
     from springback.archive.manifest import record_build
@@ -123,128 +118,6 @@ def archive_staged(project: Path, out_dir: Path, staging: Path, *, study: Study,
               "formats": list(settings.booklet.formats)}
     return record_build(project, staging, list(study.input_files), settings, templates,
                         people, params, started, ended)
-
-
-class Previous:
-    """The last archived build, for reusing participants whose inputs did not change."""
-
-    def __init__(self, project: Path, folder: Path, manifest: dict[str, Any]) -> None:
-        self.project = project
-        self.folder = folder
-        self.people: dict[str, dict[str, Any]] = manifest.get("participants", {})
-        self.rows = {name: _rows_by_participant(folder / "out" / name)
-                     for name in ("metrics.csv", "findings.csv", "flags.csv", "shifts.csv")}
-
-    @classmethod
-    def load(cls, project: Path) -> Previous | None:
-        """The latest build's record, or None before the first build.
-
-        Only a build whose manifest the audit log vouches for, with every archived file as
-        listed, is reused; otherwise everyone is built anew, so nothing edited in the archive
-        (a hold flag taken out, a booklet changed) is carried into a new build.
-        """
-        from springback.archive.manifest import trusted_manifest
-        from springback.archive.verify import folder_mismatches
-        from springback.errors import ArchiveError
-        from springback.files import project_dirs
-
-        try:
-            manifest = trusted_manifest(project)
-        except ArchiveError:
-            return None
-        if not manifest:
-            return None
-        folder = project_dirs(project).archive / manifest["build"]
-        if folder_mismatches(folder, manifest):
-            return None
-        return cls(project, folder, manifest)
-
-    def carried(self, pid: str, staging: Path) -> ParticipantOutcome | None:
-        """A participant left out of a partial build (`--participant`), as the last build
-        had them: files copied into `staging`, the same fingerprint, version and flags, so
-        review and release still see their booklet. None if the last build lacks them."""
-        from springback.build.records import BOOKLETS, ParticipantOutcome
-        from springback.model import EDITIONS
-        from springback.review.gate import review_state
-
-        rec = self.people.get(pid)
-        if not rec:
-            return None
-        names = [str(rel) for rel in rec.get("files", [])]
-        if not all((self.folder / "out" / rel).is_file() for rel in names):
-            return None
-        for rel in names:
-            (staging / rel).parent.mkdir(parents=True, exist_ok=True)
-            shutil.copyfile(self.folder / "out" / rel, staging / rel)
-        fp, flags = str(rec.get("fingerprint", "")), list(rec.get("flags", []))
-        metrics_rows = self.rows["metrics.csv"].get(pid, [])
-        compliance = next((r["value"] for r in metrics_rows if r["measure"] == "compliance"), "")
-        period = rec.get("period", {})
-        return ParticipantOutcome(
-            participant=pid, status=str(rec.get("status", "")), reason=rec.get("reason", ""),
-            stored=tuple(sorted(names)), metrics_rows=metrics_rows,
-            flag_rows=self.rows["flags.csv"].get(pid, []),
-            shift_rows=self.rows["shifts.csv"].get(pid, []),
-            finding_rows=self.rows["findings.csv"].get(pid, []),
-            review_state=review_state(self.project, pid, fp, flags), fingerprint=fp,
-            version=int(rec.get("version", 0) or 0),
-            period=(period.get("first", ""), period.get("last", "")),
-            compliance=float(compliance) if compliance not in ("", None) else None,
-            editions=tuple(e for e in EDITIONS if f"{BOOKLETS}/{pid}/{e}.html" in names
-                           or f"{BOOKLETS}/{pid}/{e}.pdf" in names),
-            flags=flags, reused=True,
-        )
-
-    def outcome(self, job: Job, staging: Path) -> ParticipantOutcome | None:
-        """The participant's last outcome, its files copied into `staging`, if nothing it
-        depends on changed; else None (and nothing copied)."""
-        from springback.build.records import BOOKLETS, ParticipantOutcome
-        from springback.model import EDITIONS
-        from springback.review.gate import review_state
-
-        pid = job.data.participant
-        rec = self.people.get(pid)
-        if not rec or rec.get("fingerprint") != job.fingerprint or rec.get("status") not in (
-            REUSABLE
-        ):
-            return None
-        flags = list(rec.get("flags", []))
-        state = review_state(self.project, pid, job.fingerprint, flags)
-        if state != rec.get("review_state"):
-            return None  # the therapist edition shows the review state: render it anew
-        names = [str(rel) for rel in rec.get("files", [])]
-        if not all((self.folder / "out" / rel).is_file() for rel in names):
-            return None
-        for rel in names:  # file by file: no booklet is held in memory
-            (staging / rel).parent.mkdir(parents=True, exist_ok=True)
-            shutil.copyfile(self.folder / "out" / rel, staging / rel)
-        metrics_rows = self.rows["metrics.csv"].get(pid, [])
-        compliance = next((r["value"] for r in metrics_rows if r["measure"] == "compliance"), "")
-        editions = tuple(e for e in EDITIONS if f"{BOOKLETS}/{pid}/{e}.html" in names
-                         or f"{BOOKLETS}/{pid}/{e}.pdf" in names)
-        period = rec.get("period", {})
-        return ParticipantOutcome(
-            participant=pid, status=rec["status"], reason=rec.get("reason", ""),
-            stored=tuple(sorted(names)),
-            metrics_rows=metrics_rows, flag_rows=self.rows["flags.csv"].get(pid, []),
-            shift_rows=self.rows["shifts.csv"].get(pid, []),
-            finding_rows=self.rows["findings.csv"].get(pid, []), review_state=state,
-            fingerprint=job.fingerprint, version=job.version,
-            period=(period.get("first", ""), period.get("last", "")),
-            compliance=float(compliance) if compliance not in ("", None) else None,
-            editions=editions, flags=flags, reused=True,
-        )
-
-
-def _rows_by_participant(path: Path) -> dict[str, list[dict[str, Any]]]:
-    """A study table's rows as exact strings, grouped by participant (empty if absent)."""
-    if not path.is_file():
-        return {}
-    df = pd.read_csv(path, dtype=str, keep_default_na=False)
-    out: dict[str, list[dict[str, Any]]] = {}
-    for row in df.to_dict("records"):
-        out.setdefault(row["participant"], []).append(cast(dict[str, Any], row))
-    return out
 
 
 def frame_bytes(df: pd.DataFrame) -> bytes:

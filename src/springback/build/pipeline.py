@@ -20,11 +20,11 @@ from springback.build.fingerprints import (
     template_files,
     templates_hash,
 )
+from springback.build.history import History
 from springback.build.jobs import run_job, warm_engines
 from springback.build.output import (
     MARKER_TEXT,
     OUT_MARKER,
-    Previous,
     archive_staged,
     check_out_dir,
     stage_files,
@@ -73,7 +73,8 @@ def build(
         selected = _select(study, participants)
         tmpl = template_files(project)
         s_hash, t_hash = settings_hash(settings), templates_hash(tmpl + catalogue_files())
-        previous = None if force else Previous.load(project)
+        # The one read of earlier builds and reviews; jobs get plain values from it.
+        history = History.read(project, with_last=not force or bool(participants))
         end = study_end(study)
         clean_stale(out_dir.parent)
         # Files go to disk as they arrive; the folder replaces out/ only once it is archived.
@@ -87,9 +88,10 @@ def build(
                 for pid in heaviest_first(study, selected, settings):
                     data = study.slice(pid)
                     fp = fingerprint(data, s_hash, t_hash, end)
-                    version = archive.booklet_version(project, pid, fp)
-                    job = Job(project, data, settings, fp, version, started, end)
-                    again = previous.outcome(job, staging) if previous else None
+                    job = Job(project, data, settings, fp, history.version(pid, fp), started,
+                              end, history.decision(pid, fp), history.unreadable)
+                    again = None if force else history.reused(
+                        pid, staging, fingerprint=fp, version=job.version)
                     if again is None:
                         yield job
                     else:
@@ -105,7 +107,7 @@ def build(
             )
             by_id = {**reused, **{o.participant: o for o in fresh}}
             if participants:
-                by_id.update(_carried(project, study, selected, staging))
+                by_id.update(_carried(history, study, selected, staging))
             outcomes = [by_id[pid] for pid in study.participants() if pid in by_id]
             report("", "writing the overview, tables and archive")
             tables = study_tables(study, outcomes)
@@ -127,16 +129,13 @@ def build(
     return BuildReport(out_dir, build_id, tuple(outcomes), tuple(study.warnings))
 
 
-def _carried(project: Path, study: Study, selected: list[str],
+def _carried(history: History, study: Study, selected: list[str],
              staging: Path) -> dict[str, ParticipantOutcome]:
-    """Everyone a partial build leaves out, as the last build had them (see Previous.carried);
+    """Everyone a partial build leaves out, as the last build had them (`History.reused`);
     so `build --participant X` never makes review or release lose the others' booklets."""
-    last = Previous.load(project)
-    if last is None:
-        return {}
     out = {}
     for pid in study.participants():
-        if pid not in selected and (o := last.carried(pid, staging)) is not None:
+        if pid not in selected and (o := history.reused(pid, staging)) is not None:
             out[pid] = o
     return out
 

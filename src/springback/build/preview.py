@@ -65,7 +65,7 @@ def preview(project: Path, participants: list[str],
             progress: Callable[[str, str], None] | None = None) -> list[PreviewResult]:
     """Render these participants' booklets into out/preview/<id>/ (each folder replaced whole)."""
     from springback import intake
-    from springback.archive.manifest import booklet_version, build_time
+    from springback.archive.manifest import build_time
     from springback.build.fingerprints import (
         catalogue_files,
         fingerprint,
@@ -73,6 +73,7 @@ def preview(project: Path, participants: list[str],
         template_files,
         templates_hash,
     )
+    from springback.build.history import History
     from springback.build.jobs import run_job
     from springback.build.output import MARKER_TEXT, OUT_MARKER, check_out_dir
     from springback.build.pipeline import _select
@@ -97,6 +98,7 @@ def preview(project: Path, participants: list[str],
     say = progress or (lambda _p, _s: None)
     results = []
     with BuildLock(project):
+        history = History.read(project, with_last=False)
         if not out_dir.exists():
             out_dir.mkdir(parents=True)
             (out_dir / OUT_MARKER).write_text(MARKER_TEXT, encoding="utf-8")
@@ -104,8 +106,8 @@ def preview(project: Path, participants: list[str],
             say(pid, "rendering")
             data = study.slice(pid)
             fp = fingerprint(data, s_hash, t_hash, end)
-            job = Job(project, data, html_only, fp, booklet_version(project, pid, fp), started,
-                      end)
+            job = Job(project, data, html_only, fp, history.version(pid, fp), started, end,
+                      history.decision(pid, fp), history.unreadable)
             outcome: ParticipantOutcome = run_job(job)
             folder = out_dir / PREVIEW / pid
             if outcome.status != "built":

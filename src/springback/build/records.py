@@ -102,3 +102,8 @@ class Job:
     built_at: datetime
     period_end: pd.Timestamp | None = None
     """The study's last prompt or score: silence rules look back from here."""
+    decision: str = "held"
+    """The review decision on this booklet version ('approved', 'rejected'; 'held' while
+    there is none), from the build's `History`; it counts only when a hold flag is raised."""
+    unreadable: str = ""
+    """Why the review decisions could not be read (a booklet with a hold flag fails), else ''."""

@@ -4,6 +4,8 @@ Public functions:
 
     review_state(project: Path, participant: str, fingerprint: str, flags: list[Flag | dict])
         -> 'not needed' | 'held' | 'approved' | 'rejected'
+    review_decisions(archive: Path) -> dict[(participant, fingerprint), Decision]  # one read
+    decided_state(flags, decision: str) -> str       # the state from a decision already read
     list_held(project: Path) -> list[HeldBooklet]    # latest build's booklets with a hold
     approve(project: Path, participant: str, by: str, note: str = "") -> dict   # the log entry
     reject(project: Path, participant: str, by: str, note: str = "") -> dict
@@ -27,7 +29,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from springback.archive.audit import append, note_text, read_entries, save_note, subject
+from springback.archive.audit import append, known_subjects, read_entries, save_note, subject
 from springback.archive.manifest import trusted_manifest
 from springback.errors import ArchiveError, DataError, Problem, ReviewError
 from springback.files import BuildLock, atomic_write_bytes, project_dirs, sha256_file, staging_dir
@@ -79,22 +81,37 @@ def _has_hold(flags: list[Any]) -> bool:
     return any(_action(f) == "hold" for f in flags)
 
 
-def _decision(archive: Path, participant: str, fingerprint: str) -> Decision:
-    token = subject(archive, participant)
-    if token is None:
-        return Decision(HELD)
+def review_decisions(archive: Path) -> dict[tuple[str, str], Decision]:
+    """The latest decision on every reviewed booklet version, by (participant, fingerprint),
+    from one read of the key store and of the log; a damaged log approves nothing."""
+    known = known_subjects(archive)
+    if not known:
+        return {}
     try:
         entries = read_entries(archive)
     except ArchiveError:
-        return Decision(HELD)  # a damaged log approves nothing
-    found = Decision(HELD)
+        return {}
+    by_token = {token: pid for pid, (token, _notes) in known.items()}
+    found: dict[tuple[str, str], Decision] = {}
     for e in entries:
-        if (e.get("kind") == "review" and e.get("subject") == token
-                and e.get("fingerprint") == fingerprint):
-            state = APPROVED if e.get("decision") == "approve" else REJECTED
-            note = note_text(archive, participant, str(e.get("note_sha256", "")))
-            found = Decision(state, str(e.get("by", "")), str(e.get("time", "")), note)
+        pid = by_token.get(str(e.get("subject"))) if e.get("kind") == "review" else None
+        if pid is None:
+            continue
+        state = APPROVED if e.get("decision") == "approve" else REJECTED
+        note = known[pid][1].get(str(e.get("note_sha256", "")), "")
+        found[(pid, str(e.get("fingerprint")))] = Decision(
+            state, str(e.get("by", "")), str(e.get("time", "")), note)
     return found
+
+
+def _decision(archive: Path, participant: str, fingerprint: str) -> Decision:
+    return review_decisions(archive).get((participant, fingerprint), Decision(HELD))
+
+
+def decided_state(flags: list[Any], decision: str) -> str:
+    """The booklet's review state from its flags and the decision on its version
+    ('held' when undecided): 'not needed' without a hold flag."""
+    return decision if _has_hold(flags) else NOT_NEEDED
 
 
 def review_state(project: Path, participant: str, fingerprint: str, flags: list[Any]) -> str:
@@ -119,13 +136,13 @@ def _reasons(record: dict[str, Any]) -> tuple[str, ...]:
 def list_held(project: Path) -> list[HeldBooklet]:
     """Every booklet of the latest build that a hold rule stopped, with its current state."""
     manifest = _current(project)
-    archive = project_dirs(project).archive
+    decisions = review_decisions(project_dirs(project).archive)
     out = []
     for pid, rec in sorted(manifest.get("participants", {}).items()):
         if not _has_hold(rec.get("flags", [])) or not rec.get("files"):
             continue
         fp = str(rec.get("fingerprint", ""))
-        d = _decision(archive, pid, fp)
+        d = decisions.get((pid, fp), Decision(HELD))
         out.append(HeldBooklet(pid, str(manifest["build"]), str(rec.get("version", "")), fp,
                                d.state, _reasons(rec), d.by, d.time, d.note))
     return out
