@@ -10,10 +10,13 @@ import math
 from collections.abc import Sequence
 from typing import Any
 
+import pandas as pd
+
 from springback.findings.course import value
-from springback.findings.records import Certainty, Finding, FlagLike, missing
+from springback.findings.records import Certainty, Finding, missing
 from springback.metrics.questionnaires import RCI_Z
 from springback.metrics.results import Estimate, Family, ParticipantResults
+from springback.model import Flag
 from springback.settings import StudySettings
 
 LEVEL_THIRDS = (1 / 3, 2 / 3)
@@ -182,19 +185,41 @@ def questionnaires(results: ParticipantResults, settings: StudySettings) -> list
 
 
 def participation(results: ParticipantResults) -> Finding:
-    """How many of the prompts sent were answered (the one compliance number)."""
+    """How many of the prompts sent were answered (the one compliance number), in how many
+    measurement periods (`measured_in`: `one_period` or `periods`, each period's first and last
+    day and answers) and whether the times are the scheduled prompt times (`times`:
+    `scheduled` or `answered`)."""
     pid = results.participant
     share = _est(results, "compliance")
     answered = _est(results, "n_answered")
     n = int(answered.value or 0) if answered is not None and answered.ok else 0
+    when = _periods(results)
     if share is None or not share.ok:
         return missing(pid, "participation", share.note if share else
-                       "the number of prompts sent is not known", answered=n)
+                       "the number of prompts sent is not known", answered=n, **when)
     s = float(share.value or 0.0)
     reading = ("low" if s < PARTICIPATION_CUTS[0] else "medium" if s < PARTICIPATION_CUTS[1]
                else "high")
     return Finding(pid, "participation", reading, "clear",
-                   {"share": s, "answered": n, "sent": share.n})
+                   {"share": s, "answered": n, "sent": share.n, **when})
+
+
+def _periods(results: ParticipantResults) -> dict[str, Any]:
+    """The measurement periods and the kind of times, from the descriptives family."""
+    desc = results.families.get("descriptives")
+    if desc is None:
+        return {}
+    table = desc.tables.get("periods")
+    rows: list[dict[Any, Any]] = [] if table is None else \
+        table.sort_values("period").to_dict("records")
+    numbers: dict[str, Any] = {
+        "periods": len(rows), "measured_in": "periods" if len(rows) > 1 else "one_period",
+        "times": "scheduled" if desc.params.get("times_scheduled") else "answered"}
+    for k, row in enumerate(rows, start=1):
+        numbers[f"period_{k}_first"] = pd.Timestamp(row["first_day"]).date().isoformat()
+        numbers[f"period_{k}_last"] = pd.Timestamp(row["last_day"]).date().isoformat()
+        numbers[f"period_{k}_answered"] = int(row.get("answered", 0))
+    return numbers
 
 
 def landscape(results: ParticipantResults) -> Finding:
@@ -208,7 +233,7 @@ def landscape(results: ParticipantResults) -> Finding:
                    "some_signs", {"valleys": n})
 
 
-def help_needed(participant: str, flags: Sequence[FlagLike]) -> Finding:
+def help_needed(participant: str, flags: Sequence[Flag]) -> Finding:
     """Whether a safety rule asks for help (`refer`), a review (`hold`) or neither (`none`).
 
     The reason is the flag's own (its rule's detail); the strongest action leads."""

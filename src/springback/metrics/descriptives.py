@@ -175,7 +175,8 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
         params={"typical_low": float(typical[0]), "typical_high": float(typical[1]),
                 "scale_low": low, "scale_high": high,
                 "higher_is_worse": series.higher_is_worse, "variable": series.variable,
-                "pair_rule": rule, "ta_mssd_lambda": m.ta_mssd_lambda},
+                "pair_rule": rule, "ta_mssd_lambda": m.ta_mssd_lambda,
+                "times_scheduled": bool(data.times_scheduled)},
     )
 
 
@@ -199,11 +200,14 @@ def _daily(series: Series, schedule: pd.DataFrame) -> pd.DataFrame:
 
 
 def _periods(schedule: pd.DataFrame) -> pd.DataFrame:
-    """Each measurement period's first and last study day (charts break at the gaps)."""
+    """Each measurement period's first and last study day (charts break at the gaps) and its
+    answered prompts."""
     days = schedule["study_day"].astype("datetime64[ns]")
-    by = days.groupby(schedule["period"].astype("int64"))
-    return pd.DataFrame({"first_day": by.min(), "last_day": by.max()}).rename_axis(
-        "period").reset_index()
+    period = schedule["period"].astype("int64")
+    by = days.groupby(period)
+    answered = schedule["answered"].astype("int64").groupby(period).sum()
+    return pd.DataFrame({"first_day": by.min(), "last_day": by.max(),
+                         "answered": answered}).rename_axis("period").reset_index()
 
 
 def _diurnal(series: Series) -> pd.DataFrame:
