@@ -9,6 +9,7 @@ from dataclasses import dataclass
 from functools import cached_property
 from typing import Any
 
+import altair as alt
 import babel.dates
 import numpy as np
 import pandas as pd
@@ -214,9 +215,34 @@ def _as_date(when: Any) -> Any:
     return stamp.date()
 
 
+@dataclass(frozen=True)
+class TimeAxis:
+    """A date axis over whole study days: its UTC domain in epoch ms and its labelled days."""
+
+    first: int
+    last: int
+    ticks: tuple[int, ...]
+    title: str | None
+    format: str
+    """The d3 time format of the day labels (`svg.date_axis_format`)."""
+
+    @property
+    def domain(self) -> tuple[int, int]:
+        return (self.first, self.last)
+
+    def x(self, field: str = "t", *, show_title: bool = True) -> alt.X:
+        """The x encoding of epoch-ms `field` on this axis (without its title if asked)."""
+        return alt.X(
+            field=field, type="temporal",
+            scale=alt.Scale(type="utc", domain=[self.first, self.last], nice=False),
+            axis=alt.Axis(title=self.title if show_title else None, format=self.format,
+                          values=list(self.ticks), labelOverlap=True, labelFlush=False),
+        )
+
+
 def time_axis(ctx: Inputs, title: str | None, times: np.ndarray, pad_days: int = 0
-              ) -> dict[str, Any]:
-    """Encoding options for a date axis over whole study days, with at most ~8 labelled days.
+              ) -> TimeAxis:
+    """A date axis over whole study days, with at most ~8 labelled days.
 
     `times` are the plotted epoch-ms values; the scale is UTC (see `Inputs.ms`).
     """
@@ -229,13 +255,8 @@ def time_axis(ctx: Inputs, title: str | None, times: np.ndarray, pad_days: int =
     start = first
     if step >= 7:  # weekly labels fall on Mondays (1 Jan 1970 was a Thursday)
         start += ((0 - (first // _MS_PER_DAY + 3)) % 7) * _MS_PER_DAY
-    ticks = list(range(start, last + 1, step * _MS_PER_DAY))
-    return {
-        "type": "temporal",
-        "scale": {"type": "utc", "domain": [first, last], "nice": False},
-        "axis": {"title": title, "format": date_axis_format(ctx.language), "values": ticks,
-                 "labelOverlap": True, "labelFlush": False},
-    }
+    ticks = tuple(range(start, last + 1, step * _MS_PER_DAY))
+    return TimeAxis(first, last, ticks, title, date_axis_format(ctx.language))
 
 
 @dataclass(frozen=True)
@@ -254,43 +275,47 @@ class KeyItem:
     """Outline of a 'box' swatch (a 3:1 colour; the fill may be light)."""
 
 
-def key_spec(items: list[KeyItem], width: int) -> dict[str, Any]:
+def key_spec(items: list[KeyItem], width: int) -> alt.LayerChart:
     """A small chart drawing a key of sample marks with written labels, wrapped to `width`.
 
     A key with dashes, shapes and words keeps every series readable without colour.
     """
     row_h, sample_w, gap = 24, 26, 18
-    x, row, layers, labels = 0.0, 0, [], []
+    x, row = 0.0, 0
+    layers: list[alt.Chart] = []
+    labels: list[dict[str, Any]] = []
     for item in items:
         need = sample_w + 6 + CHAR_WIDTH * len(item.label)
         if x > 0 and x + need > width:
             x, row = 0.0, row + 1
         y = row * row_h + row_h / 2
         if item.kind == "line":
-            layers.append({"mark": {"type": "rule", "color": item.colour,
-                                    "strokeWidth": item.width,
-                                    "strokeDash": list(item.dash)},
-                           "encoding": {"x": {"value": x}, "x2": {"value": x + sample_w},
-                                        "y": {"value": y}}})
+            layers.append(
+                alt.Chart()
+                .mark_rule(color=item.colour, strokeWidth=item.width, strokeDash=list(item.dash))
+                .encode(x=alt.value(x), x2=alt.value(x + sample_w), y=alt.value(y)))
         elif item.kind == "box":
-            layers.append({"mark": {"type": "rect", "color": item.colour,
-                                    "stroke": item.edge or None, "strokeWidth": 1},
-                           "encoding": {"x": {"value": x}, "x2": {"value": x + sample_w},
-                                        "y": {"value": y - 7}, "y2": {"value": y + 7}}})
+            layers.append(
+                alt.Chart()
+                .mark_rect(color=item.colour, stroke=item.edge or None, strokeWidth=1)
+                .encode(x=alt.value(x), x2=alt.value(x + sample_w),
+                        y=alt.value(y - 7), y2=alt.value(y + 7)))
         else:
-            layers.append({"mark": {"type": "point", "shape": item.shape, "size": 80,
-                                    "filled": item.filled, "color": item.colour,
-                                    "strokeWidth": 1.5, "opacity": 1},
-                           "encoding": {"x": {"value": x + sample_w / 2}, "y": {"value": y}}})
+            layers.append(
+                alt.Chart()
+                .mark_point(shape=item.shape, size=80, filled=item.filled, color=item.colour,
+                            strokeWidth=1.5, opacity=1)
+                .encode(x=alt.value(x + sample_w / 2), y=alt.value(y)))
         labels.append({"x": x + sample_w + 6, "y": y, "label": item.label})
         x += need + gap
-    layers.append({"data": {"values": labels},
-                   "mark": {"type": "text", "align": "left", "baseline": "middle"},
-                   "encoding": {"x": {"field": "x", "type": "quantitative", "scale": None},
-                                "y": {"field": "y", "type": "quantitative", "scale": None},
-                                "text": {"field": "label"}}})
-    return {"width": width, "height": (row + 1) * row_h, "data": {"values": [{}]},
-            "layer": layers}
+    layers.append(
+        alt.Chart(alt.Data(values=labels))
+        .mark_text(align="left", baseline="middle")
+        .encode(x=alt.X(field="x", type="quantitative", scale=None),
+                y=alt.Y(field="y", type="quantitative", scale=None),
+                text=alt.Text(field="label")))
+    return alt.LayerChart(layer=layers, data=alt.Data(values=[{}]), width=width,
+                          height=(row + 1) * row_h)
 
 
 def day_noon_ms(ctx: Inputs, days: pd.Series) -> np.ndarray:

@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from typing import Any, cast
 
+import altair as alt
 import babel.dates
 import numpy as np
 import pandas as pd
@@ -13,6 +15,7 @@ from springback.charts.common import (
     Chart,
     Inputs,
     KeyItem,
+    TimeAxis,
     day_noon_ms,
     key_spec,
     records,
@@ -41,57 +44,52 @@ def mood_chart(ctx: Inputs) -> Chart | None:
     if series.empty or daily.empty:
         return None
     low, high = ctx.scale
-    y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
-         "axis": {"title": ctx.value_axis_title(), "tickMinStep": 1}}
+    y = _value_axis(ctx, low, high)
     answers = pd.DataFrame({"t": ctx.ms(series["local_time"]), "v": series["value"]})
     means = pd.DataFrame({"t": day_noon_ms(ctx, daily["study_day"]), "v": daily["mean"],
                           "p": _period_of(ctx, daily["study_day"])})
     x = time_axis(ctx, _("Date"), np.concatenate([answers["t"], means["t"]]))
-    layers: list[dict[str, Any]] = []
+    layers: list[alt.Chart] = []
     key = [KeyItem(_("daily average"), CHART.primary, width=3),
            KeyItem(_("single answers"), CHART.neutral, kind="point", filled=False)]
     typical = (ctx.param("descriptives", "typical_low"), ctx.param("descriptives", "typical_high"))
     if all(v is not None and math.isfinite(v) for v in typical):
         layers += _band_layers(float(typical[0]), float(typical[1]), y)
         key.append(KeyItem(_("your typical range"), CHART.band, kind="box", edge=CHART.neutral))
-    layers.append({
-        "data": {"values": records(answers)},
-        "mark": {"type": "point", "shape": "circle", "filled": False, "size": 22,
-                 "color": CHART.neutral, "strokeWidth": 1},
-        "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}},
-    })
+    layers.append(
+        alt.Chart(alt.Data(values=records(answers)))
+        .mark_point(shape="circle", filled=False, size=22, color=CHART.neutral, strokeWidth=1)
+        .encode(x=x.x("t"), y=y("v")))
     shift_layers = _shift_layers(ctx, x, y)
     if shift_layers:
         layers += shift_layers
         key += [KeyItem(_("detected shift"), CHART.highlight, dash=(2, 3), width=2),
                 KeyItem(_("level before and after a shift"), CHART.highlight, dash=(8, 4))]
     layers.append(
-        {"data": {"values": records(means)},
-         "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 3,
-                  "point": {"filled": True, "size": 24, "color": CHART.primary}},
-         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y},
-                      "detail": {"field": "p", "type": "nominal"}}})  # no line across a gap
+        alt.Chart(alt.Data(values=records(means)))
+        .mark_line(color=CHART.primary, strokeWidth=3,
+                   point=alt.OverlayMarkDef(filled=True, size=24, color=CHART.primary))
+        .encode(x=x.x("t"), y=y("v"),
+                detail=alt.Detail(field="p", type="nominal")))  # no line across a gap
     n_events = 0
     events = _events(ctx)
     if events is not None:
-        first, last = x["scale"]["domain"]
+        first, last = x.domain
         events = events[(events["t"] >= first) & (events["t"] < last)]
     if events is not None and len(events):
         n_events = len(events)
         kinds = list(dict.fromkeys(sorted(events["kind"])))
         shapes = dict(zip(kinds, EVENT_SHAPES, strict=False))
         events = events.assign(shape=[shapes.get(k, EVENT_SHAPES[-1]) for k in events["kind"]])
-        layers.append({
-            "data": {"values": records(events[["t", "kind", "shape"]])},
-            "mark": {"type": "point", "filled": True, "size": 90, "color": CHART.accent,
-                     "opacity": 1},
-            "encoding": {"x": {"field": "t", **x}, "y": {"value": 8},
-                         "shape": {"field": "shape", "type": "nominal", "scale": None}},
-        })
+        layers.append(
+            alt.Chart(alt.Data(values=records(events[["t", "kind", "shape"]])))
+            .mark_point(filled=True, size=90, color=CHART.accent, opacity=1)
+            .encode(x=x.x("t"), y=alt.value(8),
+                    shape=alt.Shape(field="shape", type="nominal", scale=None)))
         key += [KeyItem(_("event: {kind}").format(kind=k), CHART.accent, kind="point",
                         shape=shapes[k]) for k in kinds]
-    plot = {"width": PLOT_WIDTH, "height": HEIGHT, "layer": layers}
-    spec = {"vconcat": [key_spec(key, PLOT_WIDTH), plot], "spacing": 10}
+    plot = alt.layer(*layers).properties(width=PLOT_WIDTH, height=HEIGHT)
+    spec = alt.vconcat(key_spec(key, PLOT_WIDTH), plot, spacing=10)
     title = _("Your mood over time")
     description = _mood_description(ctx, series, daily, n_events)
     table = _mood_table(ctx, daily, events)
@@ -128,19 +126,29 @@ def _weekly_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None
     })
 
 
-def _band_layers(lo: float, hi: float, y: dict[str, Any]) -> list[dict[str, Any]]:
+def _value_axis(ctx: Inputs, low: float, high: float) -> Callable[[str], alt.Y]:
+    """The y encoding of a field on the mood scale, titled with the variable and its worse end."""
+    scale = alt.Scale(domain=[low, high], nice=False, zero=False)
+    axis = alt.Axis(title=ctx.value_axis_title(), tickMinStep=1)
+
+    def encode(field: str) -> alt.Y:
+        return alt.Y(field=field, type="quantitative", scale=scale, axis=axis)
+
+    return encode
+
+
+def _band_layers(lo: float, hi: float, y: Callable[[str], alt.Y]) -> list[alt.Chart]:
     """The typical range: a light band with 3:1 edges (named in the key)."""
-    band = [{"lo": lo, "hi": hi}]
-    edge = {"type": "rule", "color": CHART.neutral, "strokeWidth": 1}
+    band = alt.Data(values=[{"lo": lo, "hi": hi}])
+    edge = alt.Chart(band).mark_rule(color=CHART.neutral, strokeWidth=1)
     return [
-        {"data": {"values": band}, "mark": {"type": "rect", "color": CHART.band},
-         "encoding": {"y": {"field": "lo", **y}, "y2": {"field": "hi"}}},
-        {"data": {"values": band}, "mark": edge, "encoding": {"y": {"field": "lo", **y}}},
-        {"data": {"values": band}, "mark": edge, "encoding": {"y": {"field": "hi", **y}}},
+        alt.Chart(band).mark_rect(color=CHART.band).encode(y=y("lo"), y2=alt.Y2(field="hi")),
+        edge.encode(y=y("lo")),
+        edge.encode(y=y("hi")),
     ]
 
 
-def _shift_layers(ctx: Inputs, x: dict[str, Any], y: dict[str, Any]) -> list[dict[str, Any]]:
+def _shift_layers(ctx: Inputs, x: TimeAxis, y: Callable[[str], alt.Y]) -> list[alt.Chart]:
     """Detected shifts: dashed rules with a written direction, and the segment levels."""
     _ = ctx.gettext
     points = _shown_shifts(ctx)
@@ -151,18 +159,16 @@ def _shift_layers(ctx: Inputs, x: dict[str, Any], y: dict[str, Any]) -> list[dic
         "t": ctx.ms(pd.to_datetime(points["study_day"])),
         "label": [words.get(str(d), str(d)) for d in points["direction"]],
     })
-    layers: list[dict[str, Any]] = [
-        {"data": {"values": records(marks)},
-         "mark": {"type": "rule", "color": CHART.highlight, "strokeWidth": 2,
-                  "strokeDash": [2, 3]},
-         "encoding": {"x": {"field": "t", **x}}},
+    layers = [
+        alt.Chart(alt.Data(values=records(marks)))
+        .mark_rule(color=CHART.highlight, strokeWidth=2, strokeDash=[2, 3])
+        .encode(x=x.x("t")),
     ]
     if len(marks) <= MAX_SHIFT_LABELS:  # more written labels would overlap; the key names them
         layers.append(
-            {"data": {"values": records(marks)},
-             "mark": {"type": "text", "align": "left", "dx": 4, "color": CHART.ink},
-             "encoding": {"x": {"field": "t", **x}, "y": {"value": 26},
-                          "text": {"field": "label"}}})
+            alt.Chart(alt.Data(values=records(marks)))
+            .mark_text(align="left", dx=4, color=CHART.ink)
+            .encode(x=x.x("t"), y=alt.value(26), text=alt.Text(field="label")))
     levels = ctx.table("shifts", "daily")
     if levels is not None and "level" in levels.columns:
         # Each level holds from the start of its day; the last one to the end of its day.
@@ -170,12 +176,11 @@ def _shift_layers(ctx: Inputs, x: dict[str, Any], y: dict[str, Any]) -> list[dic
         steps = pd.DataFrame({"t": np.append(starts, starts[-1] + 86_400_000),
                               "v": np.append(levels["level"].to_numpy(dtype=float),
                                              float(levels["level"].iloc[-1]))}).dropna()
-        layers.append({
-            "data": {"values": records(steps)},
-            "mark": {"type": "line", "interpolate": "step-after", "color": CHART.highlight,
-                     "strokeWidth": 2, "strokeDash": [8, 4]},
-            "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}},
-        })
+        layers.append(
+            alt.Chart(alt.Data(values=records(steps)))
+            .mark_line(interpolate="step-after", color=CHART.highlight, strokeWidth=2,
+                       strokeDash=[8, 4])
+            .encode(x=x.x("t"), y=y("v")))
     return layers
 
 
@@ -293,32 +298,28 @@ def calendar_chart(ctx: Inputs) -> Chart | None:
     # no room for the day of the month as well (the week's start date is on the axis).
     cell_w, cell_h = 72, min(32, max(18, CALENDAR_MAX_HEIGHT // len(week_names)))
     roomy = cell_h >= 28
-    x = {"field": "weekday", "type": "ordinal", "sort": day_names,
-         "scale": {"domain": day_names, "paddingInner": 0.06},
-         "axis": {"title": None, "orient": "top", "labelAngle": 0, "domain": False,
-                  "ticks": False}}
-    y = {"field": "week", "type": "ordinal", "sort": week_names,
-         "scale": {"domain": week_names, "paddingInner": 0.08},
-         "axis": {"title": _("Week starting"), "domain": False, "ticks": False}}
-    data = {"values": records(cells.assign(weekday=[day_names[i] for i in cells["wd"]]))}
-    spec: dict[str, Any] = {
-        "width": 7 * cell_w, "height": cell_h * len(week_names), "data": data,
-        "layer": [
-            {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},
-             "encoding": {"x": x, "y": y, "fill": {"field": "fill", "type": "nominal",
-                                                   "scale": None}}},
-            {"mark": {"type": "text", "fontSize": 14 if roomy else 12, "fontWeight": "bold",
-                      "dx": 8 if roomy else 0, "dy": 2 if roomy else 0},
-             "encoding": {"x": x, "y": y, "text": {"field": "label"},
-                          "fill": {"field": "ink", "type": "nominal", "scale": None}}},
-        ],
-    }
+    x = alt.X(field="weekday", type="ordinal", sort=day_names,
+              scale=alt.Scale(domain=day_names, paddingInner=0.06),
+              axis=alt.Axis(title=None, orient="top", labelAngle=0, domain=False, ticks=False))
+    y = alt.Y(field="week", type="ordinal", sort=week_names,
+              scale=alt.Scale(domain=week_names, paddingInner=0.08),
+              axis=alt.Axis(title=_("Week starting"), domain=False, ticks=False))
+    ink = alt.Fill(field="ink", type="nominal", scale=None)
+    layers = [
+        alt.Chart().mark_rect(stroke=CHART.neutral, strokeWidth=1)
+        .encode(x=x, y=y, fill=alt.Fill(field="fill", type="nominal", scale=None)),
+        alt.Chart().mark_text(fontSize=14 if roomy else 12, fontWeight="bold",
+                              dx=8 if roomy else 0, dy=2 if roomy else 0)
+        .encode(x=x, y=y, text=alt.Text(field="label"), fill=ink),
+    ]
     if roomy:
-        spec["layer"].append(
-            {"mark": {"type": "text", "fontSize": 11, "align": "left", "baseline": "top",
-                      "dx": -cell_w / 2 + 5, "dy": -cell_h / 2 + 3},
-             "encoding": {"x": x, "y": y, "text": {"field": "dom"},
-                          "fill": {"field": "ink", "type": "nominal", "scale": None}}})
+        layers.append(
+            alt.Chart().mark_text(fontSize=11, align="left", baseline="top",
+                                  dx=-cell_w / 2 + 5, dy=-cell_h / 2 + 3)
+            .encode(x=x, y=y, text=alt.Text(field="dom"), fill=ink))
+    data = alt.Data(values=records(cells.assign(weekday=[day_names[i] for i in cells["wd"]])))
+    spec = alt.layer(*layers, data=data).properties(width=7 * cell_w,
+                                                    height=cell_h * len(week_names))
     title = _("Which prompts you answered")
     description = _calendar_description(ctx, cells)
     table = _calendar_table(ctx, cells, day_names)
