@@ -126,3 +126,20 @@ def test_out_of_range_score_in_data_is_a_data_error():
     with pytest.raises(DataError) as info:
         questionnaire_family(frame, settings_for())
     assert info.value.problems[0].code == "score-out-of-range"
+
+
+def test_sudden_loss_of_the_example_p08_uses_the_t_statistic():
+    """Check criterion 3 is a two-sample t-test of the three scores before and after.
+
+    Source: Tang & DeRubeis 1999, J Consult Clin Psychol 67:894-904 (the mean of the three
+    sessions before and after differ, t above 2.776 for 3 + 3 scores); the t value is
+    scipy.stats.ttest_ind's (pooled variance). The PHQ-9 scores are those of the example study's
+    P08: 14 -> 20 is 6 points (at least 6, and 43% of 14), t = 3.32 > 2.776: a sudden loss,
+    which a rule comparing the mean difference with t x pooled SD (7.33 < 7.52) missed."""
+    scores = np.array([9, 8, 6, 8, 7, 9, 6, 6, 9, 9, 14, 14, 20, 17, 22, 22], dtype=float)
+    pre, post = scores[9:12], scores[12:15]
+    t = stats.ttest_ind(post, pre).statistic
+    assert t == pytest.approx(3.32, abs=0.01)
+    assert t > stats.t.ppf(0.975, 4) == pytest.approx(2.776, abs=1e-3)
+    found = sudden_changes(scores, PHQ9, 5.99)
+    assert [(i, kind, change) for i, kind, change in found] == [(12, "loss", 6.0)]

@@ -65,7 +65,10 @@ def sudden_changes(scores: np.ndarray, spec: Questionnaire,
     Returns (index of the score after the change, 'gain' | 'loss', signed score change).
     Criterion 1: |change| >= min_change; 2: >= sudden_min_relative of the pre-change score
     (measured from the scale's better end); 3: the means of up to three scores before and after
-    differ by more than t(.975, df) x pooled SD, with at least two scores on each side.
+    differ in a two-sample t-test, t = (mean difference) / (pooled SD x sqrt(1/n1 + 1/n2)) above
+    t(.975, n1 + n2 - 2) (2.776 for three and three scores), with at least two scores on each
+    side (Tang & DeRubeis 1999, J Consult Clin Psychol 67:894-904; a loss mirrors a gain, Lutz
+    et al. 2013, Psychotherapy Research 23:14-24).
     """
     low, high = spec.range
     worse = scores - low if spec.higher_is == "worse" else high - scores
@@ -82,7 +85,7 @@ def sudden_changes(scores: np.ndarray, spec: Questionnaire,
         df = len(pre) + len(post) - 2
         pooled = math.sqrt(((len(pre) - 1) * pre.var(ddof=1) + (len(post) - 1) *
                             post.var(ddof=1)) / df)
-        t_crit = float(stats.t.ppf(0.975, df))
+        t_crit = float(stats.t.ppf(0.975, df)) * math.sqrt(1 / len(pre) + 1 / len(post))
         # A loss mirrors a gain: the same three criteria with the direction reversed.
         for kind, size, gap in (("gain", a - b, pre.mean() - post.mean()),
                                 ("loss", b - a, post.mean() - pre.mean())):
