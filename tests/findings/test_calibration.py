@@ -30,6 +30,14 @@ once with seed + 1000, to set margins a different seed also passes):
   two states, far (40)         2.5 / 5.0, stays of 2 days course switching   100%   100%  100%
   staircase (40)               6 steps of 0.25, 8 days    course gradual      95%   100%  100%
                                apart                      course abrupt        5%     0%    0%
+  episode (40)                 +1.2 (2 SD) from day 24    course passing       0%    95%   92%
+                               for 8 days, then back      course abrupt        0%     0%    0%
+
+Passing episodes ("before" = the rules before the passing_episode reading, when an excursion
+read no_clear_change): stationary people read passing_episode in 1.5% (seed) and 1.0%
+(+1000), the slowing class in 8%, the close two-state class in 7.5% and 0%, and the slowing
+class with rising variance in 40% and 28% (at 12 h half-life and SD 1.2 its level does wander
+away for days and back; no lasting shift is read, which is the truth that class checks).
 
   * on the lead-up: the answers before the largest shift (springback.metrics.leadup).
 
@@ -117,6 +125,13 @@ RATES = (
           "close states are switching or no clear change", low=0.90),
     _rate("switch_close", "course", "abrupt_shift", "close states are no abrupt shift",
           high=0.10),
+    # A passing episode: the level moves away for some days and comes back.
+    _rate("episode", "course", "passing_episode", "an excursion of 2 SDs for 8 days that "
+          "comes back is a passing episode (measured 95% and 92%)", low=0.80),
+    _rate("episode", "course", "abrupt_shift", "an excursion that comes back is no lasting "
+          "shift", high=0.08),
+    _rate("stationary", "course", "passing_episode", "stationary OU has no episode (measured "
+          "1.5% and 1.0%; three SEs on 200 people above 1.5% is 4.1%)", high=0.05),
 )
 
 

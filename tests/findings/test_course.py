@@ -17,7 +17,8 @@ def _shifts(kind: str, seed: int = 0) -> Family:
     rng = np.random.default_rng(seed)
     hours = prompt_hours(60, 6, rng)
     day = hours / 24
-    shape = {"step": 15.0 * (day >= 30), "ramp": 30.0 * day / 60, "flat": 0.0 * day}[kind]
+    shape = {"step": 15.0 * (day >= 30), "ramp": 30.0 * day / 60, "flat": 0.0 * day,
+             "episode": 15.0 * ((day >= 25) & (day < 35))}[kind]
     values = np.clip(np.round(40 + shape + rng.normal(0, 8, hours.size)), 0, 100)
     s = settings()
     return shift_family(prepare(participant(hours, values), s), s)
@@ -128,3 +129,18 @@ def test_a_clean_large_step_is_a_clear_shift() -> None:
     f = _read({"shifts": _shifts("step"), "landscape": _landscape(1, None)})
     assert (f.reading, f.certainty) == ("abrupt_shift", "clear")
     assert f.numbers["days_before_shift"] >= 7 and f.numbers["days_after_shift"] >= 7
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_an_excursion_that_comes_back_reads_as_a_passing_episode(seed: int) -> None:
+    """Check a level 15 points higher from day 25 to day 34 that then comes back (known truth;
+    noise SD 8) reads as a passing episode for the worse, dated to those days, and not as a
+    lasting shift."""
+    # Source: simulated step up and back down (known truth).
+    f = _read({"shifts": _shifts("episode", seed), "landscape": _landscape(1, None)})
+    assert f.reading == "passing_episode"
+    assert f.numbers["direction"] == "worse"
+    assert 8 <= f.numbers["episode_days"] <= 12  # 10 days, within two either way
+    assert f.numbers["size"] == pytest.approx(15.0, abs=5.0)
+    assert any(e["code"] == "episode_worse" for e in f.evidence)
+    assert "passing_episode" in COURSES

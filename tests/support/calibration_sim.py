@@ -90,6 +90,13 @@ def jump(t: np.ndarray, rng: np.random.Generator) -> np.ndarray:
     return _ou(t, rng, mean=LEVEL + simulate.step_shift(t, 42 * 24.0, 1.2))
 
 
+def episode(t: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    """Stationary OU whose mean rises by 1.2 (2 SDs) from day 24 for 8 days and then comes
+    back: a passing episode, no lasting shift."""
+    return _ou(t, rng, mean=LEVEL + simulate.step_shift(t, 24 * 24.0, 1.2)
+               - simulate.step_shift(t, 32 * 24.0, 1.2))
+
+
 def staircase(t: np.ndarray, rng: np.random.Generator) -> np.ndarray:
     """OU whose mean climbs in 6 steps of 0.25 (0.4 SD each), one every 8 days from day 4:
     1.5 in all, built up over 40 days."""
@@ -191,6 +198,7 @@ CLASSES: dict[str, SimClass] = {
     "switch_close": SimClass(switch_close, 40, 108),
     "switch_far": SimClass(switch_far, 40, 109),
     "staircase": SimClass(staircase, 40, 110),
+    "episode": SimClass(episode, 40, 111),
 }
 
 

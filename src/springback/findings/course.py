@@ -30,14 +30,18 @@ Rules, in this order (thresholds are those of the family that computed the numbe
    were read as shifts in about half of them without this test; with it, a jump of two SDs
    is still read as a shift in about nine in ten simulated people
    (tests/findings/test_calibration.py). A passing episode that returns to the usual level
-   is therefore not a shift either; its evidence (`shift_did_not_last`, with the date, the
-   size and both level changes) says so;
+   is therefore not a shift either (its evidence `shift_did_not_last`, with the date, the
+   size and both level changes, says so); it is read by rule 4;
    a staircase (the largest step is less than half of a run of same-direction steps around
    it) is gradual, not abrupt;
 3. gradual change: the Theil-Sen slope of the daily means (Sen 1968, JASA 63:1379-1389) has a
    95% interval that excludes 0 and the drift over the study exceeds twice the day-to-day
    noise;
-4. otherwise no clear change.
+4. passing episode: a segment of the daily level of at least EPISODE_MIN_DAYS days lies more
+   than twice the swing away from the segments on both sides (same direction), and the level
+   came back (those two differ by less than twice the swing), with a large change point among
+   them: the mood dipped or rose for a while and came back;
+5. otherwise no clear change.
 PERSIST_DAYS (a week, the span over which weekly questionnaires can bracket a shift) and the
 twice-the-swing level change are design choices, calibrated on the simulated classes of
 tests/findings/test_calibration.py.
@@ -64,7 +68,8 @@ from springback.metrics.landscape import BC_THRESHOLD
 from springback.metrics.results import Estimate, Family
 from springback.metrics.shifts import SWING_FACTOR
 
-COURSES = ("no_clear_change", "gradual_change", "abrupt_shift", "switching", "not_enough_data")
+COURSES = ("no_clear_change", "passing_episode", "gradual_change", "abrupt_shift", "switching",
+           "not_enough_data")
 MIN_SWITCHES = 4
 MIN_ALTERNATING = 3
 """Large day-level steps alternating in direction that read as switching (with two peaks)."""
@@ -72,6 +77,9 @@ PERSIST_DAYS = 7
 """Days needed on either side of a change point for it to read as a lasting shift."""
 STAIRCASE_SHARE = 0.5
 """A largest step below this share of its same-direction run reads as a drift, not a jump."""
+EPISODE_MIN_DAYS = 3
+"""Days the level must stay away, and days back at the usual level after, for a passing
+episode (design choice: longer than a bad day or two, calibrated in test_calibration.py)."""
 BARE_MENTION = 2.0
 """A gradual course that beats the one-step model by more than this (BIC, on the 2 ln B scale)
 reads as gradual: Kass & Raftery 1995 call a difference up to 2 "not worth more than a bare
@@ -152,6 +160,36 @@ def lasting(days: np.ndarray, y: np.ndarray, level: np.ndarray, at: int, s: floa
     return {"lasts": bool(lasts), "contrast": contrast, "net_of_trend": net,
             "days_before": before, "days_after": after,
             "bic": float(tr["bic_gradual_minus_step"])}
+
+
+def episode(daily: pd.DataFrame, swing: float, higher_is_worse: bool) -> dict[str, Any] | None:
+    """The largest passing episode of the segmented daily level: a segment of at least
+    EPISODE_MIN_DAYS days that lies more than twice the swing away from the segments on both
+    sides, in the same direction, while those two differ by less than twice the swing (the
+    level came back) and the one after lasts EPISODE_MIN_DAYS days too. None without one."""
+    level = daily["level"].to_numpy(float)
+    if level.size < 3 or not swing > 0:
+        return None
+    starts = [0, *(int(i) for i in np.flatnonzero(np.diff(level) != 0) + 1), level.size]
+    runs = list(itertools.pairwise(starts))
+    best: dict[str, Any] | None = None
+    for k in range(1, len(runs) - 1):
+        (a, _), (c, d), (e, f) = runs[k - 1], runs[k], runs[k + 1]
+        away, before, after = level[c], level[a], level[e]
+        sign = np.sign(away - before)
+        gap = float(min((away - before) * sign, (away - after) * sign))
+        if (d - c < EPISODE_MIN_DAYS or f - e < EPISODE_MIN_DAYS
+                or np.sign(away - before) != np.sign(away - after)
+                or gap <= SWING_FACTOR * swing or abs(after - before) >= SWING_FACTOR * swing):
+            continue
+        if best is None or gap > best["size"]:
+            day = daily["study_day"]
+            best = {"start": pd.Timestamp(day.iloc[c]).date().isoformat(),
+                    "end": pd.Timestamp(day.iloc[d - 1]).date().isoformat(),
+                    "days": int((pd.Timestamp(day.iloc[d - 1]) - pd.Timestamp(day.iloc[c])).days)
+                    + 1, "size": float(gap),
+                    "direction": "worse" if (away > before) == higher_is_worse else "better"}
+    return best
 
 
 def course(participant: str, families: Mapping[str, Family], alpha: float,
@@ -242,6 +280,21 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
         numbers["direction"] = "worse" if drift_worse else "better"
         sure = abs(tr["drift"]) > CLEAR_DRIFT_FACTOR * s
         return Finding(participant, "course", "gradual_change",
+                       "clear" if sure else "some_signs", numbers, evidence=tuple(evidence))
+    passing = episode(daily, swing, higher_is_worse) if not big.empty else None
+    if passing is not None:
+        numbers.update(direction=passing["direction"], size=passing["size"],
+                       episode_start=passing["start"], episode_end=passing["end"],
+                       episode_days=passing["days"], swing_sd=swing)
+        evidence.append({"code": f"episode_{passing['direction']}", **passing})
+        if shift is not None and not shift["lasts"]:
+            evidence.append({"code": "shift_did_not_last", "date": shift["date"],
+                             "size": shift["size"], "contrast": shift["contrast"],
+                             "net_of_trend": shift["net_of_trend"],
+                             "days_before": shift["days_before"],
+                             "days_after": shift["days_after"], "factor": SWING_FACTOR})
+        sure = passing["size"] > CLEAR_SHIFT_FACTOR * swing
+        return Finding(participant, "course", "passing_episode",
                        "clear" if sure else "some_signs", numbers, evidence=tuple(evidence))
     if shift is None:
         evidence.append({"code": "no_big_shift"})

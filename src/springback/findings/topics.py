@@ -103,7 +103,12 @@ def variability(results: ParticipantResults, scale: tuple[float, float]) -> Find
 
 
 def recovery(results: ParticipantResults) -> Finding:
-    """How quickly mood got halfway back after upsets and dips (pooled half-life)."""
+    """How quickly mood got halfway back after upsets and dips.
+
+    The reading rests on one number, the pooled half-life across episodes (`basis`); the
+    Kaplan-Meier median time back to the usual level and the whole series' Ornstein-Uhlenbeck
+    half-life are kept beside it, and when either falls in another band the reading is
+    `some_signs`, never `clear` (`others_agree` is false)."""
     pid = results.participant
     half = _est(results, "recovery_half_life_hours")
     episodes = _est(results, "n_episodes")
@@ -114,9 +119,30 @@ def recovery(results: ParticipantResults) -> Finding:
     hours = float(half.value or 0.0)
     lo, hi = half.lower, half.upper
     sure = lo is not None and hi is not None and lo > 0 and hi / lo <= CLEAR_INTERVAL_RATIO
-    reading = "within_hours" if hours < 12 else "within_a_day" if hours < 36 else "days"
-    return Finding(pid, "recovery", reading, "clear" if sure else "some_signs",
-                   {**_numbers(half, "half_life_hours"), "episodes": n_ep})
+    reading = _recovery_time(hours)
+    numbers: dict[str, Any] = {**_numbers(half, "half_life_hours"), "episodes": n_ep,
+                               "basis": "pooled_half_life"}
+    others = {}
+    for name, key in (("median_recovery_hours", "km_median_hours"),
+                      ("half_life_hours", "series_half_life_hours")):
+        est = _est(results, name)
+        if est is not None and est.ok and est.value is not None:
+            numbers[key] = float(est.value)
+            others[key] = _recovery_time(float(est.value))
+    numbers["others_agree"] = all(v == reading for v in others.values())
+    # One reading, from the pooled half-life; another measure in another band makes it unsure.
+    clear = sure and numbers["others_agree"]
+    return Finding(pid, "recovery", reading, "clear" if clear else "some_signs", numbers)
+
+
+RECOVERY_HOURS = (12.0, 36.0)
+"""Hours below which a return reads `within_hours`, then `within_a_day`, else `days` (design
+choice: a waking day, a day and a half)."""
+
+
+def _recovery_time(hours: float) -> str:
+    return ("within_hours" if hours < RECOVERY_HOURS[0] else
+            "within_a_day" if hours < RECOVERY_HOURS[1] else "days")
 
 
 def carry_over(results: ParticipantResults) -> Finding:
@@ -168,6 +194,13 @@ def questionnaires(results: ParticipantResults, settings: StudySettings) -> list
         numbers: dict[str, Any] = {
             "last": last.value if last else None, "band": last.note if last else "",
             "scores": len(scores), "higher_is": spec.higher_is}
+        sudden = _sudden(fam, key)
+        numbers["sudden_gains"] = sum(1 for e in sudden if e["kind"] == "gain")
+        numbers["sudden_losses"] = sum(1 for e in sudden if e["kind"] == "loss")
+        if sudden:
+            numbers["sudden_first"] = sudden[0]["kind"]
+            numbers["sudden_date"] = sudden[0]["date"]
+            numbers["sudden_change"] = sudden[0]["change"]
         if rc is None or not rc.ok:
             reason = rc.note if rc else "only one score"
             out.append(Finding(pid, topic, "one_score" if len(scores) < 2 else
@@ -182,6 +215,17 @@ def questionnaires(results: ParticipantResults, settings: StudySettings) -> list
         out.append(Finding(pid, topic, "worsened" if worse else "improved",
                            "clear" if abs(z) > RCI_CLEAR_Z else "some_signs", numbers))
     return out
+
+
+def _sudden(fam: Family, key: str) -> list[dict[str, Any]]:
+    """The sudden gains and losses of one questionnaire (Tang & DeRubeis 1999 criteria, as
+    the questionnaires family found and the chart marks them), in time order."""
+    table = fam.tables.get(f"sudden_{key}")
+    if table is None or table.empty:
+        return []
+    return [{"kind": str(kind), "date": str(when)[:10], "change": float(change)}
+            for when, kind, change in zip(table["local_time"], table["kind"], table["change"],
+                                          strict=True)]
 
 
 def participation(results: ParticipantResults) -> Finding:
