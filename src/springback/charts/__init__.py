@@ -8,10 +8,11 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
+from springback.charts.calendar import calendar_chart
 from springback.charts.change import grid_chart, recovery_chart, warnings_chart
 from springback.charts.common import Chart, Inputs, checked_gettext
 from springback.charts.landscape import landscape_chart, load_chart
-from springback.charts.mood import calendar_chart, mood_chart
+from springback.charts.mood import mood_chart
 from springback.charts.questionnaires import questionnaire_charts
 from springback.findings import Findings
 from springback.metrics.results import ParticipantResults

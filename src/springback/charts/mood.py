@@ -1,4 +1,4 @@
-"""Mood over time and the answering calendar."""
+"""Mood over time: answers, daily averages, the typical range, events and shifts."""
 
 from __future__ import annotations
 
@@ -7,9 +7,9 @@ from collections.abc import Callable
 from typing import Any, cast
 
 import altair as alt
-import babel.dates
 import numpy as np
 import pandas as pd
+from babel.lists import format_list
 
 from springback.charts.common import (
     Chart,
@@ -21,15 +21,13 @@ from springback.charts.common import (
     records,
     time_axis,
 )
-from springback.charts.palette import CALENDAR_RAMP, CHART, readable_text_on
+from springback.charts.palette import CHART
 from springback.charts.svg import PLOT_WIDTH, to_svg
 
 EVENT_SHAPES = ("triangle-down", "diamond", "square", "cross", "triangle-up")
 """One shape per event kind (answers are circles); further kinds share the last shape."""
 HEIGHT = 260
 MAX_SHIFT_LABELS = 3
-CALENDAR_MAX_HEIGHT = 640
-"""Tallest calendar in px (about two thirds of an A4 page at the column width)."""
 
 
 def mood_chart(ctx: Inputs) -> Chart | None:
@@ -173,14 +171,17 @@ def _shift_layers(ctx: Inputs, x: TimeAxis, y: Callable[[str], alt.Y]) -> list[a
     if levels is not None and "level" in levels.columns:
         # Each level holds from the start of its day; the last one to the end of its day.
         starts = ctx.ms(pd.to_datetime(levels["study_day"]))
+        period = _period_of(ctx, levels["study_day"])
         steps = pd.DataFrame({"t": np.append(starts, starts[-1] + 86_400_000),
                               "v": np.append(levels["level"].to_numpy(dtype=float),
-                                             float(levels["level"].iloc[-1]))}).dropna()
+                                             float(levels["level"].iloc[-1])),
+                              "p": [*period, period[-1]]}).dropna()
         layers.append(
             alt.Chart(alt.Data(values=records(steps)))
             .mark_line(interpolate="step-after", color=CHART.highlight, strokeWidth=2,
                        strokeDash=[8, 4])
-            .encode(x=x.x("t"), y=y("v")))
+            .encode(x=x.x("t"), y=y("v"),
+                    detail=alt.Detail(field="p", type="nominal")))  # no step across a gap
     return layers
 
 
@@ -207,8 +208,9 @@ def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
                       n_events: int) -> str:
     _ = ctx.gettext
     values = series["value"].to_numpy(dtype=float)
-    parts = [_("Your answers ranged from {low} to {high}.").format(
-        low=ctx.num(values.min()), high=ctx.num(values.max()))]
+    parts = _composite_sentences(ctx)
+    parts.append(_("Your answers ranged from {low} to {high}.").format(
+        low=ctx.num(values.min()), high=ctx.num(values.max())))
     lo, hi = ctx.param("descriptives", "typical_low"), ctx.param("descriptives", "typical_high")
     if lo is not None and hi is not None and math.isfinite(lo) and math.isfinite(hi):
         parts.append(_("Half of them were between {low} and {high}: your typical range.").format(
@@ -216,21 +218,66 @@ def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
     means = daily["mean"].to_numpy(dtype=float)
     if len(means) >= 14:
         first, last = float(np.mean(means[:7])), float(np.mean(means[-7:]))
-        spread = float(np.std(values, ddof=1)) if len(values) > 1 else 0.0
-        if abs(last - first) < 0.5 * spread or spread == 0:
-            trend = _("about the same as")
-        elif (last > first) == ctx.higher_is_worse:
-            trend = _("worse than")
-        else:
-            trend = _("better than")
-        parts.append(_("In the last week your daily average was {last}, {trend} in the first "
-                       "week ({first}).").format(last=ctx.num(last), trend=trend,
-                                                 first=ctx.num(first)))
+        parts.append(_("Your daily average was {first} in the first week and {last} in the "
+                       "last week.").format(first=ctx.num(first), last=ctx.num(last)))
+    parts += _course_sentences(ctx)
     parts += _shift_sentences(ctx)
     if n_events:
         parts.append(_("Events you reported are marked at the top ({n} in all).").format(
             n=n_events))
     return " ".join(parts)
+
+
+def _composite_sentences(ctx: Inputs) -> list[str]:
+    """Which items the composite score averages (reverse-scored ones named apart)."""
+    _ = ctx.gettext
+    composite = ctx.settings.composites.get(ctx.variable)
+    if composite is None:
+        return []
+    straight = [i for i in composite.items if not _reversed(ctx, i)]
+    turned = [i for i in composite.items if _reversed(ctx, i)]
+
+    def names(items: list[str]) -> str:
+        return format_list([ctx.settings.label_of(i, ctx.language) for i in items],
+                           locale=ctx.locale)
+
+    label = ctx.label[:1].upper() + ctx.label[1:]
+    if not turned:
+        return [_("{label} is the average of your answers to {items}.").format(
+            label=label, items=names(straight))]
+    if not straight:
+        return [_("{label} is the average of your answers to {items}, counted the other way "
+                  "round.").format(label=label, items=names(turned))]
+    return [_("{label} is the average of your answers to {items} and to {reversed}, counted "
+              "the other way round.").format(label=label, items=names(straight),
+                                             reversed=names(turned))]
+
+
+def _reversed(ctx: Inputs, item: str) -> bool:
+    spec = ctx.settings.items.get(item)
+    return bool(spec is not None and spec.reverse)
+
+
+def _course_sentences(ctx: Inputs) -> list[str]:
+    """The course reading of the findings in words (an abrupt shift: `_shift_sentences`)."""
+    _ = ctx.gettext
+    course = None if ctx.findings is None else ctx.findings.get("course")
+    if course is None:
+        return []
+    worse = course.numbers.get("direction") == "worse"
+    # The booklet's own sentences for these readings (templates/_findings.html).
+    if course.reading == "gradual_change":
+        return [_("Over the study, your mood slowly got worse.") if worse
+                else _("Over the study, your mood slowly got better.")]
+    if course.reading == "passing_episode":
+        return [_("For a while your mood was worse than usual, and then it came back.")
+                if worse else
+                _("For a while your mood was better than usual, and then it came back.")]
+    if course.reading == "switching":
+        return [_("Your mood moved back and forth between two levels.")]
+    if course.reading == "no_clear_change":
+        return [_("We found no clear lasting change in your mood during the study.")]
+    return []
 
 
 def _shown_shifts(ctx: Inputs) -> pd.DataFrame | None:
@@ -284,98 +331,6 @@ def _mood_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None) -
     })
 
 
-def calendar_chart(ctx: Inputs) -> Chart | None:
-    """Weeks by weekdays, Monday first: prompts answered per day, written in each cell."""
-    _ = ctx.gettext
-    daily = ctx.table("descriptives", "daily")
-    if daily is None:
-        return None
-    cells = _calendar_cells(ctx, daily)
-    weekdays = babel.dates.get_day_names("abbreviated", locale=ctx.locale)
-    day_names = [weekdays[i] for i in range(7)]
-    week_names = list(dict.fromkeys(cells["week"]))
-    # Long studies get flatter rows so the calendar stays on one page; below 28 px a row has
-    # no room for the day of the month as well (the week's start date is on the axis).
-    cell_w, cell_h = 72, min(32, max(18, CALENDAR_MAX_HEIGHT // len(week_names)))
-    roomy = cell_h >= 28
-    x = alt.X(field="weekday", type="ordinal", sort=day_names,
-              scale=alt.Scale(domain=day_names, paddingInner=0.06),
-              axis=alt.Axis(title=None, orient="top", labelAngle=0, domain=False, ticks=False))
-    y = alt.Y(field="week", type="ordinal", sort=week_names,
-              scale=alt.Scale(domain=week_names, paddingInner=0.08),
-              axis=alt.Axis(title=_("Week starting"), domain=False, ticks=False))
-    ink = alt.Fill(field="ink", type="nominal", scale=None)
-    layers = [
-        alt.Chart().mark_rect(stroke=CHART.neutral, strokeWidth=1)
-        .encode(x=x, y=y, fill=alt.Fill(field="fill", type="nominal", scale=None)),
-        alt.Chart().mark_text(fontSize=14 if roomy else 12, fontWeight="bold",
-                              dx=8 if roomy else 0, dy=2 if roomy else 0)
-        .encode(x=x, y=y, text=alt.Text(field="label"), fill=ink),
-    ]
-    if roomy:
-        layers.append(
-            alt.Chart().mark_text(fontSize=11, align="left", baseline="top",
-                                  dx=-cell_w / 2 + 5, dy=-cell_h / 2 + 3)
-            .encode(x=x, y=y, text=alt.Text(field="dom"), fill=ink))
-    data = alt.Data(values=records(cells.assign(weekday=[day_names[i] for i in cells["wd"]])))
-    spec = alt.layer(*layers, data=data).properties(width=7 * cell_w,
-                                                    height=cell_h * len(week_names))
-    title = _("Which prompts you answered")
-    description = _calendar_description(ctx, cells)
-    table = _calendar_table(ctx, cells, day_names)
-    return Chart("calendar", title, description,
-                 to_svg(spec, "calendar", title, description, ctx.language), table,
-                 _("Prompts answered per day, by week"))
-
-
-def _calendar_cells(ctx: Inputs, daily: pd.DataFrame) -> pd.DataFrame:
-    """One row per study day from the first to the last, with share answered and colours."""
-    days = pd.to_datetime(daily["study_day"]).dt.normalize()
-    answered = pd.Series(daily["n"].to_numpy(dtype=float), index=days)
-    sent = pd.Series(
-        daily["scheduled"].to_numpy(dtype=float) if "scheduled" in daily.columns
-        else np.full(len(daily), np.nan), index=days)
-    span = _period_days(ctx, days)
-    answered = answered.groupby(level=0).sum().reindex(span, fill_value=0.0)
-    sent = sent.groupby(level=0).max().reindex(span)
-    per_day = ctx.settings.study.prompts_per_day
-    if per_day is not None:
-        sent = sent.fillna(float(per_day))
-    share = (answered / sent).clip(upper=1.0)
-    known = sent.notna() & (sent > 0)
-    top = float(answered.max()) if answered.max() > 0 else 1.0
-    level = share.where(known, answered / top)
-    steps = len(CALENDAR_RAMP) - 1
-    # Steps: none, under half, half or more, three quarters or more, all.
-    cuts = np.array([0.0, 0.5, 0.75, 1.0])
-    fills = [CALENDAR_RAMP[min(steps, int(np.searchsorted(cuts, v, side="right")))]
-             if v > 0 else CALENDAR_RAMP[0] for v in level.fillna(0.0)]
-    labels = [f"{int(a)}/{int(s)}" if k else f"{int(a)}"
-              for a, s, k in zip(answered, sent.fillna(0), known, strict=True)]
-    week_start = span - pd.to_timedelta(span.day_of_week, unit="D")
-    return pd.DataFrame({
-        "day": span, "wd": span.day_of_week, "week": [ctx.date(w) for w in week_start],
-        "dom": [str(d.day) for d in span], "label": labels, "answered": answered.to_numpy(),
-        "sent": sent.to_numpy(), "known": known.to_numpy(), "fill": fills,
-        "ink": [readable_text_on(f) for f in fills],
-    })
-
-
-def _period_days(ctx: Inputs, days: pd.Series) -> pd.DatetimeIndex:
-    """Every day of each measurement period (the gaps between periods are left out)."""
-    periods = ctx.table("descriptives", "periods")
-    if periods is None or len(periods) < 2:
-        return pd.date_range(days.min(), days.max(), freq="D")
-    first = min(days.min(), pd.Timestamp(periods["first_day"].min()))
-    last = max(days.max(), pd.Timestamp(periods["last_day"].max()))
-    span = pd.date_range(first, last, freq="D")
-    inside = np.zeros(len(span), bool)
-    for a, b in zip(periods["first_day"], periods["last_day"], strict=True):
-        inside |= (span >= pd.Timestamp(a)) & (span <= pd.Timestamp(b))
-    inside |= span.isin(days)  # a day with answers is always shown
-    return span[inside]
-
-
 def _period_of(ctx: Inputs, days: pd.Series) -> list[int]:
     """The measurement period of each study day (1 when the study has one period)."""
     periods = ctx.table("descriptives", "periods")
@@ -386,36 +341,3 @@ def _period_of(ctx: Inputs, days: pd.Series) -> list[int]:
     place = np.searchsorted(starts, pd.to_datetime(days).to_numpy(), side="right") - 1
     labels = periods["period"].to_numpy()
     return [int(labels[max(i, 0)]) for i in place]
-
-
-def _calendar_description(ctx: Inputs, cells: pd.DataFrame) -> str:
-    _ = ctx.gettext
-    n_days = len(cells)
-    answered = int(cells["answered"].sum())
-    none = int((cells["answered"] == 0).sum())
-    parts = []
-    if bool(cells["known"].all()):
-        sent = int(cells["sent"].sum())
-        full = int((cells["answered"] >= cells["sent"]).sum())
-        parts.append(_("You answered {answered} of {sent} prompts ({share}) over {days} "
-                       "days.").format(answered=answered, sent=sent, days=n_days,
-                                       share=ctx.percent(answered / sent if sent else 0.0)))
-        parts.append(_("On {full} of these days you answered every prompt.").format(full=full))
-    else:
-        parts.append(_("You answered {answered} prompts over {days} days.").format(
-            answered=answered, days=n_days))
-    if none:
-        parts.append(_("On {none} days you answered none.").format(none=none))
-    else:
-        parts.append(_("You answered on every day."))
-    return " ".join(parts)
-
-
-def _calendar_table(ctx: Inputs, cells: pd.DataFrame, day_names: list[str]) -> pd.DataFrame:
-    _ = ctx.gettext
-    wide = cells.pivot(index="week", columns="wd", values="label")
-    wide = wide.reindex(index=list(dict.fromkeys(cells["week"])), columns=range(7))
-    table = wide.astype(object).fillna("").rename(columns=dict(enumerate(day_names)))
-    table.columns = [str(c) for c in table.columns]
-    table.index.name = None
-    return table.reset_index(names=_("Week starting"))

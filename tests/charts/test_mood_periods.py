@@ -1,0 +1,135 @@
+"""The mood chart and calendar of a person measured in two periods, the composite's items named,
+and captions that phrase the course finding instead of comparing numbers with cut-offs.
+
+The two-period person is the first of the vendored open data of Bringmann et al. 2013 ("A
+network approach to psychopathology", PLoS ONE 8:e60188, S4): six days a period, ten prompts a
+day, the two periods ten weeks apart (tests/intake/test_intake_bringmann.py).
+"""
+
+from __future__ import annotations
+
+import re
+import xml.etree.ElementTree as ET
+from dataclasses import replace
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from springback import findings, intake, metrics
+from springback.charts import make_charts
+from springback.charts.common import Inputs
+from springback.charts.mood import mood_chart
+from springback.charts.palette import CHART
+from springback.findings.records import Finding, Findings
+from springback.i18n.language import translations
+from springback.safety import rules as safety
+from tests.charts.test_charts import make_data, make_results, make_settings
+from tests.intake.test_intake_bringmann import DAYS_PER_PERIOD, PERIOD_STARTS, _project
+
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+@pytest.fixture(scope="module")
+def two_periods(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-untyped-def]
+    study = intake.load_study(_project(Path(tmp_path_factory.mktemp("periods")) / "study"))
+    settings = study.settings
+    data = study.slice(study.participants()[0])
+    results = metrics.compute(data, settings)
+    found = findings.decide(results, safety.evaluate(data, results, settings), settings)
+    return data, results, settings, found
+
+
+def _charts(two_periods, language: str = "en"):  # type: ignore[no-untyped-def]
+    data, results, settings, found = two_periods
+    return make_charts(data, results, settings, language, translations(language).gettext, found)
+
+
+def _gap_days() -> int:
+    """Days without prompts between the periods, from the design (day 1 of each, six days)."""
+    first_end = pd.Timestamp(PERIOD_STARTS[0]) + pd.Timedelta(days=DAYS_PER_PERIOD - 1)
+    return (pd.Timestamp(PERIOD_STARTS[1]) - first_end).days - 1
+
+
+def _texts(svg: str) -> list[str]:
+    return [t.text or "" for t in ET.fromstring(svg).iter(f"{SVG}text")]
+
+
+def test_the_calendar_names_the_gap_instead_of_showing_missed_days(two_periods):
+    calendar = _charts(two_periods)["calendar"]
+    label = f"{round(_gap_days() / 7)} weeks without prompts"
+    assert _gap_days() == 64 and label == "9 weeks without prompts"
+    assert label in _texts(calendar.svg)  # written in the picture, not only in its text
+    table = calendar.table
+    weeks = table[table.columns[0]].tolist()
+    assert weeks == ["1 March", label, "10 May"]
+    assert (table.iloc[1, 1:] == "").all()
+    # Only the twelve days of the two periods count; none of the gap is a day answered 0/10.
+    assert f"over {2 * DAYS_PER_PERIOD} days" in calendar.description
+    assert "answered none" not in calendar.description
+    assert "From 7 March to 9 May there were no prompts (9 weeks without prompts)." \
+        in calendar.description
+
+
+def test_the_gap_is_named_in_the_booklet_language(two_periods):
+    nl = _charts(two_periods, "nl")["calendar"]
+    de = _charts(two_periods, "de")["calendar"]
+    assert "9 weken zonder meldingen" in _texts(nl.svg)
+    assert "9 Wochen ohne Abfragen" in _texts(de.svg)
+
+
+def test_the_mood_line_breaks_between_the_periods(two_periods):
+    mood = _charts(two_periods)["mood"]
+    lines = [p for p in ET.fromstring(mood.svg).iter(f"{SVG}path")
+             if p.get("stroke") == CHART.primary and p.get("stroke-width") == "3"]
+    assert len(lines) == 2  # one line per period, none across the gap
+    ends = [[float(v) for v in re.findall(r"[ML]([-\d.]+),", p.get("d", ""))] for p in lines]
+    first, second = sorted(ends)
+    assert len(first) == len(second) == DAYS_PER_PERIOD  # a point per day of each period
+    assert max(first) < min(second)
+
+
+def test_the_items_of_the_composite_are_named():
+    data, series = make_data()
+    settings = make_settings()
+    mood = make_charts(data, make_results(series), settings, "en", lambda m: m)["mood"]
+    assert mood.description.startswith(
+        "Low mood is the average of your answers to feeling down and tense.")
+    nl = make_charts(data, make_results(series), settings, "nl",
+                     translations("nl").gettext)["mood"]
+    assert nl.description.startswith("Somberheid is het gemiddelde van je antwoorden op ")
+
+
+def test_reverse_scored_items_are_named_as_counted_the_other_way():
+    data, series = make_data()
+    settings = make_settings()
+    turned = settings.items["tense"].model_copy(update={"reverse": True})
+    settings = settings.model_copy(update={"items": {**settings.items, "tense": turned}})
+    mood = make_charts(data, make_results(series), settings, "en", lambda m: m)["mood"]
+    assert mood.description.startswith("Low mood is the average of your answers to feeling "
+                                       "down and to tense, counted the other way round.")
+
+
+def _with_course(reading: str, **numbers: object) -> Findings:
+    return Findings("p01", (Finding("p01", "course", reading, "clear", dict(numbers)),))
+
+
+@pytest.mark.parametrize(("reading", "direction", "sentence"), [
+    ("gradual_change", "worse", "Over the study, your mood slowly got worse."),
+    ("gradual_change", "better", "Over the study, your mood slowly got better."),
+    ("passing_episode", "worse",
+     "For a while your mood was worse than usual, and then it came back."),
+    ("switching", "", "Your mood moved back and forth between two levels."),
+    ("no_clear_change", "", "We found no clear lasting change in your mood during the study."),
+])
+def test_the_caption_phrases_the_course_finding(reading, direction, sentence):
+    data, series = make_data()
+    results = make_results(series)
+    settings = make_settings()
+    ctx = Inputs(data, results, settings, "en", lambda m: m,
+                 _with_course(reading, direction=direction))
+    chart = mood_chart(ctx)
+    assert chart is not None and sentence in chart.description
+    # The same data with another reading: the words follow the finding, not the numbers.
+    other = mood_chart(replace(ctx, findings=_with_course("no_clear_change")))
+    assert other is not None and (sentence in other.description) == (reading == "no_clear_change")
