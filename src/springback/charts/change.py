@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from typing import Any, cast
 
+import altair as alt
 import numpy as np
 import pandas as pd
 from scipy import stats
@@ -41,43 +42,42 @@ def recovery_chart(ctx: Inputs) -> Chart | None:
                                    for e in aligned["episode"]])
     top = float(max(lines["deviation"].max(), 0.0))
     bottom = float(min(lines["deviation"].min(), 0.0)) - 0.12 * (top or 1.0)
-    x = {"type": "quantitative",
-         "axis": {"title": _("Hours after the dip or event"), "tickMinStep": 1,
-                  "labelOverlap": True},
-         "scale": {"zero": True, "nice": True}}
-    y = {"type": "quantitative", "scale": {"domain": [bottom, top * 1.05], "nice": False},
-         "axis": {"title": _("Distance from your usual level (higher = worse)")}}
-    usual = [{"y": 0.0, "label": _("your usual level")}]
-    layers: list[dict[str, Any]] = [
-        {"data": {"values": usual},
-         "mark": {"type": "rule", "color": CHART.axis, "strokeWidth": 1.5},
-         "encoding": {"y": {"field": "y", **y}}},
-        {"data": {"values": usual},
-         "mark": {"type": "text", "align": "right", "baseline": "top", "dy": 4,
-                  "color": CHART.ink},
-         "encoding": {"x": {"value": PLOT_WIDTH}, "y": {"field": "y", **y},
-                      "text": {"field": "label"}}},
-        {"data": {"values": records(lines[["episode", "hours", "deviation", "status"]])},
-         "mark": {"type": "line", "color": CHART.neutral, "strokeWidth": 1.4},
-         "encoding": {"x": {"field": "hours", **x}, "y": {"field": "deviation", **y},
-                      "detail": {"field": "episode", "type": "nominal"},
-                      "strokeDash": {"field": "status", "type": "nominal",
-                                     "scale": {"domain": [back, not_back],
-                                               "range": [SOLID, DASHED]},
-                                     "legend": None}}},
+
+    def x(field: str) -> alt.X:
+        return alt.X(field, type="quantitative",
+                     axis=alt.Axis(title=_("Hours after the dip or event"), tickMinStep=1,
+                                   labelOverlap=True),
+                     scale=alt.Scale(zero=True, nice=True))
+
+    def y(field: str) -> alt.Y:
+        return alt.Y(field, type="quantitative",
+                     scale=alt.Scale(domain=[bottom, top * 1.05], nice=False),
+                     axis=alt.Axis(title=_("Distance from your usual level (higher = worse)")))
+
+    usual = alt.Data(values=[{"y": 0.0, "label": _("your usual level")}])
+    layers: list[alt.Chart] = [
+        alt.Chart(usual).mark_rule(color=CHART.axis, strokeWidth=1.5).encode(y=y("y")),
+        alt.Chart(usual).mark_text(align="right", baseline="top", dy=4, color=CHART.ink)
+        .encode(x=alt.value(PLOT_WIDTH), y=y("y"), text=alt.Text(field="label")),
+        alt.Chart(alt.Data(values=records(lines[["episode", "hours", "deviation", "status"]])))
+        .mark_line(color=CHART.neutral, strokeWidth=1.4)
+        .encode(x=x("hours"), y=y("deviation"), detail=alt.Detail("episode", type="nominal"),
+                strokeDash=alt.StrokeDash("status", type="nominal",
+                                          scale=alt.Scale(domain=[back, not_back],
+                                                          range=[SOLID, DASHED]),
+                                          legend=None)),
     ]
     key = [KeyItem(_("one time: got back to usual"), CHART.neutral, width=1.5),
            KeyItem(_("one time: not back before night or the end"), CHART.neutral,
                    dash=tuple(DASHED), width=1.5)]
     fit = ctx.table("recovery", "fit")
     if fit is not None:
-        layers.append(
-            {"data": {"values": records(fit[["hours", "deviation"]].dropna())},
-             "mark": {"type": "line", "color": CHART.accent, "strokeWidth": 3.5},
-             "encoding": {"x": {"field": "hours", **x}, "y": {"field": "deviation", **y}}})
+        layers.append(alt.Chart(alt.Data(values=records(fit[["hours", "deviation"]].dropna())))
+                      .mark_line(color=CHART.accent, strokeWidth=3.5)
+                      .encode(x=x("hours"), y=y("deviation")))
         key.insert(0, KeyItem(_("typical way back (fitted curve)"), CHART.accent, width=3.5))
-    plot = {"width": PLOT_WIDTH, "height": 240, "layer": layers}
-    spec = {"vconcat": [key_spec(key, PLOT_WIDTH), plot], "spacing": 10}
+    plot = alt.layer(*layers).properties(width=PLOT_WIDTH, height=240)
+    spec = alt.vconcat(key_spec(key, PLOT_WIDTH), plot, spacing=10)
     title = _("Bouncing back after dips and events")
     description = _recovery_description(ctx, episodes)
     return Chart("recovery", title, description,
@@ -140,7 +140,8 @@ def warnings_chart(ctx: Inputs) -> Chart | None:
         return None
     names = {"ar1": _("Carry-over (lag-1 autocorrelation)"),
              "variance": _("Ups and downs (variance)")}
-    panels, found = [], {}
+    found: dict[str, pd.DataFrame] = {}
+    shown: list[tuple[str, str, str]] = []
     for column, measure, colour in INDICATORS:
         if column not in rolling.columns:
             continue
@@ -148,14 +149,14 @@ def warnings_chart(ctx: Inputs) -> Chart | None:
         if len(daily) < 2:
             continue
         found[column] = daily
-        panels.append(_indicator_panel(ctx, daily, names[column], measure,
-                                       getattr(CHART, colour)))
-    for panel in panels[:-1]:
-        for layer in panel["layer"]:
-            layer["encoding"]["x"]["axis"] = {**layer["encoding"]["x"]["axis"], "title": None}
-    if not panels:
+        shown.append((column, measure, getattr(CHART, colour)))
+    if not shown:
         return None
-    spec = {"vconcat": panels, "spacing": 18}
+    # Only the lowest panel names the date axis.
+    panels = [_indicator_panel(ctx, found[column], names[column], measure, colour,
+                               dated=i == len(shown) - 1)
+              for i, (column, measure, colour) in enumerate(shown)]
+    spec = alt.vconcat(*panels, spacing=18)
     title = _("How the indicators changed over the study")
     description = _warnings_description(ctx)
     table = _warnings_table(ctx, found)
@@ -165,7 +166,7 @@ def warnings_chart(ctx: Inputs) -> Chart | None:
 
 
 def _indicator_panel(ctx: Inputs, daily: pd.DataFrame, name: str, measure: str,
-                     colour: str) -> dict[str, Any]:
+                     colour: str, *, dated: bool) -> alt.LayerChart:
     _ = ctx.gettext
     t = day_noon_ms(ctx, daily["day"])
     frame = pd.DataFrame({"t": t, "v": daily["v"].to_numpy()})
@@ -177,22 +178,17 @@ def _indicator_panel(ctx: Inputs, daily: pd.DataFrame, name: str, measure: str,
     note = (_("dashed line: trend; Kendall's tau {tau}").format(
                 tau=ctx.num(float(cast(float, tau.value)), 2))
             if tau.ok else _("dashed line: trend; Kendall's tau not computed"))
-    x = time_axis(ctx, _("Date"), t)
-    y = {"type": "quantitative", "scale": {"zero": False}, "axis": {"title": None}}
-    return {
-        "title": {"text": name, "subtitle": note, "subtitleColor": CHART.ink,
-                  "subtitleFontSize": 13},
-        "width": PLOT_WIDTH, "height": 120,
-        "layer": [
-            {"data": {"values": records(frame)},
-             "mark": {"type": "line", "color": colour, "strokeWidth": 2.5},
-             "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}},
-            {"data": {"values": records(ends)},
-             "mark": {"type": "line", "color": CHART.axis, "strokeWidth": 2,
-                      "strokeDash": [6, 4]},
-             "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}},
-        ],
-    }
+    x = time_axis(ctx, _("Date"), t).x("t", show_title=dated)
+    y = alt.Y("v", type="quantitative", scale=alt.Scale(zero=False), axis=alt.Axis(title=None))
+    return alt.LayerChart(layer=[
+        alt.Chart(alt.Data(values=records(frame)))
+        .mark_line(color=colour, strokeWidth=2.5).encode(x=x, y=y),
+        alt.Chart(alt.Data(values=records(ends)))
+        .mark_line(color=CHART.axis, strokeWidth=2, strokeDash=[6, 4]).encode(x=x, y=y),
+    ]).properties(
+        title=alt.TitleParams(name, subtitle=note, subtitleColor=CHART.ink, subtitleFontSize=13),
+        width=PLOT_WIDTH, height=120,
+    )
 
 
 def _warnings_description(ctx: Inputs) -> str:
@@ -244,7 +240,7 @@ def grid_chart(ctx: Inputs) -> Chart | None:
     bands = sorted(grid["bandwidth_days"].unique())
     window_names = {w: ctx.percent(float(w)) for w in windows}
     band_names = {b: ctx.num(float(b), 0 if float(b).is_integer() else 1) for b in bands}
-    panels: list[dict[str, Any]] = []
+    panels: list[alt.LayerChart] = []
     names = {"inertia": _("Carry-over"), "variance": _("Variance")}
     # Two panels side by side while five windows fit; more windows stack them.
     side_by_side = len(windows) <= 5
@@ -259,24 +255,21 @@ def grid_chart(ctx: Inputs) -> Chart | None:
                       for v, pv in zip(tau, p, strict=True)],
             "fill": fills, "ink": [readable_text_on(f) for f in fills],
         })
-        x = {"field": "w", "type": "ordinal", "sort": list(window_names.values()),
-             "axis": {"title": _("Window (share of prompts)"), "labelAngle": 0}}
-        y = {"field": "b", "type": "ordinal", "sort": list(band_names.values()),
-             "axis": {"title": _("Smoothing (days)") if not (panels and side_by_side)
-                      else None}}
-        panels.append({
-            "title": names[which], "data": {"values": records(cells)},
-            "width": cell_w * len(windows), "height": 30 * len(bands),
-            "layer": [
-                {"mark": {"type": "rect", "stroke": CHART.neutral, "strokeWidth": 1},
-                 "encoding": {"x": x, "y": y,
-                              "fill": {"field": "fill", "type": "nominal", "scale": None}}},
-                {"mark": {"type": "text", "fontSize": 13},
-                 "encoding": {"x": x, "y": y, "text": {"field": "label"},
-                              "fill": {"field": "ink", "type": "nominal", "scale": None}}},
-            ],
-        })
-    spec = {"hconcat" if side_by_side else "vconcat": panels, "spacing": 24}
+        x = alt.X("w", type="ordinal", sort=list(window_names.values()),
+                  axis=alt.Axis(title=_("Window (share of prompts)"), labelAngle=0))
+        y = alt.Y("b", type="ordinal", sort=list(band_names.values()),
+                  axis=alt.Axis(title=_("Smoothing (days)") if not (panels and side_by_side)
+                                else None))
+        base = alt.Chart(alt.Data(values=records(cells)))
+        panels.append(alt.LayerChart(layer=[
+            base.mark_rect(stroke=CHART.neutral, strokeWidth=1)
+            .encode(x=x, y=y, fill=alt.Fill("fill", type="nominal", scale=None)),
+            base.mark_text(fontSize=13)
+            .encode(x=x, y=y, text=alt.Text(field="label"),
+                    fill=alt.Fill("ink", type="nominal", scale=None)),
+        ]).properties(title=names[which], width=cell_w * len(windows), height=30 * len(bands)))
+    spec = (alt.hconcat(*panels, spacing=24) if side_by_side
+            else alt.vconcat(*panels, spacing=24))
     title = _("How much the trends depend on the analysis choices")
     description = _grid_description(ctx, grid, alpha)
     return Chart("grid", title, description,

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import math
-from typing import Any, cast
+from typing import cast
 
+import altair as alt
 import numpy as np
 import pandas as pd
 
@@ -43,34 +44,26 @@ def landscape_chart(ctx: Inputs) -> Chart | None:
     valley_rows = _valley_rows(ctx, curve, valleys)
     low, high = ctx.scale
     bottom = floor - 0.5
-    x = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
-         "axis": {"title": ctx.value_axis_title(), "tickMinStep": 1}}
-    y = {"type": "quantitative",
-         "scale": {"domain": [bottom, ceiling], "nice": False, "zero": False},
-         "axis": {"title": _("Lower = more often"), "labels": False, "ticks": False}}
-    ground = records(curve[["x", "u"]])
-    layers: list[dict[str, Any]] = [
-        {"data": {"values": ground},
-         "mark": {"type": "area", "color": CHART.terrain},
-         "encoding": {"x": {"field": "x", **x}, "y": {"field": "u", **y},
-                      "y2": {"datum": bottom}}},
-        {"data": {"values": ground},
-         "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 3},
-         "encoding": {"x": {"field": "x", **x}, "y": {"field": "u", **y}}},
+    x = alt.X("x", type="quantitative",
+              scale=alt.Scale(domain=[low, high], nice=False, zero=False),
+              axis=alt.Axis(title=ctx.value_axis_title(), tickMinStep=1))
+    y = alt.Y("u", type="quantitative",
+              scale=alt.Scale(domain=[bottom, ceiling], nice=False, zero=False),
+              axis=alt.Axis(title=_("Lower = more often"), labels=False, ticks=False))
+    ground = alt.Chart(alt.Data(values=records(curve[["x", "u"]])))
+    layers: list[alt.Chart] = [
+        ground.mark_area(color=CHART.terrain).encode(x=x, y=y, y2=alt.datum(bottom)),
+        ground.mark_line(color=CHART.primary, strokeWidth=3).encode(x=x, y=y),
     ]
     if len(valley_rows):
+        marked = alt.Chart(alt.Data(values=records(valley_rows)))
         layers += [
-            {"data": {"values": records(valley_rows)},
-             "mark": {"type": "point", "shape": "circle", "filled": True, "size": 260,
-                      "color": CHART.accent, "yOffset": -10, "opacity": 1},
-             "encoding": {"x": {"field": "x", **x}, "y": {"field": "u", **y}}},
-            {"data": {"values": records(valley_rows)},
-             "mark": {"type": "text", "dy": -42, "color": CHART.ink, "fontWeight": "bold",
-                      "lineBreak": "\n", "baseline": "bottom"},
-             "encoding": {"x": {"field": "x", **x}, "y": {"field": "u", **y},
-                          "text": {"field": "label"}}},
+            marked.mark_point(shape="circle", filled=True, size=260, color=CHART.accent,
+                              yOffset=-10, opacity=1).encode(x=x, y=y),
+            marked.mark_text(dy=-42, color=CHART.ink, fontWeight="bold", lineBreak="\n",
+                             baseline="bottom").encode(x=x, y=y, text=alt.Text(field="label")),
         ]
-    spec = {"width": PLOT_WIDTH, "height": 230, "layer": layers}
+    spec = alt.layer(*layers).properties(width=PLOT_WIDTH, height=230)
     title = _("Your mood landscape")
     description = _landscape_description(ctx, valley_rows)
     return Chart("landscape", title, description,
@@ -158,45 +151,42 @@ def load_chart(ctx: Inputs) -> Chart | None:
     load_name = _load_label(ctx)
     low, high = ctx.scale
     counts = bool(np.all(np.mod(daily["load"], 1) == 0))
-    x = {"type": "quantitative", "scale": {"zero": False, "nice": True, "padding": 12},
-         "axis": {"title": load_name, **({"tickMinStep": 1, "format": "d"} if counts else {})}}
-    y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
-         "axis": {"title": ctx.value_axis_title()}}
-    layers: list[dict[str, Any]] = []
+    x = alt.X("load", type="quantitative", scale=alt.Scale(zero=False, nice=True, padding=12),
+              axis=alt.Axis(title=load_name, tickMinStep=1, format="d") if counts
+              else alt.Axis(title=load_name))
+    y = alt.Y("mood", type="quantitative",
+              scale=alt.Scale(domain=[low, high], nice=False, zero=False),
+              axis=alt.Axis(title=ctx.value_axis_title()))
+    layers: list[alt.Chart] = []
     key: list[KeyItem] = []
     if weekly:
-        layers.append({"data": {"values": records(daily)},
-                       "mark": {"type": "point", "shape": "circle", "filled": False,
-                                "size": 24, "color": CHART.neutral, "strokeWidth": 1},
-                       "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y}}})
+        layers.append(alt.Chart(alt.Data(values=records(daily)))
+                      .mark_point(shape="circle", filled=False, size=24, color=CHART.neutral,
+                                  strokeWidth=1)
+                      .encode(x=x, y=y))
         key.append(KeyItem(_("one day"), CHART.neutral, kind="point", filled=False))
     key.append(KeyItem(_("weekly averages, joined in time order") if weekly
                        else _("days, joined in time order"), CHART.primary))
     key += [KeyItem(name, CHART.primary, kind="point", shape=shapes[name]) for name in names]
+    steps = alt.Chart(alt.Data(values=records(path)))
+    label = alt.Text(field="label")
     layers += [
-        {"data": {"values": records(path)},
-         "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 2},
-         "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
-                      "order": {"field": "order", "type": "quantitative"}}},
-        {"data": {"values": records(path)},
-         "mark": {"type": "point", "filled": True, "size": 80, "color": CHART.primary,
-                  "opacity": 1},
-         "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
-                      "shape": {"field": "shape", "type": "nominal", "scale": None}}},
+        steps.mark_line(color=CHART.primary, strokeWidth=2)
+        .encode(x=x, y=y, order=alt.Order("order", type="quantitative")),
+        steps.mark_point(filled=True, size=80, color=CHART.primary, opacity=1)
+        .encode(x=x, y=y, shape=alt.Shape("shape", type="nominal", scale=None)),
         # The start label sits below its point and the end label above, so they do not meet.
-        {"data": {"values": records(ends.iloc[[0]])},
-         "mark": {"type": "text", "dy": 10, "baseline": "top", "align": "left", "dx": 6,
-                  "color": CHART.ink, "fontWeight": "bold"},
-         "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
-                      "text": {"field": "label"}}},
-        {"data": {"values": records(ends.iloc[[1]])},
-         "mark": {"type": "text", "dy": -10, "baseline": "bottom", "align": "left", "dx": 6,
-                  "color": CHART.ink, "fontWeight": "bold"},
-         "encoding": {"x": {"field": "load", **x}, "y": {"field": "mood", **y},
-                      "text": {"field": "label"}}},
+        alt.Chart(alt.Data(values=records(ends.iloc[[0]])))
+        .mark_text(dy=10, baseline="top", align="left", dx=6, color=CHART.ink,
+                   fontWeight="bold")
+        .encode(x=x, y=y, text=label),
+        alt.Chart(alt.Data(values=records(ends.iloc[[1]])))
+        .mark_text(dy=-10, baseline="bottom", align="left", dx=6, color=CHART.ink,
+                   fontWeight="bold")
+        .encode(x=x, y=y, text=label),
     ]
-    plot = {"width": PLOT_WIDTH, "height": 300, "layer": layers}
-    spec = {"vconcat": [key_spec(key, PLOT_WIDTH), plot], "spacing": 10}
+    plot = alt.layer(*layers).properties(width=PLOT_WIDTH, height=300)
+    spec = alt.vconcat(key_spec(key, PLOT_WIDTH), plot, spacing=10)
     title = _("Your mood and your daily load")
     description = _load_description(ctx, daily)
     table = pd.DataFrame({

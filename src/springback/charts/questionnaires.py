@@ -2,8 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Any
-
+import altair as alt
 import numpy as np
 import pandas as pd
 
@@ -69,40 +68,39 @@ def _questionnaire_chart(ctx: Inputs, q: str) -> Chart | None:
     spec_q = ctx.settings.questionnaires.get(q)
     name = (spec_q.label.get(ctx.language) or spec_q.label.get("en") or q) if spec_q else q
     (low, high), bands = _bands(ctx, q)
-    y = {"type": "quantitative", "scale": {"domain": [low, high], "nice": False, "zero": False},
-         "axis": {"title": _("Score")}}
+    def y(field: str) -> alt.Y:
+        return alt.Y(field, type="quantitative",
+                     scale=alt.Scale(domain=[low, high], nice=False, zero=False),
+                     axis=alt.Axis(title=_("Score")))
+
     points = pd.DataFrame({"t": ctx.ms(scores["local_time"]), "v": scores["score"]})
-    x = time_axis(ctx, _("Date"), points["t"].to_numpy(), pad_days=1)
+    axis = time_axis(ctx, _("Date"), points["t"].to_numpy(), pad_days=1)
     margin = int(min(170, 12 + CHAR_WIDTH * max((len(b[2]) for b in bands), default=0)))
     band_rows = pd.DataFrame(
         [{"lo": lo, "hi": hi, "label": label, "fill": BAND_FILLS[i % len(BAND_FILLS)]}
          for i, (lo, hi, label) in enumerate(bands)])
-    layers: list[dict[str, Any]] = []
+    layers: list[alt.Chart] = []
     if len(band_rows):
         layers += [
-            {"data": {"values": records(band_rows)},
-             "mark": {"type": "rect"},
-             "encoding": {"y": {"field": "lo", **y}, "y2": {"field": "hi"},
-                          "fill": {"field": "fill", "type": "nominal", "scale": None}}},
-            {"data": {"values": records(band_rows.iloc[1:])},
-             "mark": {"type": "rule", "color": CHART.neutral, "strokeDash": [3, 3]},
-             "encoding": {"y": {"field": "lo", **y}}},
+            alt.Chart(alt.Data(values=records(band_rows))).mark_rect()
+            .encode(y=y("lo"), y2=alt.Y2("hi"),
+                    fill=alt.Fill("fill", type="nominal", scale=None)),
+            alt.Chart(alt.Data(values=records(band_rows.iloc[1:])))
+            .mark_rule(color=CHART.neutral, strokeDash=[3, 3]).encode(y=y("lo")),
             # Band names sit in the right margin, clear of the scores.
-            {"data": {"values": records(band_rows.assign(mid=(band_rows["lo"]
-                                                              + band_rows["hi"]) / 2))},
-             "mark": {"type": "text", "align": "left", "baseline": "middle", "dx": 8,
-                      "color": CHART.ink, "limit": margin},
-             "encoding": {"x": {"value": PLOT_WIDTH - margin}, "y": {"field": "mid", **y},
-                          "text": {"field": "label"}}},
+            alt.Chart(alt.Data(values=records(band_rows.assign(
+                mid=(band_rows["lo"] + band_rows["hi"]) / 2))))
+            .mark_text(align="left", baseline="middle", dx=8, color=CHART.ink, limit=margin)
+            .encode(x=alt.value(PLOT_WIDTH - margin), y=y("mid"),
+                    text=alt.Text(field="label")),
         ]
-    layers.append({
-        "data": {"values": records(points)},
-        "mark": {"type": "line", "color": CHART.primary, "strokeWidth": 2.5,
-                 "point": {"filled": True, "size": 70, "color": CHART.primary}},
-        "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}},
-    })
-    layers += _sudden_layers(ctx, q, scores, x, y)
-    spec = {"width": PLOT_WIDTH - margin, "height": 220, "layer": layers}
+    layers.append(
+        alt.Chart(alt.Data(values=records(points)))
+        .mark_line(color=CHART.primary, strokeWidth=2.5,
+                   point=alt.OverlayMarkDef(filled=True, size=70, color=CHART.primary))
+        .encode(x=axis.x("t"), y=y("v")))
+    layers += _sudden_layers(ctx, q, scores, axis.x("t"), y("v"))
+    spec = alt.layer(*layers).properties(width=PLOT_WIDTH - margin, height=220)
     key = f"questionnaire_{q}"
     title = _("Your {name} scores").format(name=name)
     description = _questionnaire_description(ctx, q, name, scores)
@@ -116,8 +114,8 @@ def _questionnaire_chart(ctx: Inputs, q: str) -> Chart | None:
                  table, _("{name} scores and their bands").format(name=name))
 
 
-def _sudden_layers(ctx: Inputs, q: str, scores: pd.DataFrame, x: dict[str, Any],
-                   y: dict[str, Any]) -> list[dict[str, Any]]:
+def _sudden_layers(ctx: Inputs, q: str, scores: pd.DataFrame, x: alt.X,
+                   y: alt.Y) -> list[alt.Chart]:
     """Sudden gains and losses: a marked point with a written label."""
     _ = ctx.gettext
     sudden = ctx.table("questionnaires", f"sudden_{q}")
@@ -130,15 +128,11 @@ def _sudden_layers(ctx: Inputs, q: str, scores: pd.DataFrame, x: dict[str, Any],
                          "label": [words.get(str(k), str(k)) for k in sudden["kind"]]}).dropna()
     if rows.empty:
         return []
+    marked = alt.Chart(alt.Data(values=records(rows)))
     return [
-        {"data": {"values": records(rows)},
-         "mark": {"type": "point", "shape": "diamond", "filled": False, "size": 260,
-                  "strokeWidth": 2.5, "color": CHART.highlight},
-         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y}}},
-        {"data": {"values": records(rows)},
-         "mark": {"type": "text", "dy": -18, "color": CHART.ink},
-         "encoding": {"x": {"field": "t", **x}, "y": {"field": "v", **y},
-                      "text": {"field": "label"}}},
+        marked.mark_point(shape="diamond", filled=False, size=260, strokeWidth=2.5,
+                          color=CHART.highlight).encode(x=x, y=y),
+        marked.mark_text(dy=-18, color=CHART.ink).encode(x=x, y=y, text=alt.Text(field="label")),
     ]
 
 
