@@ -320,8 +320,7 @@ def catalogue_problems(
                     f"{len(missing)} message(s) not translated: {shown}{more}",
                     expected="every booklet message translated",
                     found=f"{len(missing)} untranslated",
-                    fix="translate them in "
-                    f"src/springback/locale/{language}/LC_MESSAGES/messages.po and run "
+                    fix=f"translate them in {catalogue_path(language)} and run "
                     "`springback translations --update`, or make these booklets in a "
                     "complete language",
                     code="catalogue-incomplete",
