@@ -6,10 +6,11 @@ column contract below, so downstream code never re-validates.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
-from typing import Literal, cast
+from typing import Any, Literal, cast
 
 import numpy as np
 import pandas as pd
@@ -221,3 +222,43 @@ def empty_schedule() -> pd.DataFrame:
                          "period": pd.Series(dtype="int64"),
                          "study_day": pd.Series(dtype="datetime64[ns]"),
                          "answered": pd.Series(dtype="int64"), "sent": pd.Series(dtype=float)})
+
+
+FLAG_FIELDS = ("participant", "rule", "action", "value", "when", "detail")
+"""A flag's fields, the keys of its row (`Flag.to_row`)."""
+
+
+@dataclass(frozen=True)
+class Flag:
+    """One safety rule that one participant's data crossed (made by `springback.safety`,
+    read by the findings, the booklets, the review gate and the open actions)."""
+
+    participant: str
+    rule: str
+    action: Literal["refer", "hold"]
+    value: float | None
+    """The triggering value (score, rating, shift size, days without answers)."""
+    when: str
+    """Local date (YYYY-MM-DD) of the triggering data; '' when there is none."""
+    detail: str
+    """Plain words: what was found, for the therapist edition and the overview."""
+
+    def to_row(self, keys: tuple[str, ...] = FLAG_FIELDS) -> dict[str, Any]:
+        """The flag as one row of plain values, with these of its fields: out/flags.csv takes
+        `FLAG_CSV_COLUMNS`, an archived build's manifest `FLAG_RECORD_KEYS` (the participant
+        is the key of the record the flags sit in)."""
+        return {k: getattr(self, k) for k in keys}
+
+    @classmethod
+    def from_row(cls, row: Mapping[str, Any], participant: str | None = None) -> Flag:
+        """The flag a row holds (`to_row`); a manifest's row takes its participant from the
+        record it sits in."""
+        value = row.get("value")
+        return cls(
+            participant=str(row["participant"] if participant is None else participant),
+            rule=str(row.get("rule", "")),
+            action=cast(Literal["refer", "hold"], str(row.get("action", ""))),
+            value=None if value is None or value == "" else float(value),
+            when=str(row.get("when", "") or ""),
+            detail=str(row.get("detail", "")),
+        )

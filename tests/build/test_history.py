@@ -16,6 +16,7 @@ from springback.build.history import History
 from springback.build.jobs import _run_job
 from springback.build.records import Job
 from springback.errors import ArchiveError
+from springback.model import Flag
 from springback.review import gate
 from tests.support.tiny_projects import PEOPLE, fake_build, fp, hold_flag, make_project
 
@@ -42,8 +43,8 @@ def test_snapshot_holds_versions_decisions_and_the_last_build(tmp_path: Path) ->
                 project, pid, fp(pid, n))
     assert dict(history.decisions) == {("P02", fp("P02")): "approved"}
     assert history.decision("P03", fp("P03")) == "held"
-    assert history.review_state("P02", fp("P02"), [hold_flag("P02")]) == "approved"
-    assert history.review_state("P03", fp("P03"), [hold_flag("P03")]) == "held"
+    assert history.review_state("P02", fp("P02"), [Flag.from_row(hold_flag("P02"))]) == "approved"
+    assert history.review_state("P03", fp("P03"), [Flag.from_row(hold_flag("P03"))]) == "held"
     assert history.review_state("P01", fp("P01", 2), []) == "not needed"
     assert [h.state for h in gate.list_held(project)] == ["approved", "held"]
 
@@ -91,7 +92,7 @@ def test_a_damaged_key_store_fails_only_a_booklet_that_needs_a_decision(
     assert "subjects.json" in history.unreadable
     assert history.review_state("P01", fp("P01"), []) == "not needed"
     with pytest.raises(ArchiveError, match=r"subjects\.json"):
-        history.review_state("P02", fp("P02"), [hold_flag("P02")])
+        history.review_state("P02", fp("P02"), [Flag.from_row(hold_flag("P02"))])
 
 
 class FileRead(AssertionError):
@@ -126,5 +127,5 @@ def test_a_job_reads_no_file(example_copy: Path, monkeypatch: pytest.MonkeyPatch
     monkeypatch.undo()
     assert (outcome.status, outcome.review_state, outcome.version) == (
         "no feedback", "approved", 3)
-    assert any(f["action"] == "hold" for f in outcome.flags)
+    assert any(f.action == "hold" for f in outcome.flags)
     assert outcome.metrics_rows == first.metrics_rows

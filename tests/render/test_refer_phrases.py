@@ -75,7 +75,7 @@ def test_each_rule_has_its_own_sentence(settings: object) -> None:
 def test_sentences_of_refer_flags_only_once_each(settings: object) -> None:
     """Check holds are left out and a repeated sentence is said once; records work too."""
     hold = Flag("P01", "hopeless", "hold", 7.0, "2026-05-01", "")
-    record = flag("stopped answering").record()
+    record = flag("stopped answering").to_row()
     out = phrases.refer_sentences([hold, flag("stopped answering"), record], settings, "en",
                                   EN, day)
     assert out == ["You have not answered since 14 May; we would like to hear how you are."]

@@ -129,7 +129,7 @@ def test_participant_edition_has_no_statistics(editions) -> None:
     text = parse(editions["participant"]).text
     for jargon in ("interval", "p-value", "Kendall", "RMSSD", "autocorrelation"):
         assert jargon not in text
-    assert "about 9 in 10 prompts" in text
+    assert "about nine in ten prompts" in text
     assert "about half a day" in text
 
 
@@ -186,7 +186,7 @@ def test_therapist_edition_shows_flags_and_review_state() -> None:
     flags = [SampleFlag("P007", "phq9 high", "hold", 16.0, "2026-03-11", "score 16 of 27")]
     html = render_booklet("therapist", flags=flags, review_state="held")
     text = parse(html).text
-    assert "phq9 high" in text and "2026-03-11" in text and "score 16 of 27" in text
+    assert "phq9 high" in text and "11 March 2026" in text and "score 16 of 27" in text
     assert "a clinician must review this booklet" in text
 
 

@@ -11,6 +11,7 @@ from click.testing import CliRunner
 from springback.archive import audit
 from springback.cli import main
 from springback.errors import ReviewError
+from springback.model import Flag
 from springback.review import gate as review
 from tests.support.tiny_projects import PEOPLE, fake_build, fp, make_project
 
@@ -29,9 +30,10 @@ def test_states(tmp_path: Path) -> None:
     """Check each review state: not needed, held, approved, rejected, bound to a fingerprint."""
     project = make_project(tmp_path / "study")
     fake_build(project, tmp_path / "s1", holds=("P02",))
-    hold = [{"action": "hold"}]
+    hold = [Flag("P02", "hopeless", "hold", 7.0, "2026-03-04", "")]
+    refer = [Flag("P01", "hopeless", "refer", 7.0, "2026-03-04", "")]
     assert review.review_state(project, "P01", fp("P01", 1), []) == "not needed"
-    assert review.review_state(project, "P01", fp("P01", 1), [{"action": "refer"}]) == "not needed"
+    assert review.review_state(project, "P01", fp("P01", 1), refer) == "not needed"
     assert review.review_state(project, "P02", fp("P02", 1), hold) == "held"
     review.approve(project, "P02", "Dr. A. Reviewer", "talked it through")
     assert review.review_state(project, "P02", fp("P02", 1), hold) == "approved"

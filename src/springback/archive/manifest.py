@@ -19,7 +19,8 @@ Public functions (build.py calls these while holding a `fsutil.BuildLock`):
         -> list[Problem]                        # warnings for `check`
 
 `participants` maps each id to a dict with keys `fingerprint`, `version`, `flags` (Flag or
-dict), `review_state`, `period` ({"first": "YYYY-MM-DD", "last": ...}), `status`, `consent`,
+its manifest row, `Flag.to_row(FLAG_RECORD_KEYS)`), `review_state`, `period` ({"first":
+"YYYY-MM-DD", "last": ...}), `status`, `consent`,
 `feedback` and optionally `files` (output paths relative to `staging_out`; default: paths with
 a component that is the id, such as `booklets/P01/participant.pdf`). The archive folder is
 written as a hidden partial folder, the manifest last, and renamed into place; only then is
@@ -74,6 +75,8 @@ from springback.files import (
     staging_dir,
     write_json,
 )
+from springback.model import Flag
+from springback.safety.rules import FLAG_RECORD_KEYS
 from springback.settings import SETTINGS_FILE, StudySettings, normalised
 
 KEY_DEPENDENCIES = (
@@ -139,7 +142,8 @@ def _plain(value: Any) -> Any:
 
 def _participant_record(pid: str, info: dict[str, Any], outputs: list[str]) -> dict[str, Any]:
     record = {k: _plain(v) for k, v in info.items()}
-    record["flags"] = [_plain(f) for f in info.get("flags", [])]
+    record["flags"] = [f.to_row(FLAG_RECORD_KEYS) if isinstance(f, Flag) else dict(f)
+                       for f in info.get("flags", [])]
     if "files" not in record:
         # Exact path components only: P1 never claims booklets/P10/ or booklets/P1-b/.
         record["files"] = [o for o in outputs if pid in PurePosixPath(o).parts]

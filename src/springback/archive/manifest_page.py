@@ -8,6 +8,8 @@ from __future__ import annotations
 from html import escape
 from typing import Any
 
+from springback.model import Flag
+
 _STYLE = (
     "body{font-family:system-ui,sans-serif;max-width:60rem;margin:2rem auto;padding:0 1rem;"
     "color:#1a1a1a;background:#fff;line-height:1.5}table{border-collapse:collapse;width:100%;"
@@ -50,7 +52,8 @@ def manifest_html(manifest: dict[str, Any]) -> str:
     )
     people = []
     for pid, rec in sorted(manifest.get("participants", {}).items()):
-        flags = "; ".join(f"{f.get('rule')} ({f.get('action')})" for f in rec.get("flags", []))
+        flags = "; ".join(f"{f.rule} ({f.action})" for f in
+                          (Flag.from_row(row, pid) for row in rec.get("flags", [])))
         period = rec.get("period", {}) or {}
         people.append((pid, rec.get("review_state", ""), flags or "none",
                        f"{period.get('first', '')} to {period.get('last', '')}",

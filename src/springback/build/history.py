@@ -24,8 +24,9 @@ if TYPE_CHECKING:
 REUSABLE = ("built", "no feedback", "not enough data", "withdrawn")
 """Outcomes that can be carried over from the last build when nothing they depend on changed."""
 
-REUSED_TABLES = ("metrics.csv", "findings.csv", "flags.csv", "shifts.csv")
-"""The study tables whose rows a reused participant takes from the last build."""
+REUSED_TABLES = ("metrics.csv", "findings.csv", "shifts.csv")
+"""The study tables whose rows a reused participant takes from the last build (its flags'
+rows come from its flags, which the manifest keeps)."""
 
 
 @dataclass(frozen=True)
@@ -94,13 +95,13 @@ class History:
         leaves out): as the last build had them. None, with nothing copied, otherwise.
         """
         from springback.build.records import BOOKLETS, ParticipantOutcome
-        from springback.model import EDITIONS
+        from springback.model import EDITIONS, Flag
 
         last = self.last
         rec = last.people.get(pid) if last else None
         if last is None or not rec:
             return None
-        flags = list(rec.get("flags", []))
+        flags = [Flag.from_row(row, pid) for row in rec.get("flags", [])]
         if fingerprint is None:
             fingerprint = str(rec.get("fingerprint", ""))
             version = int(rec.get("version", 0) or 0)
@@ -124,14 +125,14 @@ class History:
         return ParticipantOutcome(
             participant=pid, status=str(rec.get("status", "")), reason=rec.get("reason", ""),
             stored=tuple(sorted(names)), metrics_rows=rows["metrics.csv"],
-            flag_rows=rows["flags.csv"], shift_rows=rows["shifts.csv"],
+            shift_rows=rows["shifts.csv"],
             finding_rows=rows["findings.csv"], review_state=state, fingerprint=fingerprint,
             version=int(version or 0),
             period=(period.get("first", ""), period.get("last", "")),
             compliance=float(compliance) if compliance not in ("", None) else None,
             editions=tuple(e for e in EDITIONS if f"{BOOKLETS}/{pid}/{e}.html" in names
                            or f"{BOOKLETS}/{pid}/{e}.pdf" in names),
-            flags=flags, reused=True,
+            flags=tuple(flags), reused=True,
         )
 
 

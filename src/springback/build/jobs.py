@@ -108,12 +108,11 @@ def _run_job(job: Job) -> ParticipantOutcome:
     state = review_state(flags, job.decision, job.unreadable)
     common: dict[str, Any] = dict(
         metrics_rows=metrics.results_rows(results),
-        flag_rows=safety.flags_rows(flags),
         shift_rows=shift_rows(results),
         finding_rows=found.rows(),
         review_state=state,
         compliance=_compliance(results),
-        flags=[f.record() for f in flags],
+        flags=tuple(flags),
         **base,
     )
     if not data.feedback:

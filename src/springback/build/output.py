@@ -97,6 +97,7 @@ def archive_staged(project: Path, out_dir: Path, staging: Path, *, study: Study,
     files are in `staging` already (or in `o.files`, written here).
     """
     from springback.archive.manifest import record_build
+    from springback.safety.rules import FLAG_RECORD_KEYS
 
     roster = study.roster.set_index("participant")
     settings = study.settings
@@ -108,7 +109,8 @@ def archive_staged(project: Path, out_dir: Path, staging: Path, *, study: Study,
         row = roster.loc[o.participant]
         people[o.participant] = {
             "status": o.status, "reason": o.reason, "fingerprint": o.fingerprint,
-            "version": o.version, "review_state": o.review_state, "flags": list(o.flags),
+            "version": o.version, "review_state": o.review_state,
+            "flags": [f.to_row(FLAG_RECORD_KEYS) for f in o.flags],
             "period": {"first": o.period[0], "last": o.period[1]},
             "consent": str(row["consent"]), "feedback": bool(row["feedback"]),
             "files": sorted(kept),
@@ -130,11 +132,11 @@ def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[s
     """The study-wide CSV tables: metrics, findings, flags, shifts, quality, set-aside rows."""
     from springback.findings import FINDINGS_CSV_COLUMNS
     from springback.metrics.results import METRICS_CSV_COLUMNS
-    from springback.safety.rules import FLAG_CSV_COLUMNS
+    from springback.safety.rules import FLAG_CSV_COLUMNS, flags_rows
 
     outcomes = list(outcomes)
     metrics_rows = [r for o in outcomes for r in o.metrics_rows]
-    flag_rows = [r for o in outcomes for r in o.flag_rows]
+    flag_rows = flags_rows([f for o in outcomes for f in o.flags])
     shift_rows = [r for o in outcomes for r in o.shift_rows]
     finding_rows = [r for o in outcomes for r in o.finding_rows]
     tables = {

@@ -24,9 +24,11 @@ if TYPE_CHECKING:
 
 def outcome_record(o: ParticipantOutcome) -> dict[str, Any]:
     """An outcome in the shape of a manifest's participant record (for the open actions)."""
+    from springback.safety.rules import FLAG_RECORD_KEYS
+
     return {"status": o.status, "reason": o.reason, "fingerprint": o.fingerprint,
-            "version": o.version, "review_state": o.review_state, "flags": list(o.flags),
-            "files": o.outputs}
+            "version": o.version, "review_state": o.review_state,
+            "flags": [f.to_row(FLAG_RECORD_KEYS) for f in o.flags], "files": o.outputs}
 
 
 def weekly_compliance(data: ParticipantData, settings: StudySettings,

@@ -10,7 +10,7 @@ from typing import Any
 import pandas as pd
 
 from springback.model import EDITIONS as EDITIONS  # re-exported for callers
-from springback.model import ParticipantData
+from springback.model import Flag, ParticipantData
 from springback.settings import StudySettings
 
 BOOKLETS = "booklets"
@@ -27,7 +27,6 @@ class ParticipantOutcome:
     files: dict[str, bytes] = field(default_factory=dict)
     """Path relative to out/ -> content."""
     metrics_rows: list[dict[str, Any]] = field(default_factory=list)
-    flag_rows: list[dict[str, Any]] = field(default_factory=list)
     shift_rows: list[dict[str, Any]] = field(default_factory=list)
     finding_rows: list[dict[str, Any]] = field(default_factory=list)
     review_state: str = "not needed"
@@ -36,7 +35,8 @@ class ParticipantOutcome:
     period: tuple[str, str] = ("", "")
     compliance: float | None = None
     editions: tuple[str, ...] = ()
-    flags: list[dict[str, Any]] = field(default_factory=list)
+    flags: tuple[Flag, ...] = ()
+    """The safety flags (out/flags.csv and the manifest take their rows, `Flag.to_row`)."""
     reused: bool = False
     """True when nothing this participant's booklet depends on changed since the last build."""
     stored: tuple[str, ...] = ()

@@ -36,22 +36,22 @@ from springback.findings.records import (
     Certainty,
     Finding,
     Findings,
-    FlagLike,
     missing,
 )
 from springback.findings.warning import warning
 from springback.metrics.results import ParticipantResults
+from springback.model import Flag
 from springback.settings import StudySettings
 
 __all__ = ["CERTAINTIES", "FINDINGS_CSV_COLUMNS", "NOT_ENOUGH_DATA", "Certainty", "Finding",
-           "Findings", "FlagLike", "decide", "missing"]
+           "Findings", "decide", "missing"]
 
 SUMMARY_POINTS = 3
 """At most this many findings lead a booklet (Bartels et al. 2023, Heliyon 9:e20084: few
 topics, a summary first)."""
 
 
-def decide(results: ParticipantResults, flags: Sequence[FlagLike],
+def decide(results: ParticipantResults, flags: Sequence[Flag],
            settings: StudySettings) -> Findings:
     """Every finding of one participant, decided once."""
     pid = results.participant

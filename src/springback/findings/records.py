@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
-from typing import Any, Literal, Protocol
+from typing import Any, Literal
 
 Certainty = Literal["clear", "some_signs", "no_clear_sign", "cannot_tell"]
 CERTAINTIES: tuple[Certainty, ...] = ("clear", "some_signs", "no_clear_sign", "cannot_tell")
@@ -19,23 +19,6 @@ NOT_ENOUGH_DATA = "not_enough_data"
 
 FINDINGS_CSV_COLUMNS = ("participant", "topic", "reading", "certainty", "detail", "reason")
 """Columns of out/findings.csv, in order."""
-
-
-class FlagLike(Protocol):
-    """What a safety flag offers the findings stage (springback.safety.Flag has these)."""
-
-    @property
-    def participant(self) -> str: ...
-    @property
-    def rule(self) -> str: ...
-    @property
-    def action(self) -> str: ...
-    @property
-    def value(self) -> float | None: ...
-    @property
-    def when(self) -> str: ...
-    @property
-    def detail(self) -> str: ...
 
 
 @dataclass(frozen=True)

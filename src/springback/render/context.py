@@ -11,10 +11,10 @@ from typing import Any, TypedDict, cast
 import pandas as pd
 
 from springback.charts import Chart, palette
-from springback.findings import Finding, Findings, FlagLike
+from springback.findings import Finding, Findings
 from springback.i18n.language import LocaleFormat, translations
 from springback.metrics.results import Estimate, ParticipantResults
-from springback.model import EDITIONS, Edition, ParticipantData
+from springback.model import EDITIONS, Edition, Flag, ParticipantData
 from springback.render import phrases
 from springback.settings import Referral, StudySettings
 
@@ -113,7 +113,7 @@ class BookletContext(TypedDict):
     questionnaires: list[QuestionnaireView]
     quality: dict[str, Any]
     set_aside: list[dict[str, Any]]
-    flags: list[FlagLike]
+    flags: list[Flag]
     refer: bool
     review_state: str
     referral: Referral | None
@@ -124,6 +124,8 @@ class BookletContext(TypedDict):
     findings: dict[str, Finding]
     refer_reasons: list[str]
     """The help banner's reason per refer flag, in the rule's own words (phrases.refer_sentence)."""
+    flag_words: dict[str, tuple[str, str]]
+    """Rule name -> (the rule, what triggered it) in the booklet's language (phrases)."""
     """Topic -> the finding every sentence about it phrases (springback.findings)."""
     summary: list[Finding]
     """The findings this edition's summary states, most important first."""
@@ -139,7 +141,7 @@ def build_context(
     data: ParticipantData,
     results: ParticipantResults,
     findings: Findings,
-    flags: list[FlagLike],
+    flags: list[Flag],
     review_state: str,
     charts: dict[str, Chart],
     edition: Edition,
@@ -200,6 +202,7 @@ def build_context(
         section_charts={name: _shown(SECTION_CHARTS[edition].get(name, ()), charts)
                         for name in sections},
         findings=by_topic,
+        flag_words=_flag_words(own_flags, settings, language),
         refer_reasons=phrases.refer_sentences(
             own_flags, settings, language, translations(language),
             LocaleFormat(language, settings.study.timezone).date_long),
@@ -209,6 +212,20 @@ def build_context(
         paper=settings.booklet.paper,
         palette_css=palette.css_variables(),
     )
+
+
+def _flag_words(flags: list[Flag], settings: StudySettings,
+                language: str) -> dict[str, tuple[str, str]]:
+    """Each flag's rule and trigger in the booklet's language (the review table's words)."""
+    fmt = LocaleFormat(language, settings.study.timezone)
+    tr = translations(language)
+
+    def number(x: float) -> str:
+        return fmt.number(x, 0 if float(x).is_integer() else 1)
+
+    return {f.rule: (phrases.rule_words(f, settings, language, tr, number),
+                     phrases.flag_detail(f, settings, language, tr, fmt.date_long, number))
+            for f in flags}
 
 
 SVG_NS = "http://www.w3.org/2000/svg"

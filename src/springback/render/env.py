@@ -114,6 +114,7 @@ def make_environment(
     env.filters["share_words"] = lambda x: phrases.share_of_prompts(float(x), catalogue)
     env.filters["duration_words"] = lambda x: phrases.duration(float(x), catalogue)
     env.filters["count_words"] = lambda x: phrases.count(int(x), catalogue)
+    env.filters["number_words"] = lambda x: phrases.number_word(int(x), catalogue)
     env.filters["keep_together"] = phrases.keep_together
     # The CSS holds only base64 text and fixed rules, so it is safe to mark as markup.
     env.globals["font_face_css"] = lambda: markupsafe.Markup(font_face_css())

@@ -34,6 +34,7 @@ from springback.archive.audit import append, read_entries, save_note, subject
 from springback.archive.verify import expected_manifests, read_json
 from springback.errors import ArchiveError, ReviewError
 from springback.files import BuildLock, project_dirs
+from springback.model import Flag
 
 ACTION_COLUMNS = ("participant", "action", "reason", "since", "booklet", "rule")
 """Columns of out/actions.csv. The build that first saw an action is known only once the build
@@ -108,25 +109,23 @@ def _candidates(pid: str, rec: dict[str, Any],
                 silence: dict[str, int] | None = None) -> list[dict[str, str]]:
     """The actions one record asks for, before the log says which are done."""
     silence = silence or {}
-    flags = [f for f in rec.get("flags", []) if isinstance(f, dict)]
-    holds = [f for f in flags if f.get("action") == "hold"]
+    flags = [Flag.from_row(f, pid) for f in rec.get("flags", []) if isinstance(f, dict)]
+    holds = [f for f in flags if f.action == "hold"]
     has_booklet = bool(rec.get("files")) and rec.get("status", "built") in ("built", "unchanged")
     out: list[dict[str, str]] = []
     if holds and has_booklet:
         first = holds[0]
-        out.append({"kind": "review", "rule": str(first.get("rule", "")),
-                    "when": str(first.get("when", "") or ""),
-                    "reason": "; ".join(f"{f.get('rule')}: {f.get('detail', '')}" for f in holds),
+        out.append({"kind": "review", "rule": first.rule, "when": first.when,
+                    "reason": "; ".join(f"{f.rule}: {f.detail}" for f in holds),
                     "booklet": _booklet(rec, True)})
     for f in flags:
-        kind = str(f.get("action", ""))
+        kind = f.action
         if kind == "hold" and has_booklet:
             continue
         if kind not in ("refer", "hold"):
             continue
-        out.append({"kind": kind, "rule": str(f.get("rule", "")),
-                    "when": str(f.get("when", "") or ""),
-                    "reason": f"{f.get('rule')}: {f.get('detail', '')}",
+        out.append({"kind": kind, "rule": f.rule, "when": f.when,
+                    "reason": f"{f.rule}: {f.detail}",
                     "booklet": _booklet(rec, bool(holds))})
     for c in out:
         c["since"] = _applied(c["rule"], c["when"], silence)
@@ -204,7 +203,7 @@ def open_actions(project: Path, people: dict[str, dict[str, Any]] | None = None,
                  today: str = "", silence: dict[str, int] | None = None) -> list[Action]:
     """Every action still open: of this build's records (`people`, with this build's
     `silence_rules`), else of the latest build."""
-    from springback.review.gate import HELD, review_state
+    from springback.review.gate import HELD, manifest_flags, review_state
 
     archive = project_dirs(project).archive
     try:
@@ -227,7 +226,7 @@ def open_actions(project: Path, people: dict[str, dict[str, Any]] | None = None,
                 continue
             fp = str(rec.get("fingerprint", ""))
             if c["kind"] == "review" and review_state(
-                    project, pid, fp, list(rec.get("flags", []))) != HELD:
+                    project, pid, fp, manifest_flags(pid, rec)) != HELD:
                 continue
             out.append(Action(pid, c["kind"], c["rule"], c["reason"], ep.since, c["booklet"],
                               ep.first_build, c["when"], fp, str(rec.get("version", ""))))

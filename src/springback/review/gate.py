@@ -2,10 +2,11 @@
 
 Public functions:
 
-    review_state(project: Path, participant: str, fingerprint: str, flags: list[Flag | dict])
+    review_state(project: Path, participant: str, fingerprint: str, flags: list[Flag])
         -> 'not needed' | 'held' | 'approved' | 'rejected'
     review_decisions(archive: Path) -> dict[(participant, fingerprint), Decision]  # one read
     decided_state(flags, decision: str) -> str       # the state from a decision already read
+    manifest_flags(participant: str, record: dict) -> list[Flag]   # a manifest record's flags
     list_held(project: Path) -> list[HeldBooklet]    # latest build's booklets with a hold
     approve(project: Path, participant: str, by: str, note: str = "") -> dict   # the log entry
     reject(project: Path, participant: str, by: str, note: str = "") -> dict
@@ -25,6 +26,7 @@ from __future__ import annotations
 import csv
 import getpass
 import io
+from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -33,6 +35,7 @@ from springback.archive.audit import append, known_subjects, read_entries, save_
 from springback.archive.manifest import trusted_manifest
 from springback.errors import ArchiveError, DataError, Problem, ReviewError
 from springback.files import BuildLock, atomic_write_bytes, project_dirs, sha256_file, staging_dir
+from springback.model import Flag
 
 NOT_NEEDED, HELD, APPROVED, REJECTED = "not needed", "held", "approved", "rejected"
 DISPATCH_COLUMNS = ("participant", "files", "version", "approved_by")
@@ -73,12 +76,13 @@ class ReleaseReport:
     withheld: tuple[tuple[str, str], ...]
 
 
-def _action(flag: Any) -> str:
-    return str(flag["action"] if isinstance(flag, dict) else flag.action)
+def manifest_flags(participant: str, record: dict[str, Any]) -> list[Flag]:
+    """The flags of a manifest's participant record (rows of `Flag.to_row`)."""
+    return [Flag.from_row(row, participant) for row in record.get("flags", [])]
 
 
-def _has_hold(flags: list[Any]) -> bool:
-    return any(_action(f) == "hold" for f in flags)
+def _has_hold(flags: Iterable[Flag]) -> bool:
+    return any(f.action == "hold" for f in flags)
 
 
 def review_decisions(archive: Path) -> dict[tuple[str, str], Decision]:
@@ -108,13 +112,14 @@ def _decision(archive: Path, participant: str, fingerprint: str) -> Decision:
     return review_decisions(archive).get((participant, fingerprint), Decision(HELD))
 
 
-def decided_state(flags: list[Any], decision: str) -> str:
+def decided_state(flags: Iterable[Flag], decision: str) -> str:
     """The booklet's review state from its flags and the decision on its version
     ('held' when undecided): 'not needed' without a hold flag."""
     return decision if _has_hold(flags) else NOT_NEEDED
 
 
-def review_state(project: Path, participant: str, fingerprint: str, flags: list[Any]) -> str:
+def review_state(project: Path, participant: str, fingerprint: str,
+                 flags: Iterable[Flag]) -> str:
     """The booklet's review state: decided by the latest decision for exactly this version."""
     if not _has_hold(flags):
         return NOT_NEEDED
@@ -128,9 +133,8 @@ def _current(project: Path) -> dict[str, Any]:
     return manifest
 
 
-def _reasons(record: dict[str, Any]) -> tuple[str, ...]:
-    return tuple(f"{f.get('rule')}: {f.get('detail', '')}" for f in record.get("flags", [])
-                 if f.get("action") == "hold")
+def _reasons(flags: list[Flag]) -> tuple[str, ...]:
+    return tuple(f"{f.rule}: {f.detail}" for f in flags if f.action == "hold")
 
 
 def list_held(project: Path) -> list[HeldBooklet]:
@@ -139,12 +143,13 @@ def list_held(project: Path) -> list[HeldBooklet]:
     decisions = review_decisions(project_dirs(project).archive)
     out = []
     for pid, rec in sorted(manifest.get("participants", {}).items()):
-        if not _has_hold(rec.get("flags", [])) or not rec.get("files"):
+        flags = manifest_flags(pid, rec)
+        if not _has_hold(flags) or not rec.get("files"):
             continue
         fp = str(rec.get("fingerprint", ""))
         d = decisions.get((pid, fp), Decision(HELD))
         out.append(HeldBooklet(pid, str(manifest["build"]), str(rec.get("version", "")), fp,
-                               d.state, _reasons(rec), d.by, d.time, d.note))
+                               d.state, _reasons(flags), d.by, d.time, d.note))
     return out
 
 
@@ -157,7 +162,7 @@ def _decide(project: Path, participant: str, by: str, note: str, decision: str) 
     if rec is None:
         raise ReviewError(f"participant '{participant}' is not in the latest build ({build}); "
                           "check the id, or build first")
-    if not _has_hold(rec.get("flags", [])):
+    if not _has_hold(manifest_flags(participant, rec)):
         raise ReviewError(f"the booklet of '{participant}' in build {build} is not held (no "
                           "hold rule matched); there is nothing to review")
     if not rec.get("files"):
@@ -190,7 +195,7 @@ def release_gate(archive: Path, pid: str, rec: dict[str, Any]) -> tuple[str, str
         return ("no feedback wanted", "")
     if rec.get("status", "built") not in ("built", "unchanged") or not rec.get("files"):
         return (f"no booklet ({rec.get('status', 'no files')})", "")
-    if not _has_hold(rec.get("flags", [])):
+    if not _has_hold(manifest_flags(pid, rec)):
         return ("", "")
     d = _decision(archive, pid, str(rec.get("fingerprint", "")))
     if d.state == APPROVED:

@@ -8,6 +8,9 @@ Public functions (pure; no file access):
     referral_problems(study: Study) -> list[Problem]
     flags_rows(flags: list[Flag]) -> list[dict]        # rows of out/flags.csv
 
+`Flag` is the one record of a flag (defined in `springback.model`, so the findings stage
+before this one reads it too); `Flag.to_row` / `Flag.from_row` are its one row conversion.
+
 Rule sources and what "hit" means (one flag per rule and participant, for the latest hit):
 
 - questionnaire: a total score at or above `at_least`, or at or below `at_most`;
@@ -24,50 +27,28 @@ rule: change points on study days in that window). It has no effect on silence r
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any, Literal
+from typing import Any
 
 import pandas as pd
 
 from springback.errors import Problem, error, warning
 from springback.metrics.results import ParticipantResults
-from springback.model import ParticipantData, Study
+from springback.model import Flag, ParticipantData, Study
 from springback.settings import SETTINGS_FILE, SafetyRule, StudySettings
 
-FLAG_COLUMNS = ("participant", "rule", "action", "value", "when")
 EXAMPLE_NUMBER = "+99 "
 """Every phone number in the example study starts like this (no such country code exists)."""
 EXAMPLE_MARK = "(fictional)"
 REFERRAL_FIELDS = ("questions", "feeling_worse", "self_harm", "emergency")
 
 
-@dataclass(frozen=True)
-class Flag:
-    """One safety rule that one participant's data crossed."""
-
-    participant: str
-    rule: str
-    action: Literal["refer", "hold"]
-    value: float | None
-    """The triggering value (score, rating, shift size, days without answers)."""
-    when: str
-    """Local date (YYYY-MM-DD) of the triggering data; '' when there is none."""
-    detail: str
-    """Plain words: what was found, for the therapist edition and the overview."""
-
-    def row(self) -> dict[str, Any]:
-        """The flag as a row of out/flags.csv (columns `FLAG_CSV_COLUMNS`)."""
-        return {k: getattr(self, k) for k in FLAG_CSV_COLUMNS}
-
-    def record(self) -> dict[str, Any]:
-        """The flag as the archive's manifest keeps it (the participant is the record's key)."""
-        return {k: getattr(self, k) for k in FLAG_RECORD_KEYS}
-
-
 FLAG_CSV_COLUMNS = ("participant", "rule", "action", "value", "when")
 """Columns of out/flags.csv, in order."""
 FLAG_RECORD_KEYS = ("rule", "action", "value", "when", "detail")
-"""Keys of a flag in the manifest and in the outcome a build carries."""
+"""Keys of a flag's row in an archived build's manifest (`Flag.from_row(row, participant)`
+reads it back)."""
+__all__ = ["FLAG_CSV_COLUMNS", "FLAG_RECORD_KEYS", "Flag", "evaluate", "flags_rows",
+           "referral_problems", "study_end"]
 
 
 def _local(times: pd.Series, timezone: str) -> pd.Series:
@@ -239,7 +220,7 @@ def evaluate(data: ParticipantData, results: ParticipantResults, settings: Study
 
 def flags_rows(flags: list[Flag]) -> list[dict[str, Any]]:
     """Rows of out/flags.csv, one per flag."""
-    return [f.row() for f in flags]
+    return [f.to_row(FLAG_CSV_COLUMNS) for f in flags]
 
 
 def referral_problems(study: Study) -> list[Problem]:
