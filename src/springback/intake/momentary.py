@@ -18,16 +18,10 @@ from springback.intake.numbers import (
     sorted_periods,
     time_columns,
 )
+from springback.intake.offsets import far_zone_warnings, offset_warnings
 from springback.intake.problems import Sink, column_name, rows_list
 from springback.intake.readers import Table, as_number, as_text, missing_mask
-from springback.intake.times import (
-    FAR_ZONE_HOURS,
-    ISO_EXAMPLE,
-    Times,
-    far_zones,
-    parse_times,
-    zone_texts,
-)
+from springback.intake.times import ISO_EXAMPLE, parse_times, zone_texts
 from springback.settings import StudySettings
 
 TIME_PROBLEMS = {
@@ -287,7 +281,10 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
                           fix=_time_fix(code), code=code)
             bad |= hit
     stamp, stamp_gone = times["timestamp"]
-    _far_zones(where, stamp, given & ~bad, participant, rows, settings, sink)
+    zone = settings.study.timezone
+    far_zone_warnings(where, stamp, given & ~bad, participant, rows, zone, sink)
+    offset_warnings(where, [(getattr(cols, k), t) for k, (t, _) in times.items()],
+                    given & ~bad, participant, rows, zone, sink)
     answer = stamp.utc
     if "answered" in times:
         answer = times["answered"][0].utc.fillna(stamp.utc)
@@ -331,24 +328,6 @@ def _check_rows(where: str, raw: pd.DataFrame, settings: StudySettings,
     frame["early"] = (frame["answered"] & ((frame["scheduled"] - frame["time"]) > EARLY))
     frame = frame.drop(columns="_key")
     return Prompts(frame, from_rows, "scheduled" in raw.columns)
-
-
-def _far_zones(where: str, stamp: Times, usable: np.ndarray, participant: pd.Series,
-               rows: np.ndarray, settings: StudySettings, sink: Sink) -> None:
-    """Warn once per participant about answers read in a zone far from the study's."""
-    zone = settings.study.timezone
-    own = stamp.zone.to_numpy(dtype=object) != zone
-    if not (own & usable).any():
-        return
-    far = usable & own & far_zones(stamp.utc, stamp.zone, zone)
-    for person, hit in pd.Series(rows[far]).groupby(participant[far].to_numpy()):
-        n, first = len(hit), int(hit.min())
-        shown = stamp.zone.to_numpy(dtype=object)[rows == first][0]
-        sink.add(warning(where, f"{n} time{'s' if n > 1 else ''} of participant '{person}' "
-                         f"carry a time zone {FAR_ZONE_HOURS} or more hours from the study's "
-                         f"{zone} (row {first}: {shown}); they are read in their own zone",
-                         row=first, fix="check the device's time zone, or the study's "
-                         "timezone under [study]", code="zone-far-off"))
 
 
 def _expected(code: str, fmt: str | None) -> str:

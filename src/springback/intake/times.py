@@ -14,6 +14,8 @@ _ISO = re.compile(
     r"^\s*(\d{4}-\d{1,2}-\d{1,2}(?:[T ]\d{1,2}:\d{2}(?::\d{2}(?:[.,]\d+)?)?)?)\s*(.*?)\s*$"
 )
 _OFFSET = re.compile(r"^(?:UTC|GMT)?\s*([+-])(\d{1,2})(?::?(\d{2}))?$")
+_TAIL = r"(Z|[+-]\d{2}(?::?\d{2})?)$"
+"""The UTC offset ending an ISO time ('Z', '+05:00', '+0500' or '+05')."""
 
 # Abbreviations that name one fixed offset (CEST is always UTC+2), so they are read as that
 # offset. Ambiguous ones (CST: US Central or China; IST: India, Ireland or Israel) are left
@@ -39,6 +41,9 @@ class Times:
     'ambiguous-time'."""
     zone: pd.Series
     """The zone each time was read in (its own, the row's, or the study's)."""
+    offset: pd.Series
+    """Minutes ahead of UTC of an offset written in the time itself ('+05:00', 'Z'); NaN
+    when the time has none (a naive time, a zone word such as JST, a zone column)."""
 
 
 @lru_cache(maxsize=512)
@@ -83,10 +88,12 @@ def parse_times(values: pd.Series, *, study_zone: str, row_zones: pd.Series | No
     problem = pd.Series("", index=index, dtype=object)
     own_zone = pd.Series("", index=index, dtype=object)
     aware = pd.Series(pd.NaT, index=index, dtype="datetime64[ns, UTC]")
+    offset = pd.Series(np.nan, index=index, dtype=float)
     if values.dtype.kind == "M":
         if isinstance(values.dtype, pd.DatetimeTZDtype):
             utc = values.dt.tz_convert("UTC").astype("datetime64[ns, UTC]")
-            return Times(utc, problem, pd.Series(str(values.dt.tz), index=index, dtype=object))
+            return Times(utc, problem, pd.Series(str(values.dt.tz), index=index, dtype=object),
+                         offset)
         naive = values.astype("datetime64[ns]")
     else:
         if not isinstance(values.dtype, pd.StringDtype):
@@ -98,10 +105,15 @@ def parse_times(values: pd.Series, *, study_zone: str, row_zones: pd.Series | No
             if has_zone:
                 utc = parsed.astype("datetime64[ns, UTC]")
                 problem[parsed.isna() & ~gone] = "bad-time"
-                return Times(utc, problem, own_zone)
+                if "%z" in fmt:  # the clock as written, less the instant: the offset
+                    clock = pd.to_datetime(text, format=fmt.replace("%z", ""), exact=False,
+                                           errors="coerce").astype("datetime64[ns]")
+                    offset = (clock - utc.dt.tz_localize(None)).dt.total_seconds() / 60
+                return Times(utc, problem, own_zone, offset.astype(float))
             naive = parsed.astype("datetime64[ns]")
         else:
             naive, own_zone, aware = _iso(text.fillna(""))
+            offset = _written_offsets(text.fillna(""), own_zone, aware)
         problem[naive.isna() & aware.isna() & ~gone] = "bad-time"
     # numpy's `where` on object arrays, so every row refers to one string object per zone
     # (pandas' `where` made a new string for every row: about 140 MiB a million rows).
@@ -136,7 +148,20 @@ def parse_times(values: pd.Series, *, study_zone: str, row_zones: pd.Series | No
     utc = utc.where(aware.isna(), aware)
     bad = problem != ""
     utc[bad] = pd.NaT
-    return Times(utc, problem, zone)
+    return Times(utc, problem, zone, offset.where(~bad))
+
+
+def _written_offsets(text: pd.Series, words: pd.Series, aware: pd.Series) -> pd.Series:
+    """Minutes of the offset each ISO time ends with: after the clock ('...T09:00+05:00') or
+    as its zone text ('... 09:00 +05:00', 'GMT+5'); NaN for naive times and zone words."""
+    out = pd.Series(np.nan, index=text.index, dtype=float)
+    tails = text.str.strip().str.extract(_TAIL)[0].where(aware.notna())
+    tails = tails.where(tails.notna(), words.where(words != ""))
+    for token in pd.unique(tails.dropna()):
+        spec = zone_of(str(token)) if token == "Z" or _OFFSET.match(str(token)) else None
+        if isinstance(spec, int):
+            out[(tails == token).to_numpy()] = float(spec)
+    return out
 
 
 def _iso(text: pd.Series) -> tuple[pd.Series, pd.Series, pd.Series]:
