@@ -139,3 +139,26 @@ def test_phone_numbers_never_break_across_lines(built_example: Path) -> None:
         text = "\n".join(lines)
         seen += sum(n in text for n in numbers)
     assert seen >= 10
+
+
+def test_page_one_holds_the_summary_the_help_strip_and_the_mood_chart(built_example: Path) -> None:
+    """Check on the PDF text of every participant edition that page 1 holds the title, the
+    summary, the help strip (its emergency number) and the mood chart with its caption
+    (Bartels et al. 2023, Heliyon 9:e20084: a short summary first, every graph explained)."""
+    import re
+
+    import pypdf
+
+    checked = 0
+    for path in sorted((built_example / "out" / "booklets").glob("*/participant.pdf")):
+        html = path.with_suffix(".html").read_text(encoding="utf-8")
+        summary = html[html.index('id="s-summary"'):]
+        summary = summary[:summary.index("</section>")]
+        caption = re.search(r"<figcaption><strong>(.*?)</strong>", summary)
+        assert caption is not None, f"{path}: the summary has no chart"
+        page = " ".join(pypdf.PdfReader(path).pages[0].extract_text()
+                        .replace("\u00a0", " ").split())
+        assert " ".join(caption.group(1).split()) in page, f"{path}: the mood chart is not on page 1"
+        assert "+99 999" in page, f"{path}: the help strip is not on page 1"
+        checked += 1
+    assert checked >= 8
