@@ -58,6 +58,43 @@ def time_windows(hours: np.ndarray, share: float) -> tuple[np.ndarray, np.ndarra
     return starts, ends
 
 
+def period_runs(periods: np.ndarray) -> list[tuple[int, int]]:
+    """(start, stop) of each run of consecutive answers with the same measurement period."""
+    if len(periods) == 0:
+        return []
+    edges = np.concatenate([[0], np.flatnonzero(np.diff(periods) != 0) + 1, [len(periods)]])
+    return list(zip(edges[:-1].tolist(), edges[1:].tolist(), strict=True))
+
+
+def detrend_within(hours: np.ndarray, x: np.ndarray, periods: np.ndarray, method: str,
+                   kernel_sd_hours: float | None) -> np.ndarray:
+    """`detrend` applied to each measurement period on its own (one period: the same call)."""
+    runs = period_runs(periods)
+    if len(runs) <= 1:
+        return detrend(hours, x, method, kernel_sd_hours)
+    return np.concatenate([detrend(hours[a:b], x[a:b], method, kernel_sd_hours)
+                           for a, b in runs], axis=0)
+
+
+def period_windows(hours: np.ndarray, periods: np.ndarray,
+                   share: float) -> tuple[np.ndarray, np.ndarray]:
+    """`time_windows` within each measurement period, in time order, as indices of the whole.
+
+    Each window covers `share` of its own period and holds answers of that period only.
+    """
+    runs = period_runs(periods)
+    if len(runs) <= 1:
+        return time_windows(hours, share)
+    parts = [time_windows(hours[a:b], share) for a, b in runs]
+    return (np.concatenate([s + a for (s, _e), (a, _b) in zip(parts, runs, strict=True)]),
+            np.concatenate([e + a for (_s, e), (a, _b) in zip(parts, runs, strict=True)]))
+
+
+def within_periods(admissible: np.ndarray, periods: np.ndarray) -> np.ndarray:
+    """The admissible pairs less any pair whose two answers fall in different periods."""
+    return admissible & (np.diff(periods) == 0)
+
+
 def count_windows(n: int, width: int) -> tuple[np.ndarray, np.ndarray]:
     """Windows of `width` consecutive answers, step 1 (Dakos et al. 2012)."""
     ends = np.arange(width - 1, n)

@@ -5,13 +5,14 @@ in time series illustrated using simulated ecological data", PLoS ONE 7:e41010; 
 2009, Nature 461:53-59; van de Leemput et al. 2014, PNAS 111:87-92 for the item correlation):
 
 1. Remove the slow trend (Gaussian kernel on real time with SD `bandwidth_days`, a straight
-   line, or nothing).
-2. Rolling windows: each covers `window` of the observed period and ends at an answer; a window
-   with fewer than `min_window_prompts` answers (or fewer than 3 consecutive pairs inside it)
-   is skipped and counted.
+   line, or nothing), within each measurement period on its own.
+2. Rolling windows: each covers `window` of its measurement period, ends at an answer and holds
+   answers of that period only; a window with fewer than `min_window_prompts` answers (or
+   fewer than 3 consecutive pairs inside it) is skipped and counted.
 3. In each window: lag-1 correlation over admissible pairs (the carry-over estimator), variance
    and SD, skewness, mean correlation between the composite's items.
-4. Trend: Kendall's tau-b of each indicator against window order. With many windows, the test
+4. Trend: Kendall's tau-b of each indicator against window order, over the windows of all
+   periods in time order (see Periods below). With many windows, the test
    uses at most TREND_POINTS evenly spaced window ends (design choice: neighbouring windows
    share almost all answers, and it keeps 1000 surrogates affordable).
 5. Significance by surrogates only (the textbook Kendall p-value is invalid for overlapping
@@ -26,6 +27,19 @@ in time series illustrated using simulated ecological data", PLoS ONE 7:e41010; 
 6. Sensitivity: the same test over every window share x bandwidth in the settings.
    `warning_robustness` is the share of those settings in which carry-over or variance rose
    significantly (p < alpha); `warning_robustness_inertia` and `_variance` give each alone.
+
+Periods. Nothing spans the gap between two measurement periods (Series.periods): each
+period is detrended on its own and every window lies inside one period, so a change of level
+between periods enters no window and cannot make variance or carry-over "rise". The trend is
+one test over the windows of all periods in time order, not one per period: the question is
+the one the field asks of a single series, whether the indicators rose over the person's
+measured time (Dakos et al. 2012; Wichers et al. 2016, "Critical slowing down as a
+personalized early warning signal for depression", Psychother Psychosom 85:114-116), and
+periods of a study are usually too short for a trend test each (Bringmann et al. 2013: six
+days). A period whose windows carry more variance or carry-over than an earlier one's is a
+rise; a period's level is not. The surrogates are one stationary null for the whole measured
+time: AR(1) and phase surrogates of the concatenated within-period residuals (mean zero in each
+period), cut by the same windows, so no surrogate window spans a gap either.
 
 Minimum data: windows of at least `min_window_prompts` answers (default 20) and at least
 MIN_TREND_WINDOWS usable windows; both are design choices, not published rules.
@@ -101,18 +115,19 @@ def _detrended(series: Series, method: str, bandwidth: float | None, n_sur: int,
                seed: int, pid: str) -> _Detrended:
     """Detrend the series and draw its AR(1) and phase surrogates (one seeded stream each)."""
     kernel = bandwidth * 24.0 if bandwidth else None
-    resid = rl.detrend(series.hours, series.value, method, kernel)
+    resid = rl.detrend_within(series.hours, series.value, series.periods, method, kernel)
     rng = participant_rng(seed, pid, f"warnings/{method}/{bandwidth}")
     n_ar = n_sur // 2
     sur = np.vstack([ar1_surrogates(resid, n_ar, rng), phase_surrogates(resid, n_sur - n_ar, rng)])
     kind = np.repeat([0, 1], [n_ar, n_sur - n_ar])
-    return _Detrended(bandwidth, resid, rl.prefix_sums(resid, series.admissible, True),
-                      rl.prefix_sums(sur.T, series.admissible, dtype=np.float32), kind)
+    pairs = rl.within_periods(series.admissible, series.periods)
+    return _Detrended(bandwidth, resid, rl.prefix_sums(resid, pairs, True),
+                      rl.prefix_sums(sur.T, pairs, dtype=np.float32), kind)
 
 
 def _cell(series: Series, det: _Detrended, share: float, min_prompts: int) -> _Cell:
     """Run the rolling indicators and their surrogate trend test for one window share."""
-    starts, ends = rl.time_windows(series.hours, share)
+    starts, ends = rl.period_windows(series.hours, series.periods, share)
     if len(ends) == 0:
         return _Cell(share, det.bandwidth, 0, 0, reason="too few answers for rolling windows")
     obs = {k: v[:, 0] if v.ndim == 2 else v
@@ -127,11 +142,15 @@ def _cell(series: Series, det: _Detrended, share: float, min_prompts: int) -> _C
                             f"{MIN_TREND_WINDOWS}")
     tested = used[_thin(len(used))]
     sur = rl.window_stats(det.surrogates, starts[tested], ends[tested])
-    tau, p, p_kind = {}, {}, {}
-    for name in ("ar1", "variance", "skewness"):
-        tau[name] = float(kendall_tau_columns(obs[name][tested])[0])
-    for name in TESTED:
-        null = kendall_tau_columns(sur[name])
+    p: dict[str, float] = {}
+    p_kind: dict[str, tuple[float, float]] = {}
+    # Kendall's tau is column by column: one call over all columns gives the same numbers.
+    shown = ("ar1", "variance", "skewness")
+    observed = kendall_tau_columns(np.column_stack([obs[name][tested] for name in shown]))
+    tau = {name: float(t) for name, t in zip(shown, observed, strict=True)}
+    nulls = np.split(kendall_tau_columns(np.hstack([sur[name] for name in TESTED])),
+                     len(TESTED))
+    for name, null in zip(TESTED, nulls, strict=True):
         p_kind[name] = cast(tuple[float, float],
                             tuple(surrogate_pvalue(tau[name], null[det.kind == k]) for k in (0, 1)))
         p[name] = surrogate_pvalue(tau[name], null)
@@ -148,8 +167,9 @@ def _crosscorr(series: Series, method: str, bandwidth: float | None, cell: _Cell
     if gaps.any():
         # A skipped item in one answer gets its own mean, which adds no correlation.
         items[gaps] = np.take(np.nanmean(items, axis=0), np.nonzero(gaps)[1])
-    resid = rl.detrend(series.hours, items, method, bandwidth * 24.0 if bandwidth else None)
-    starts, ends = rl.time_windows(series.hours, cell.share)
+    resid = rl.detrend_within(series.hours, items, series.periods, method,
+                              bandwidth * 24.0 if bandwidth else None)
+    starts, ends = rl.period_windows(series.hours, series.periods, cell.share)
     rolling = rl.window_crosscorr(resid, starts[cell.used], ends[cell.used])[:, 0]
     if len(cell.tested) == 0:
         return rolling, math.nan, math.nan, cell.reason
@@ -213,7 +233,7 @@ def _rolling_table(series: Series, cell: _Cell, crosscorr: np.ndarray) -> pd.Dat
     used, obs = cell.used, cell.observed
     if len(used) == 0:
         return _empty_tables()["rolling"]
-    ends = rl.time_windows(series.hours, cell.share)[1][used]
+    ends = rl.period_windows(series.hours, series.periods, cell.share)[1][used]
     return pd.DataFrame({
         "local_time": series.local_time.iloc[ends].reset_index(drop=True),
         "ar1": obs["ar1"][used], "variance": obs["variance"][used],
