@@ -144,10 +144,12 @@ def render_booklets(
     env = render.make_environment(job.project / "templates", language,
                                   timezone=settings.study.timezone)
     gettext = translations(language).gettext
-    chart_set = charts.make_charts(data, results, settings, language, gettext, found)
     files: dict[str, bytes] = {}
     folder = f"{BOOKLETS}/{data.participant}"
     for edition in editions:
+        # Each edition's charts speak in its voice (to the participant, or about them).
+        chart_set = charts.make_charts(data, results, settings, language, gettext, found,
+                                       edition)
         context = render.build_context(
             settings=settings, data=data, results=results, findings=found, flags=flags,
             review_state=state,

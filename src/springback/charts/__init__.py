@@ -16,7 +16,7 @@ from springback.charts.mood import mood_chart
 from springback.charts.questionnaires import questionnaire_charts
 from springback.findings import Findings
 from springback.metrics.results import ParticipantResults
-from springback.model import ParticipantData
+from springback.model import Edition, ParticipantData
 from springback.settings import StudySettings
 
 __all__ = ["Chart", "make_charts"]
@@ -29,9 +29,11 @@ def make_charts(
     language: str,
     gettext: Callable[[str], str],
     findings: Findings | None = None,
+    edition: Edition = "participant",
 ) -> dict[str, Chart]:
-    """Build every chart that has data, keyed 'mood', 'calendar', ..., 'questionnaire_<q>'."""
-    ctx = Inputs(data, results, settings, language, checked_gettext(gettext), findings)
+    """Build every chart that has data, keyed 'mood', 'calendar', ..., 'questionnaire_<q>',
+    with its words in the edition's voice."""
+    ctx = Inputs(data, results, settings, language, checked_gettext(gettext), findings, edition)
     charts: dict[str, Chart] = {}
     for build in (mood_chart, calendar_chart, recovery_chart, warnings_chart):
         chart = build(ctx)

@@ -66,7 +66,7 @@ def calendar_chart(ctx: Inputs) -> Chart | None:
     data = alt.Data(values=records(cells.assign(weekday=[day_names[i] for i in cells["wd"]])))
     spec = alt.layer(*layers, data=data).properties(width=7 * cell_w,
                                                     height=cell_h * len(rows))
-    title = _("Which prompts you answered")
+    title = ctx.voice(_("Which prompts you answered"), _("Which prompts were answered"))
     description = " ".join([_calendar_description(ctx, cells),
                             *(g.sentence for g in gaps)])
     table = _calendar_table(ctx, cells, day_names, [g for g in gaps if g.label in rows])
@@ -177,17 +177,25 @@ def _calendar_description(ctx: Inputs, cells: pd.DataFrame) -> str:
     if bool(cells["known"].all()):
         sent = int(cells["sent"].sum())
         full = int((cells["answered"] >= cells["sent"]).sum())
-        parts.append(_("You answered {answered} of {sent} prompts ({share}) over {days} "
-                       "days.").format(answered=answered, sent=sent, days=n_days,
-                                       share=ctx.percent(answered / sent if sent else 0.0)))
-        parts.append(_("On {full} of these days you answered every prompt.").format(full=full))
+        parts.append(ctx.voice(_("You answered {answered} of {sent} prompts ({share}) over "
+                                 "{days} days."),
+                               _("{answered} of {sent} prompts ({share}) were answered over "
+                                 "{days} days.")).format(
+            answered=answered, sent=sent, days=n_days,
+            share=ctx.percent(answered / sent if sent else 0.0)))
+        parts.append(ctx.voice(_("On {full} of these days you answered every prompt."),
+                               _("On {full} of these days every prompt was answered.")
+                               ).format(full=full))
     else:
-        parts.append(_("You answered {answered} prompts over {days} days.").format(
+        parts.append(ctx.voice(_("You answered {answered} prompts over {days} days."),
+                               _("{answered} prompts were answered over {days} days.")).format(
             answered=answered, days=n_days))
     if none:
-        parts.append(_("On {none} days you answered none.").format(none=none))
+        parts.append(ctx.voice(_("On {none} days you answered none."),
+                               _("On {none} days none was answered.")).format(none=none))
     else:
-        parts.append(_("You answered on every day."))
+        parts.append(ctx.voice(_("You answered on every day."),
+                               _("There were answers on every day.")))
     return " ".join(parts)
 
 

@@ -52,9 +52,12 @@ def recovery_chart(ctx: Inputs) -> Chart | None:
     def y(field: str) -> alt.Y:
         return alt.Y(field, type="quantitative",
                      scale=alt.Scale(domain=[bottom, top * 1.05], nice=False),
-                     axis=alt.Axis(title=_("Distance from your usual level (higher = worse)")))
+                     axis=alt.Axis(title=ctx.voice(
+                         _("Distance from your usual level (higher = worse)"),
+                         _("Distance from the usual level (higher = worse)"))))
 
-    usual = alt.Data(values=[{"y": 0.0, "label": _("your usual level")}])
+    usual = alt.Data(values=[{"y": 0.0, "label": ctx.voice(_("your usual level"),
+                                                           _("usual level"))}])
     layers: list[alt.Chart] = [
         alt.Chart(usual).mark_rule(color=CHART.axis, strokeWidth=1.5).encode(y=y("y")),
         alt.Chart(usual).mark_text(align="right", baseline="top", dy=4, color=CHART.ink)
@@ -89,9 +92,12 @@ def _recovery_description(ctx: Inputs, episodes: pd.DataFrame) -> str:
     _ = ctx.gettext
     n = len(episodes)
     n_back = int((~episodes["censored"].astype(bool)).sum())
-    parts = [_("We found {n} times when your mood dipped or an upsetting event happened. "
-               "In {back} of them your mood got back to your usual level before night or "
-               "the end of the study.").format(n=n, back=n_back)]
+    parts = [ctx.voice(_("We found {n} times when your mood dipped or an upsetting event "
+                         "happened. In {back} of them your mood got back to your usual level "
+                         "before night or the end of the study."),
+                       _("We found {n} times when the mood dipped or an upsetting event "
+                         "happened. In {back} of them the mood got back to its usual level "
+                         "before night or the end of the study.")).format(n=n, back=n_back)]
     # One time only, the one the booklet's sentence gives (the pooled half-life).
     half = ctx.estimate("recovery", "recovery_half_life_hours")
     if half.ok:
@@ -198,7 +204,8 @@ def _warnings_description(ctx: Inputs) -> str:
     parts = [
         _("Carry-over from one moment to the next {change} over the study.").format(
             change=direction_words(ctx, tau_i.value if tau_i.ok else None)),
-        _("The size of your ups and downs {change}.").format(
+        ctx.voice(_("The size of your ups and downs {change}."),
+                  _("The size of the ups and downs {change}.")).format(
             change=direction_words(ctx, tau_v.value if tau_v.ok else None)),
         _("The dashed lines show the overall trend. Such changes often come and go without "
           "any shift in mood, so they are not a prediction."),

@@ -17,7 +17,7 @@ import pandas as pd
 from springback.findings import Findings
 from springback.i18n.language import LOCALES, LocaleFormat
 from springback.metrics.results import Estimate, Family, ParticipantResults
-from springback.model import ParticipantData
+from springback.model import Edition, ParticipantData
 from springback.settings import StudySettings
 
 _MS_PER_DAY = 86_400_000
@@ -56,6 +56,13 @@ class Inputs:
     findings: Findings | None = None
     """The participant's findings: pictures show what the booklet's sentences say (a chart
     never draws a conclusion of its own)."""
+    edition: Edition = "participant"
+    """Whom the chart's words address: the participant ('your mood') or, in the therapist
+    edition, the clinician about the participant ('the mood')."""
+
+    def voice(self, participant: str, therapist: str) -> str:
+        """One wording of a text in the edition's voice (both already translated)."""
+        return therapist if self.edition == "therapist" else participant
 
     # -- where the numbers come from -----------------------------------------------------
     def family(self, name: str) -> Family | None:

@@ -64,12 +64,13 @@ def landscape_chart(ctx: Inputs) -> Chart | None:
                              baseline="bottom").encode(x=x, y=y, text=alt.Text(field="label")),
         ]
     spec = alt.layer(*layers).properties(width=PLOT_WIDTH, height=230)
-    title = _("Your mood landscape")
+    title = ctx.voice(_("Your mood landscape"), _("Mood landscape"))
     description = _landscape_description(ctx, valley_rows)
     return Chart("landscape", title, description,
                  to_svg(spec, "landscape", title, description, ctx.language),
                  _landscape_table(ctx, curve, valley_rows),
-                 _("How often your mood was at each level"))
+                 ctx.voice(_("How often your mood was at each level"),
+                           _("How often the mood was at each level")))
 
 
 def _valley_rows(ctx: Inputs, curve: pd.DataFrame, valleys: pd.DataFrame | None) -> pd.DataFrame:
@@ -87,20 +88,27 @@ def _landscape_description(ctx: Inputs, valley_rows: pd.DataFrame) -> str:
     _ = ctx.gettext
     xs = [ctx.num(v) for v in valley_rows["x"]]
     if len(xs) == 1:
-        text = _("Your mood seemed to have one resting place, near {x}.").format(x=xs[0])
+        text = ctx.voice(_("Your mood seemed to have one resting place, near {x}."),
+                         _("The mood seemed to have one resting place, near {x}.")).format(
+            x=xs[0])
     elif len(xs) == 2:
-        text = _("Your mood seemed to have two resting places, near {a} and near {b}.").format(
-            a=xs[0], b=xs[1])
+        text = ctx.voice(_("Your mood seemed to have two resting places, near {a} and near {b}."),
+                         _("The mood seemed to have two resting places, near {a} and near {b}.")
+                         ).format(a=xs[0], b=xs[1])
         switches = ctx.estimate("landscape", "switches")
         if switches.ok:
             text += " " + _("It moved from one to the other {n} times.").format(
                 n=int(cast(float, switches.value)))
     elif len(xs) > 2:
-        text = _("Your mood seemed to have several resting places, near {places}.").format(
-            places=", ".join(xs))
+        text = ctx.voice(_("Your mood seemed to have several resting places, near {places}."),
+                         _("The mood seemed to have several resting places, near {places}.")
+                         ).format(places=", ".join(xs))
     else:
-        text = _("Your mood had no clear resting place.")
-    return text + " " + _("The lower the line, the more often your mood was at that level.")
+        text = ctx.voice(_("Your mood had no clear resting place."),
+                         _("The mood had no clear resting place."))
+    return text + " " + ctx.voice(
+        _("The lower the line, the more often your mood was at that level."),
+        _("The lower the line, the more often the mood was at that level."))
 
 
 def _landscape_table(ctx: Inputs, curve: pd.DataFrame, valley_rows: pd.DataFrame
@@ -187,7 +195,7 @@ def load_chart(ctx: Inputs) -> Chart | None:
     ]
     plot = alt.layer(*layers).properties(width=PLOT_WIDTH, height=300)
     spec = alt.vconcat(key_spec(key, PLOT_WIDTH), plot, spacing=10)
-    title = _("Your mood and your daily load")
+    title = ctx.voice(_("Your mood and your daily load"), _("Mood and daily load"))
     description = _load_description(ctx, daily)
     table = pd.DataFrame({
         _("Date"): [ctx.date_short(d) for d in days],
@@ -212,12 +220,21 @@ def _load_description(ctx: Inputs, frame: pd.DataFrame) -> str:
     # Spearman's rank correlation: robust to a few extreme days (Spearman 1904).
     rho = frame["load"].corr(frame["mood"], method="spearman")
     if not math.isfinite(rho) or abs(rho) < 0.1:
-        text = _("Your mood was about the same on days with more and with less load.")
+        text = ctx.voice(
+            _("Your mood was about the same on days with more and with less load."),
+            _("The mood was about the same on days with more and with less load."))
     elif (rho > 0) == ctx.higher_is_worse:
-        text = _("On days with more load your mood tended to be worse (rank correlation "
-                 "{rho}).").format(rho=ctx.num(rho, 2))
+        text = ctx.voice(_("On days with more load your mood tended to be worse (rank "
+                           "correlation {rho})."),
+                         _("On days with more load the mood tended to be worse (rank "
+                           "correlation {rho}).")).format(rho=ctx.num(rho, 2))
     else:
-        text = _("On days with more load your mood tended to be better (rank correlation "
-                 "{rho}).").format(rho=ctx.num(rho, 2))
-    return text + " " + _("The line follows the study in time order, so a loop shows when "
-                          "your mood came back along a different path than it went.")
+        text = ctx.voice(_("On days with more load your mood tended to be better (rank "
+                           "correlation {rho})."),
+                         _("On days with more load the mood tended to be better (rank "
+                           "correlation {rho}).")).format(rho=ctx.num(rho, 2))
+    return text + " " + ctx.voice(
+        _("The line follows the study in time order, so a loop shows when your mood came back "
+          "along a different path than it went."),
+        _("The line follows the study in time order, so a loop shows when the mood came back "
+          "along a different path than it went."))

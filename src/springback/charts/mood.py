@@ -53,7 +53,8 @@ def mood_chart(ctx: Inputs) -> Chart | None:
     typical = (ctx.param("descriptives", "typical_low"), ctx.param("descriptives", "typical_high"))
     if all(v is not None and math.isfinite(v) for v in typical):
         layers += _band_layers(float(typical[0]), float(typical[1]), y)
-        key.append(KeyItem(_("your typical range"), CHART.band, kind="box", edge=CHART.neutral))
+        key.append(KeyItem(ctx.voice(_("your typical range"), _("typical range")), CHART.band,
+                           kind="box", edge=CHART.neutral))
     layers.append(
         alt.Chart(alt.Data(values=records(answers)))
         .mark_point(shape="circle", filled=False, size=22, color=CHART.neutral, strokeWidth=1)
@@ -88,7 +89,7 @@ def mood_chart(ctx: Inputs) -> Chart | None:
                         shape=shapes[k]) for k in kinds]
     plot = alt.layer(*layers).properties(width=PLOT_WIDTH, height=HEIGHT)
     spec = alt.vconcat(key_spec(key, PLOT_WIDTH), plot, spacing=10)
-    title = _("Your mood over time")
+    title = ctx.voice(_("Your mood over time"), _("Mood over time"))
     description = _mood_description(ctx, series, daily, n_events)
     table = _mood_table(ctx, daily, events)
     return Chart("mood", title, description, to_svg(spec, "mood", title, description,
@@ -209,22 +210,28 @@ def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
     _ = ctx.gettext
     values = series["value"].to_numpy(dtype=float)
     parts = _composite_sentences(ctx)
-    parts.append(_("Your answers ranged from {low} to {high}.").format(
+    parts.append(ctx.voice(_("Your answers ranged from {low} to {high}."),
+                           _("The answers ranged from {low} to {high}.")).format(
         low=ctx.num(values.min()), high=ctx.num(values.max())))
     lo, hi = ctx.param("descriptives", "typical_low"), ctx.param("descriptives", "typical_high")
     if lo is not None and hi is not None and math.isfinite(lo) and math.isfinite(hi):
-        parts.append(_("Half of them were between {low} and {high}: your typical range.").format(
-            low=ctx.num(lo), high=ctx.num(hi)))
+        parts.append(ctx.voice(_("Half of them were between {low} and {high}: your typical range."),
+                               _("Half of them were between {low} and {high}: the typical range.")
+                               ).format(low=ctx.num(lo), high=ctx.num(hi)))
     means = daily["mean"].to_numpy(dtype=float)
     if len(means) >= 14:
         first, last = float(np.mean(means[:7])), float(np.mean(means[-7:]))
-        parts.append(_("Your daily average was {first} in the first week and {last} in the "
-                       "last week.").format(first=ctx.num(first), last=ctx.num(last)))
+        parts.append(ctx.voice(_("Your daily average was {first} in the first week and {last} "
+                                 "in the last week."),
+                               _("The daily average was {first} in the first week and {last} "
+                                 "in the last week.")).format(first=ctx.num(first),
+                                                               last=ctx.num(last)))
     parts += _course_sentences(ctx)
     parts += _shift_sentences(ctx)
     if n_events:
-        parts.append(_("Events you reported are marked at the top ({n} in all).").format(
-            n=n_events))
+        parts.append(ctx.voice(_("Events you reported are marked at the top ({n} in all)."),
+                               _("Events the participant reported are marked at the top "
+                                 "({n} in all).")).format(n=n_events))
     return " ".join(parts)
 
 
@@ -243,14 +250,19 @@ def _composite_sentences(ctx: Inputs) -> list[str]:
 
     label = ctx.label[:1].upper() + ctx.label[1:]
     if not turned:
-        return [_("{label} is the average of your answers to {items}.").format(
+        return [ctx.voice(_("{label} is the average of your answers to {items}."),
+                          _("{label} is the average of the answers to {items}.")).format(
             label=label, items=names(straight))]
     if not straight:
-        return [_("{label} is the average of your answers to {items}, counted the other way "
-                  "round.").format(label=label, items=names(turned))]
-    return [_("{label} is the average of your answers to {items} and to {reversed}, counted "
-              "the other way round.").format(label=label, items=names(straight),
-                                             reversed=names(turned))]
+        return [ctx.voice(_("{label} is the average of your answers to {items}, counted the "
+                            "other way round."),
+                          _("{label} is the average of the answers to {items}, counted the "
+                            "other way round.")).format(label=label, items=names(turned))]
+    return [ctx.voice(_("{label} is the average of your answers to {items} and to {reversed}, "
+                        "counted the other way round."),
+                      _("{label} is the average of the answers to {items} and to {reversed}, "
+                        "counted the other way round.")).format(
+        label=label, items=names(straight), reversed=names(turned))]
 
 
 def _reversed(ctx: Inputs, item: str) -> bool:
@@ -267,16 +279,27 @@ def _course_sentences(ctx: Inputs) -> list[str]:
     worse = course.numbers.get("direction") == "worse"
     # The booklet's own sentences for these readings (templates/_findings.html).
     if course.reading == "gradual_change":
-        return [_("Over the study, your mood slowly got worse.") if worse
-                else _("Over the study, your mood slowly got better.")]
+        if worse:
+            return [ctx.voice(_("Over the study, your mood slowly got worse."),
+                              _("Over the study, the mood slowly got worse."))]
+        return [ctx.voice(_("Over the study, your mood slowly got better."),
+                          _("Over the study, the mood slowly got better."))]
     if course.reading == "passing_episode":
-        return [_("For a while your mood was worse than usual, and then it came back.")
-                if worse else
-                _("For a while your mood was better than usual, and then it came back.")]
+        if worse:
+            return [ctx.voice(_("For a while your mood was worse than usual, and then it came "
+                                "back."),
+                              _("For a while the mood was worse than usual, and then it came "
+                                "back."))]
+        return [ctx.voice(_("For a while your mood was better than usual, and then it came "
+                            "back."),
+                          _("For a while the mood was better than usual, and then it came "
+                            "back."))]
     if course.reading == "switching":
-        return [_("Your mood moved back and forth between two levels.")]
+        return [ctx.voice(_("Your mood moved back and forth between two levels."),
+                          _("The mood moved back and forth between two levels."))]
     if course.reading == "no_clear_change":
-        return [_("We found no clear lasting change in your mood during the study.")]
+        return [ctx.voice(_("We found no clear lasting change in your mood during the study."),
+                          _("We found no clear lasting change in the mood during the study."))]
     return []
 
 
@@ -301,17 +324,21 @@ def _shift_sentences(ctx: Inputs) -> list[str]:
     points = _shown_shifts(ctx)
     if points is None:
         return []
-    worse = _("Around {date} your mood seemed to shift to feeling worse.")
-    better = _("Around {date} your mood seemed to shift to feeling better.")
+    worse = ctx.voice(_("Around {date} your mood seemed to shift to feeling worse."),
+                      _("Around {date} the mood seemed to shift for the worse."))
+    better = ctx.voice(_("Around {date} your mood seemed to shift to feeling better."),
+                       _("Around {date} the mood seemed to shift for the better."))
     if len(points) <= 2:
         return [(worse if row.direction == "worse" else better).format(date=ctx.date(row.study_day))
                 for row in points.itertuples()]
     n_worse = int((points["direction"] == "worse").sum())
     largest = points.loc[cast(Any, points["size"].abs().idxmax())]
     return [
-        _("Your mood seemed to shift {n} times: {worse} times to feeling worse and {better} "
-          "times to feeling better.").format(n=len(points), worse=n_worse,
-                                             better=len(points) - n_worse),
+        ctx.voice(_("Your mood seemed to shift {n} times: {worse} times to feeling worse and "
+                    "{better} times to feeling better."),
+                  _("The mood seemed to shift {n} times: {worse} times for the worse and "
+                    "{better} times for the better.")).format(n=len(points), worse=n_worse,
+                                                               better=len(points) - n_worse),
         _("The largest shift was around {date}.").format(date=ctx.date(largest["study_day"])),
     ]
 

@@ -102,7 +102,7 @@ def _questionnaire_chart(ctx: Inputs, q: str) -> Chart | None:
     layers += _sudden_layers(ctx, q, scores, axis.x("t"), y("v"))
     spec = alt.layer(*layers).properties(width=PLOT_WIDTH - margin, height=220)
     key = f"questionnaire_{q}"
-    title = _("Your {name} scores").format(name=name)
+    title = ctx.voice(_("Your {name} scores"), _("Scores on the {name}")).format(name=name)
     description = _questionnaire_description(ctx, q, name, scores)
     table = pd.DataFrame({
         _("Date"): [ctx.date_short(t) for t in ctx.wall_clock(scores["local_time"])],
@@ -146,12 +146,16 @@ def _questionnaire_description(ctx: Inputs, q: str, name: str, scores: pd.DataFr
     _ = ctx.gettext
     first, last = scores.iloc[0], scores.iloc[-1]
     if len(scores) == 1:
-        return _("You filled in the {name} once, on {date}: score {score}{band}.").format(
+        return ctx.voice(_("You filled in the {name} once, on {date}: score {score}{band}."),
+                         _("The {name} was filled in once, on {date}: score {score}{band}.")
+                         ).format(
             name=name, date=ctx.date(ctx.wall_clock(scores["local_time"]).iloc[0]),
             score=ctx.num(float(first["score"]), 0), band=_band_of(first))
     wall = ctx.wall_clock(scores["local_time"])
-    parts = [_("Your {name} score went from {first}{first_band} on {first_date} to "
-               "{last}{last_band} on {last_date}.").format(
+    parts = [ctx.voice(_("Your {name} score went from {first}{first_band} on {first_date} to "
+                         "{last}{last_band} on {last_date}."),
+                       _("The {name} score went from {first}{first_band} on {first_date} to "
+                         "{last}{last_band} on {last_date}.")).format(
         name=name, first=ctx.num(float(first["score"]), 0), first_band=_band_of(first),
         first_date=ctx.date(wall.iloc[0]), last=ctx.num(float(last["score"]), 0),
         last_band=_band_of(last), last_date=ctx.date(wall.iloc[-1]))]
