@@ -19,7 +19,7 @@ from springback.charts.common import Inputs
 from springback.charts.mood import mood_chart
 from springback.charts.palette import CHART, GRAPHIC_MIN, TEXT_MIN, contrast_ratio
 from springback.charts.svg import WIDTH, finish_svg
-from springback.metrics.results import Estimate, Family, ParticipantResults
+from springback.metrics.results import Estimate, Family, ParticipantResults, SeriesDescription
 from springback.model import ParticipantData
 from springback.settings import StudySettings
 
@@ -73,6 +73,10 @@ def make_data(seed: int = 3) -> tuple[ParticipantData, pd.DataFrame]:
     return data, series
 
 
+LOW_MOOD = SeriesDescription("low_mood", True, (1.0, 7.0))
+"""The composite of `make_settings` as the results describe it."""
+
+
 def make_results(series: pd.DataFrame) -> ParticipantResults:
     """Families following the contracts, with values chosen by hand (not computed by metrics)."""
     g = series.groupby("study_day")["value"]
@@ -83,8 +87,7 @@ def make_results(series: pd.DataFrame) -> ParticipantResults:
     descriptives = Family(
         estimates={"n_answered": Estimate(float(len(series)))},
         tables={"series": series[["local_time", "value"]], "daily": daily},
-        params={"typical_low": float(q1), "typical_high": float(q3), "scale_low": 1.0,
-                "scale_high": 7.0, "higher_is_worse": True, "variable": "low_mood"})
+        params={"typical_low": float(q1), "typical_high": float(q3)})
     starts = series["local_time"].iloc[[3, 40, 80]].reset_index(drop=True)
     episodes = pd.DataFrame({"episode": [1, 2, 3], "start": starts,
                              "trigger": ["event", "dip", "event"],
@@ -142,7 +145,7 @@ def make_results(series: pd.DataFrame) -> ParticipantResults:
     return ParticipantResults("p01", "low_mood", {
         "descriptives": descriptives, "recovery": recovery, "warnings": warnings,
         "questionnaires": questionnaires, "shifts": shifts, "landscape": landscape,
-    }, enough_data=True)
+    }, enough_data=True, series=LOW_MOOD)
 
 
 @pytest.fixture(scope="module")
@@ -400,7 +403,8 @@ def test_missing_families_and_estimates_drop_charts_quietly(study):
 def test_no_data_gives_no_charts(study):
     """Check that a participant without enough data gets an empty chart set, not an error."""
     data, _results, settings = study
-    empty = ParticipantResults("p01", "low_mood", {}, enough_data=False, reason="too few")
+    empty = ParticipantResults("p01", "low_mood", {}, enough_data=False, reason="too few",
+                               series=LOW_MOOD)
     assert make_charts(data, empty, settings, "en", lambda s: s) == {}
 
 
@@ -497,7 +501,8 @@ def test_a_thin_participant_gets_sensible_charts():
             tables={"scores_phq9": pd.DataFrame({"local_time": times[:1], "score": [4.0],
                                                  "band": ["minimal"]})}),
     }
-    results = ParticipantResults("p02", "wellbeing", families, enough_data=False, reason="few")
+    results = ParticipantResults("p02", "wellbeing", families, enough_data=False, reason="few",
+                                 series=SeriesDescription("wellbeing", False, (0.0, 10.0)))
     empty = pd.DataFrame()
     data = ParticipantData("p02", "nl", "default", "yes", True, False, empty, empty, empty,
                            empty, empty)

@@ -5,11 +5,14 @@ from __future__ import annotations
 import pytest
 
 from springback.findings import topics
-from springback.metrics.results import Estimate, Family, ParticipantResults
+from springback.metrics.results import Estimate, Family, ParticipantResults, SeriesDescription
+
+MOOD = SeriesDescription("mood", True, (1.0, 7.0))
 
 
 def _results(**estimates: Estimate) -> ParticipantResults:
-    return ParticipantResults("S1", "mood", {"x": Family(estimates=dict(estimates))}, True)
+    return ParticipantResults("S1", "mood", {"x": Family(estimates=dict(estimates))}, True,
+                              series=MOOD)
 
 
 @pytest.mark.parametrize(("r", "reading"), [(0.05, "none"), (0.2, "weak"), (0.4, "moderate"),
@@ -56,6 +59,6 @@ def test_reliable_change_grades(z: float, reading: str, certainty: str) -> None:
     fam = Family(estimates={"questionnaire_last_phq9": Estimate(12.0, note="moderate"),
                             "reliable_change_phq9": Estimate(z)},
                  tables={"scores_phq9": pd.DataFrame({"score": [14.0, 12.0]})})
-    res = ParticipantResults("S1", "mood", {"questionnaires": fam}, True)
+    res = ParticipantResults("S1", "mood", {"questionnaires": fam}, True, series=MOOD)
     f = topics.questionnaires(res, settings)[0]
     assert (f.reading, f.certainty) == (reading, certainty)

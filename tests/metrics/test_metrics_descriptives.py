@@ -110,4 +110,3 @@ def test_describe_family_shape_and_values():
     assert fam.tables["daily"]["n"].sum() == 100
     assert list(fam.tables["diurnal"].columns) == ["hour", "mean", "n"]
     assert fam.params["typical_low"] == pytest.approx(np.percentile(x, 25))
-    assert fam.params["higher_is_worse"] is True

@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 import ruptures as rpt
 
-from springback.metrics._series import prepare
+from springback.metrics._series import description, prepare
 from springback.metrics.results import Family, ParticipantResults
 from springback.metrics.shifts import (
     daily_means,
@@ -154,7 +154,8 @@ def test_questionnaire_sudden_loss_is_cross_referenced_and_rows_export() -> None
     fam = shift_family(series, s, questionnaires)
     big = fam.tables["change_points"].loc[fam.tables["change_points"]["exceeds_swings"]]
     assert "sudden loss on phq9" in big["questionnaire_nearby"].iloc[0]
-    results = ParticipantResults("p1", "low_mood", {"shifts": fam}, True)
+    results = ParticipantResults("p1", "low_mood", {"shifts": fam}, True,
+                                 series=description(series))
     rows = shift_rows(results)
     assert rows and set(rows[0]) == {"participant", "date", "direction", "size", "method"}
     assert all(r["method"] == "PELT" and r["participant"] == "p1" for r in rows)

@@ -313,7 +313,8 @@ def test_many_change_points_give_one_course_sentence_from_the_findings() -> None
                 "shifts": type(shifts)(estimates=shifts.estimates,
                                        tables={"daily": daily, "change_points": points},
                                        params={"noise_sd": 0.1, "within_segment_sd": 0.1})}
-    results = type(results)(results.participant, results.variable, families, True)
+    results = type(results)(results.participant, results.variable, families, True,
+                            series=results.series)
     page = parse(render_booklet("participant", data=data, results=results))
     marks = [t for t in page.tags("p") if t.get("data-finding") == "course"]
     assert [t["data-reading"] for t in marks] == ["abrupt_shift"]

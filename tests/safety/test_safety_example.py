@@ -8,7 +8,7 @@ import pandas as pd
 import pytest
 
 from springback import intake
-from springback.metrics._series import prepare
+from springback.metrics._series import description, prepare
 from springback.metrics.results import ParticipantResults
 from springback.metrics.shifts import shift_family
 from springback.safety.rules import Flag, evaluate, study_end
@@ -24,8 +24,10 @@ def flags() -> dict[str, list[Flag]]:
     out = {}
     for pid in study.participants():
         data = study.slice(pid)
-        family = shift_family(prepare(data, study.settings), study.settings)
-        results = ParticipantResults(pid, study.about, {"shifts": family}, enough_data=True)
+        series = prepare(data, study.settings)
+        family = shift_family(series, study.settings)
+        results = ParticipantResults(pid, study.about, {"shifts": family}, enough_data=True,
+                                     series=description(series))
         out[pid] = evaluate(data, results, study.settings, period_end=end)
     return out
 

@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from springback.metrics.results import Family, ParticipantResults
+from springback.metrics.results import Family, ParticipantResults, SeriesDescription
 from springback.model import ParticipantData
 from springback.safety.rules import Flag, evaluate, flags_rows, study_end
 from springback.settings import from_mapping
@@ -61,7 +61,8 @@ def _data(days: int = 20, hopeless: dict[int, float] | None = None,
 def _results(change_points: pd.DataFrame | None = None) -> ParticipantResults:
     families = {} if change_points is None else {
         "shifts": Family(tables={"change_points": change_points})}
-    return ParticipantResults("P01", "low_mood", families, enough_data=True)
+    return ParticipantResults("P01", "low_mood", families, enough_data=True,
+                              series=SeriesDescription("low_mood", True, (1.0, 7.0)))
 
 
 @pytest.mark.parametrize("action", ["hold", "refer"])

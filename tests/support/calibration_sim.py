@@ -21,7 +21,7 @@ import numpy as np
 from springback import simulate
 from springback.findings import Findings, decide
 from springback.metrics import early_warning, landscape, leadup, shifts
-from springback.metrics._series import prepare
+from springback.metrics._series import description, prepare
 from springback.metrics.results import Family, ParticipantResults
 from springback.model import ParticipantData
 from springback.settings import StudySettings
@@ -223,7 +223,8 @@ def reading_families(data: ParticipantData, settings: StudySettings) -> Particip
         fams["warnings_leadup"] = before
     fams["landscape"] = landscape.landscape_family(series, data, settings)
     return ParticipantResults(participant=data.participant, variable=series.variable,
-                              families=fams, enough_data=True, reason="")
+                              families=fams, enough_data=True, reason="",
+                              series=description(series))
 
 
 def readings(data: ParticipantData, settings: StudySettings) -> Findings:

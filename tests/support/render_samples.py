@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from springback import findings, render
-from springback.metrics.results import Estimate, Family, ParticipantResults
+from springback.metrics.results import Estimate, Family, ParticipantResults, SeriesDescription
 from springback.model import ParticipantData
 from springback.settings import StudySettings, from_mapping
 
@@ -120,8 +120,7 @@ def sample_results(data: ParticipantData, missing: tuple[str, ...] = ()) -> Part
                 "between_day_variance": Estimate(0.14, n=20),
             },
             tables={"series": series},
-            params={"typical_low": 3.0, "typical_high": 4.0, "scale_low": 1.0,
-                    "scale_high": 7.0, "higher_is_worse": True, "variable": "low_mood"},
+            params={"typical_low": 3.0, "typical_high": 4.0},
         ),
         "dynamics": Family(
             estimates={"inertia": Estimate(0.34, 0.18, 0.50, n=76),
@@ -172,8 +171,11 @@ def sample_results(data: ParticipantData, missing: tuple[str, ...] = ()) -> Part
                 for k, v in fam.estimates.items()})
             for name, fam in families.items()
         }
+    days = data.momentary["study_day"]
+    described = SeriesDescription("low_mood", True, (1.0, 7.0), days.min().date(),
+                                  days.max().date(), periods=1)
     return ParticipantResults(participant=data.participant, variable="low_mood",
-                              families=families, enough_data=True)
+                              families=families, enough_data=True, series=described)
 
 
 @dataclass(frozen=True)

@@ -92,9 +92,10 @@ class Inputs:
         return default if fam is None else fam.params.get(name, default)
 
     # -- the variable the booklet is about ----------------------------------------------
+    # (as the results describe it: `metrics.results.SeriesDescription`)
     @property
     def variable(self) -> str:
-        return self.results.variable or self.settings.about
+        return self.results.series.variable
 
     @property
     def label(self) -> str:
@@ -102,24 +103,11 @@ class Inputs:
 
     @property
     def higher_is_worse(self) -> bool:
-        flag = self.param("descriptives", "higher_is_worse")
-        if flag is not None:
-            return bool(flag)
-        try:
-            return self.settings.higher_is_worse(self.variable)
-        except KeyError:
-            return True
+        return self.results.series.higher_is_worse
 
     @property
     def scale(self) -> tuple[float, float]:
-        low = self.param("descriptives", "scale_low")
-        high = self.param("descriptives", "scale_high")
-        if low is not None and high is not None:
-            return (float(low), float(high))
-        try:
-            return self.settings.scale_of(self.variable)
-        except KeyError:
-            return (0.0, 1.0)
+        return self.results.series.scale
 
     def value_axis_title(self) -> str:
         """Axis title naming the variable and which end is worse."""

@@ -55,9 +55,7 @@ def decide(results: ParticipantResults, flags: Sequence[Flag],
            settings: StudySettings) -> Findings:
     """Every finding of one participant, decided once."""
     pid = results.participant
-    variable = results.variable or settings.about
-    scale = _scale(settings, variable)
-    worse = _higher_is_worse(settings, variable)
+    scale, worse = results.series.scale, results.series.higher_is_worse
     alpha = settings.metrics.alpha
     fams = results.families
     shape = course(pid, fams, alpha, worse)
@@ -112,16 +110,3 @@ def _summary(items: Sequence[Finding], show_warning: bool) -> tuple[str, ...]:
                if by[t].known and by[t].reading != "changed"]
     return tuple(chosen[:SUMMARY_POINTS])
 
-
-def _scale(settings: StudySettings, variable: str) -> tuple[float, float]:
-    try:
-        return settings.scale_of(variable)
-    except (KeyError, StopIteration, ValueError):
-        return (float("nan"), float("nan"))
-
-
-def _higher_is_worse(settings: StudySettings, variable: str) -> bool:
-    try:
-        return settings.higher_is_worse(variable)
-    except KeyError:
-        return True

@@ -18,7 +18,7 @@ from springback.metrics import (
     recovery,
     shifts,
 )
-from springback.metrics._series import prepare
+from springback.metrics._series import description, prepare
 from springback.metrics.results import Family, ParticipantResults, to_rows
 from springback.model import ParticipantData
 from springback.settings import StudySettings
@@ -45,7 +45,8 @@ def compute(data: ParticipantData, settings: StudySettings) -> ParticipantResult
     families["landscape"] = landscape.landscape_family(series, data, settings)
     families["complexity"] = entropy.complexity_family(series, data.participant, settings)
     return ParticipantResults(participant=data.participant, variable=series.variable,
-                              families=families, enough_data=enough, reason=reason)
+                              families=families, enough_data=enough, reason=reason,
+                              series=description(series))
 
 
 def results_rows(results: ParticipantResults) -> list[dict[str, Any]]:

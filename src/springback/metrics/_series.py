@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from springback.errors import DataError, error
+from springback.metrics.results import SeriesDescription
 from springback.model import ParticipantData
 from springback.settings import StudySettings
 
@@ -135,6 +136,19 @@ def prepare(data: ParticipantData, settings: StudySettings, variable: str | None
         max_gap_hours=max_gap,
         origin_ns=int(ns[0]) if len(ns) else 0,
         period=period,
+    )
+
+
+def description(series: Series) -> SeriesDescription:
+    """The series' description every later stage reads (`ParticipantResults.series`)."""
+    days = series.study_day
+    return SeriesDescription(
+        variable=series.variable,
+        higher_is_worse=series.higher_is_worse,
+        scale=(float(series.scale[0]), float(series.scale[1])),
+        first_day=pd.Timestamp(days.min()).date() if series.n else None,
+        last_day=pd.Timestamp(days.max()).date() if series.n else None,
+        periods=int(np.count_nonzero(np.diff(series.periods)) + 1) if series.n else 0,
     )
 
 

@@ -173,8 +173,6 @@ def describe(series: Series, data: ParticipantData, settings: StudySettings) -> 
                 "daily": _daily(series, schedule), "diurnal": _diurnal(series),
                 "periods": _periods(schedule)},
         params={"typical_low": float(typical[0]), "typical_high": float(typical[1]),
-                "scale_low": low, "scale_high": high,
-                "higher_is_worse": series.higher_is_worse, "variable": series.variable,
                 "pair_rule": rule, "ta_mssd_lambda": m.ta_mssd_lambda,
                 "times_scheduled": bool(data.times_scheduled)},
     )

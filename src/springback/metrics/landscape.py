@@ -298,10 +298,9 @@ def landscape_family(series: Series, data: ParticipantData, settings: StudySetti
         tables["load"] = load
     params: dict[str, Any] = {
         "bandwidth_rule": BANDWIDTH_RULE, "multipliers": list(BANDWIDTH_MULTIPLIERS),
-        "min_depth": MIN_DEPTH, "min_share": MIN_SHARE, "scale_low": bounds[0],
-        "scale_high": bounds[1], "potential_units": "-ln density (sigma^2/2 = 1)",
+        "min_depth": MIN_DEPTH, "min_share": MIN_SHARE,
+        "potential_units": "-ln density (sigma^2/2 = 1)",
         "state_names": "'low' and 'high' are values of the composite, not better or worse",
-        "higher_is_worse": series.higher_is_worse,
     }
     distinct = np.unique(x).size
     if n < MIN_PROMPTS or distinct < MIN_DISTINCT:

@@ -8,6 +8,7 @@ reasons that read alike; each family's module lists the codes it uses.
 
 from __future__ import annotations
 
+import datetime as dt
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -52,18 +53,52 @@ class Family:
 
 
 @dataclass(frozen=True)
+class SeriesDescription:
+    """What the booklet's series is, decided once (`metrics._series.description`) from the
+    settings and the answers; charts, findings and booklets read it instead of the settings."""
+
+    variable: str
+    """The composite or item."""
+    higher_is_worse: bool
+    """Its polarity (a composite's `higher_is`; an item is worse upwards unless reverse-scored)."""
+    scale: tuple[float, float]
+    """Its scale (low, high); a composite's is its items' common range."""
+    first_day: dt.date | None = None
+    """First study day with an answer (None without answers)."""
+    last_day: dt.date | None = None
+    """Last study day with an answer."""
+    periods: int = 0
+    """Measurement periods with an answer (runs of one period number; 0 without answers)."""
+
+    @property
+    def scale_low(self) -> float:
+        return float(self.scale[0])
+
+    @property
+    def scale_high(self) -> float:
+        return float(self.scale[1])
+
+
+@dataclass(frozen=True)
 class ParticipantResults:
     """Everything computed for one participant, family by family."""
 
     participant: str
     variable: str
-    """The composite or item the results are about."""
+    """The composite or item the results are about (the same as `series.variable`)."""
     families: dict[str, Family]
     """Family name ('descriptives', 'dynamics', 'recovery', 'warnings', 'questionnaires',
     'shifts', 'landscape', ...) -> its result."""
     enough_data: bool
     """False when the participant has too few answers for a booklet at all."""
     reason: str = ""
+    series: SeriesDescription = field(kw_only=True)
+    """The series the results are about: variable, polarity, scale, days and periods."""
+
+    def __post_init__(self) -> None:
+        if self.series.variable != self.variable:
+            raise ValueError(f"results about {self.variable!r} carry the description of "
+                             f"{self.series.variable!r}")
 
     def estimate(self, measure: str) -> Estimate:
         """Look a measure up across families (KeyError if no family reports it)."""

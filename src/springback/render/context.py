@@ -156,11 +156,9 @@ def build_context(
     own_flags = [f for f in flags if f.participant == data.participant]
     by_topic = findings.by_topic()
     refer = by_topic["help"].reading == "refer" if "help" in by_topic else False
-    variable = results.variable or settings.about
+    series = results.series
     sections = _sections(settings, edition, refer)
     desc = _params(results, "descriptives")
-    low, high = _scale(settings, variable)
-    first, last = _period(data)
     return BookletContext(
         edition=edition,
         language=language,
@@ -172,15 +170,15 @@ def build_context(
         contact_phone=settings.study.contact.phone,
         answers_checked=_text(settings.study.answers_checked, language),
         participant=data.participant,
-        period_first=first,
-        period_last=last,
+        period_first=series.first_day,
+        period_last=series.last_day,
         version=version,
         built_at=built_at,
         tool_version=tool_version,
-        variable_label=settings.label_of(variable, language),
-        scale_low=float(desc.get("scale_low", low)),
-        scale_high=float(desc.get("scale_high", high)),
-        higher_is_worse=bool(desc.get("higher_is_worse", _polarity(settings, variable))),
+        variable_label=settings.label_of(series.variable, language),
+        scale_low=series.scale_low,
+        scale_high=series.scale_high,
+        higher_is_worse=series.higher_is_worse,
         typical_low=_finite(desc.get("typical_low")),
         typical_high=_finite(desc.get("typical_high")),
         enough_data=results.enough_data,
@@ -311,28 +309,6 @@ def _finite(x: Any) -> float | None:
     except (TypeError, ValueError):
         return None
     return v if math.isfinite(v) else None
-
-
-def _scale(settings: StudySettings, variable: str) -> tuple[float, float]:
-    try:
-        return settings.scale_of(variable)
-    except (KeyError, StopIteration, ValueError):
-        return (math.nan, math.nan)
-
-
-def _polarity(settings: StudySettings, variable: str) -> bool:
-    try:
-        return settings.higher_is_worse(variable)
-    except KeyError:
-        return True
-
-
-def _period(data: ParticipantData) -> tuple[dt.date | None, dt.date | None]:
-    """First and last study day with an answer."""
-    if data.momentary.empty or "study_day" not in data.momentary:
-        return None, None
-    days = pd.to_datetime(data.momentary["study_day"])
-    return days.min().date(), days.max().date()
 
 
 def _records(results: ParticipantResults, family: str, table: str) -> list[dict[str, Any]]:

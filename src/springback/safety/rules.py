@@ -210,7 +210,8 @@ def evaluate(data: ParticipantData, results: ParticipantResults, settings: Study
                                        m[rule.item].astype(float),
                                        (f"rating of '{label}'", f"ratings of '{label}'"), end)
         elif rule.shift:
-            flag = _shift_flag(pid, rule, results, end, settings.label_of(settings.about, "en"))
+            flag = _shift_flag(pid, rule, results, end,
+                               settings.label_of(results.series.variable, "en"))
         elif rule.silence_days is not None:
             flag = _silence_flag(pid, rule, data, settings, end)
         if flag is not None:
