@@ -16,6 +16,8 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
+from springback.metrics.questionnaires import band_of
+
 if TYPE_CHECKING:
     from springback.build.records import ParticipantOutcome
     from springback.model import ParticipantData, Study
@@ -67,14 +69,6 @@ def weekly_compliance(data: ParticipantData, settings: StudySettings,
             for w in range(n_weeks)]
 
 
-def _band(bands: list[tuple[float, str]], score: float) -> str:
-    label = ""
-    for lower, name in bands:
-        if score >= lower:
-            label = name
-    return label
-
-
 def latest_scores(data: ParticipantData, settings: StudySettings) -> list[dict[str, Any]]:
     """Per questionnaire: the latest score and date, its band, and the first date of the run of
     scores in that band that ends with the latest one."""
@@ -89,11 +83,13 @@ def latest_scores(data: ParticipantData, settings: StudySettings) -> list[dict[s
         dates = [pd.Timestamp(t).date().isoformat() for t in rows["local_time"]]
         if not scores or not math.isfinite(scores[-1]):
             continue
-        bands = list(spec.bands) if spec is not None else []
-        band = _band(bands, scores[-1]) if bands else ""
+        # Scores were checked against the range on intake; the band is the metrics' band_of.
+        banded = spec if spec is not None and spec.bands else None
+        band = band_of(scores[-1], banded) if banded is not None else ""
         since = dates[-1]
         for score, day in zip(reversed(scores), reversed(dates), strict=True):
-            if bands and _band(bands, score) != band:
+            if banded is not None and (not math.isfinite(score)
+                                       or band_of(score, banded) != band):
                 break
             since = day
         label = spec.label.get("en", str(name)) if spec is not None else str(name)

@@ -33,17 +33,11 @@ def questionnaire_charts(ctx: Inputs) -> list[Chart]:
 
 
 def _bands(ctx: Inputs, q: str) -> tuple[tuple[float, float], list[tuple[float, float, str]]]:
-    """The score range and (low, high, label) bands, from the settings or the family params."""
-    spec = ctx.settings.questionnaires.get(q)
-    params = ctx.param("questionnaires", q, {}) or {}
-    if spec is not None:
-        rng, raw = (float(spec.range[0]), float(spec.range[1])), list(spec.bands)
-    else:
-        rng = tuple(float(v) for v in params.get("range", (0.0, 1.0)))  # type: ignore[assignment]
-        raw = list(params.get("bands", []))
-    bounds = [float(b[0]) for b in raw] + [rng[1]]
-    return rng, [(bounds[i], bounds[i + 1], _band_name(ctx, q, str(raw[i][1])))
-                 for i in range(len(raw))]
+    """The score range and (low, high, label) bands drawn, from the settings' band table (the
+    one the booklet's text shows): each band is drawn up to the next one's lower bound."""
+    spec = ctx.settings.questionnaires[q]
+    rng = (float(spec.range[0]), float(spec.range[1]))
+    return rng, [(b.lower, b.end, b.label) for b in ctx.settings.band_table(q, ctx.language)]
 
 
 def _band_name(ctx: Inputs, q: str, label: object) -> str:

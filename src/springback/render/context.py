@@ -346,11 +346,7 @@ def _questionnaires(
         if scores is None or scores.empty:
             continue
         last = fam.estimates.get(f"questionnaire_last_{key}", Estimate.missing("no score"))
-        bands = []
-        for i, (lower, label) in enumerate(spec.bands):
-            upper = spec.bands[i + 1][0] - 1 if i + 1 < len(spec.bands) else spec.range[1]
-            bands.append((settings.band_label(key, str(label), language), float(lower),
-                          float(upper)))
+        bands = [(b.label, b.lower, b.upper) for b in settings.band_table(key, language)]
         views.append(
             QuestionnaireView(
                 key=key,

@@ -5,6 +5,7 @@ stages use.
 """
 
 from springback.settings.schema import (
+    Band,
     StudySettings,
     cross_checks,
     from_mapping,
@@ -21,6 +22,7 @@ from springback.settings.sections import (
 
 __all__ = [
     "SETTINGS_FILE",
+    "Band",
     "Questionnaire",
     "Referral",
     "SafetyRule",

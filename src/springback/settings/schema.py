@@ -6,6 +6,7 @@ from __future__ import annotations
 import difflib
 import itertools
 import tomllib
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -30,6 +31,20 @@ from springback.settings.sections import (
     Section,
     StudyInfo,
 )
+
+
+@dataclass(frozen=True)
+class Band:
+    """One band of a questionnaire (`StudySettings.band_table`)."""
+
+    label: str
+    """Its name in the booklet's language."""
+    lower: float
+    """The lowest score in the band (its lower bound in `bands`)."""
+    upper: float
+    """The highest score in it: one below the next band's lower bound; the range's top."""
+    end: float
+    """Where the band ends on the score axis: the next band's lower bound; the range's top."""
 
 
 class StudySettings(Section):
@@ -98,6 +113,17 @@ class StudySettings(Section):
             if name == label:
                 return translated
         return label
+
+    def band_table(self, questionnaire: str, language: str) -> tuple[Band, ...]:
+        """A questionnaire's bands, increasing, with their names in a language: the one band
+        table the booklet's text and the questionnaire chart both show."""
+        q = self.questionnaires[questionnaire]
+        top = float(q.range[1])
+        ends = [float(lower) for lower, _ in q.bands[1:]] + [top]
+        return tuple(
+            Band(self.band_label(questionnaire, str(label), language), float(lower),
+                 end - 1 if i + 1 < len(q.bands) else top, end)
+            for i, ((lower, label), end) in enumerate(zip(q.bands, ends, strict=True)))
 
     def referral_for(self, region: str, language: str) -> Referral | None:
         """The referral text for a region and language, falling back to region 'default'."""
