@@ -21,6 +21,7 @@ from springback.charts import make_charts
 from springback.charts.common import Inputs
 from springback.charts.mood import mood_chart
 from springback.charts.palette import CHART
+from springback.charts.svg import PLOT_WIDTH
 from springback.findings.records import Finding, Findings
 from springback.i18n.language import translations
 from springback.safety import rules as safety
@@ -78,15 +79,53 @@ def test_the_gap_is_named_in_the_booklet_language(two_periods):
     assert "9 Wochen ohne Abfragen" in _texts(de.svg)
 
 
+def _placed(svg: str, stroke: str, width: str) -> list[list[float]]:
+    """The x of every point of each path drawn with that stroke, in the picture's own
+    coordinates (the translations of the groups around it added)."""
+    out: list[list[float]] = []
+
+    def walk(node: ET.Element, dx: float) -> None:
+        shift = re.match(r"translate\(([-\d.]+)", node.get("transform", ""))
+        dx += float(shift.group(1)) if shift else 0.0
+        if node.tag == f"{SVG}path" and node.get("stroke") == stroke and \
+                node.get("stroke-width") == width:
+            out.append([dx + float(v) for v in re.findall(r"[ML]([-\d.]+),", node.get("d", ""))])
+        for child in node:
+            walk(child, dx)
+
+    walk(ET.fromstring(svg), 0.0)
+    return out
+
+
 def test_the_mood_line_breaks_between_the_periods(two_periods):
     mood = _charts(two_periods)["mood"]
-    lines = [p for p in ET.fromstring(mood.svg).iter(f"{SVG}path")
-             if p.get("stroke") == CHART.primary and p.get("stroke-width") == "3"]
+    lines = _placed(mood.svg, CHART.primary, "3")
     assert len(lines) == 2  # one line per period, none across the gap
-    ends = [[float(v) for v in re.findall(r"[ML]([-\d.]+),", p.get("d", ""))] for p in lines]
-    first, second = sorted(ends)
+    first, second = sorted(lines)
     assert len(first) == len(second) == DAYS_PER_PERIOD  # a point per day of each period
     assert max(first) < min(second)
+
+
+def test_the_periods_are_drawn_side_by_side_with_the_gap_named(two_periods):
+    mood = _charts(two_periods)["mood"]
+    texts = _texts(mood.svg)
+    # Each period has an axis of its own days: none of the 64 days between is labelled.
+    assert {"1 Mar", "3 Mar", "5 Mar", "10 May", "12 May", "14 May"} <= set(texts)
+    assert not {"15 Mar", "29 Mar", "12 Apr", "26 Apr"} & set(texts)
+    assert "9 weeks without prompts" in texts  # the gap, named between the two panels
+    assert "From 7 March to 9 May there were no prompts (9 weeks without prompts)." \
+        in mood.description
+    # The daily lines take most of the width: each spans five of its panel's six days, and
+    # the two panels share the plot width but the strip naming the gap. On one axis from
+    # 1 March to 16 May they took 2 x 5 of 76 days: 71 px of the 540.
+    first, second = sorted(_placed(mood.svg, CHART.primary, "3"))
+    drawn = (max(first) - min(first)) + (max(second) - min(second))
+    assert drawn > 0.75 * PLOT_WIDTH
+    assert abs((max(first) - min(first)) - (max(second) - min(second))) < 1  # equal periods
+    # The data table still lists each day answered, in both periods, and nothing between.
+    assert len(mood.table) == 2 * DAYS_PER_PERIOD
+    nl = _charts(two_periods, "nl")["mood"]
+    assert "9 weken zonder meldingen" in _texts(nl.svg)
 
 
 def test_the_items_of_the_composite_are_named():
@@ -133,3 +172,4 @@ def test_the_caption_phrases_the_course_finding(reading, direction, sentence):
     # The same data with another reading: the words follow the finding, not the numbers.
     other = mood_chart(replace(ctx, findings=_with_course("no_clear_change")))
     assert other is not None and (sentence in other.description) == (reading == "no_clear_change")
+

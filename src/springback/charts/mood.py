@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from functools import partial
 from typing import Any, cast
 
 import altair as alt
@@ -22,6 +23,7 @@ from springback.charts.common import (
     time_axis,
 )
 from springback.charts.palette import CHART
+from springback.charts.panels import Panel, panel_axes, panel_of, period_panels, side_by_side
 from springback.charts.svg import PLOT_WIDTH, to_svg
 
 EVENT_SHAPES = ("triangle-down", "diamond", "square", "cross", "triangle-up")
@@ -42,55 +44,72 @@ def mood_chart(ctx: Inputs) -> Chart | None:
     if series.empty or daily.empty:
         return None
     low, high = ctx.scale
-    y = _value_axis(ctx, low, high)
     answers = pd.DataFrame({"t": ctx.ms(series["local_time"]), "v": series["value"]})
     means = pd.DataFrame({"t": day_noon_ms(ctx, daily["study_day"]), "v": daily["mean"],
                           "p": _period_of(ctx, daily["study_day"])})
-    x = time_axis(ctx, _("Date"), np.concatenate([answers["t"], means["t"]]))
-    layers: list[alt.Chart] = []
+    times = np.concatenate([answers["t"], means["t"]])
+    panels = period_panels(ctx)  # two or more measurement periods: one panel each
+    views = [(time_axis(ctx, _("Date"), times), PLOT_WIDTH)] if panels is None else \
+        panel_axes(ctx, _("Date"), panels, times, PLOT_WIDTH)
+
+    def pick(frame: pd.DataFrame, i: int) -> pd.DataFrame:
+        return frame if panels is None else frame[panel_of(panels, frame["t"]) == i]
+
     key = [KeyItem(_("daily average"), CHART.primary, width=3),
            KeyItem(_("single answers"), CHART.neutral, kind="point", filled=False)]
     typical = (ctx.param("descriptives", "typical_low"), ctx.param("descriptives", "typical_high"))
-    if all(v is not None and math.isfinite(v) for v in typical):
-        layers += _band_layers(float(typical[0]), float(typical[1]), y)
+    band = all(v is not None and math.isfinite(v) for v in typical)
+    if band:
         key.append(KeyItem(ctx.voice(_("your typical range"), _("typical range")), CHART.band,
                            kind="box", edge=CHART.neutral))
-    layers.append(
-        alt.Chart(alt.Data(values=records(answers)))
-        .mark_point(shape="circle", filled=False, size=22, color=CHART.neutral, strokeWidth=1)
-        .encode(x=x.x("t"), y=y("v")))
-    shift_layers = _shift_layers(ctx, x, y)
-    if shift_layers:
-        layers += shift_layers
+    if _shown_shifts(ctx) is not None:
         key += [KeyItem(_("detected shift"), CHART.highlight, dash=(2, 3), width=2),
                 KeyItem(_("level before and after a shift"), CHART.highlight, dash=(8, 4))]
-    layers.append(
-        alt.Chart(alt.Data(values=records(means)))
-        .mark_line(color=CHART.primary, strokeWidth=3,
-                   point=alt.OverlayMarkDef(filled=True, size=24, color=CHART.primary))
-        .encode(x=x.x("t"), y=y("v"),
-                detail=alt.Detail(field="p", type="nominal")))  # no line across a gap
-    n_events = 0
+    shown: list[pd.DataFrame] = []
     events = _events(ctx)
     if events is not None:
-        first, last = x.domain
-        events = events[(events["t"] >= first) & (events["t"] < last)]
-    if events is not None and len(events):
-        n_events = len(events)
+        for i, (x, _w) in enumerate(views):
+            inside = pick(events, i)
+            shown.append(inside[(inside["t"] >= x.first) & (inside["t"] < x.last)])
+        events = pd.concat(shown)
+    n_events = 0 if events is None else len(events)
+    shapes: dict[str, str] = {}
+    if events is not None and n_events:
         kinds = list(dict.fromkeys(sorted(events["kind"])))
         shapes = dict(zip(kinds, EVENT_SHAPES, strict=False))
-        events = events.assign(shape=[shapes.get(k, EVENT_SHAPES[-1]) for k in events["kind"]])
-        layers.append(
-            alt.Chart(alt.Data(values=records(events[["t", "kind", "shape"]])))
-            .mark_point(filled=True, size=90, color=CHART.accent, opacity=1)
-            .encode(x=x.x("t"), y=alt.value(8),
-                    shape=alt.Shape(field="shape", type="nominal", scale=None)))
         key += [KeyItem(_("event: {kind}").format(kind=k), CHART.accent, kind="point",
                         shape=shapes[k]) for k in kinds]
-    plot = alt.layer(*layers).properties(width=PLOT_WIDTH, height=HEIGHT)
+    plots = []
+    for i, (x, width) in enumerate(views):
+        y = _value_axis(ctx, low, high, labels=i == 0)
+        layers: list[alt.Chart] = []
+        if band:
+            layers += _band_layers(float(typical[0]), float(typical[1]), y)
+        layers.append(
+            alt.Chart(alt.Data(values=records(pick(answers, i))))
+            .mark_point(shape="circle", filled=False, size=22, color=CHART.neutral,
+                        strokeWidth=1)
+            .encode(x=x.x("t"), y=y("v")))
+        layers += _shift_layers(ctx, x, y, partial(pick, i=i))
+        layers.append(
+            alt.Chart(alt.Data(values=records(pick(means, i))))
+            .mark_line(color=CHART.primary, strokeWidth=3,
+                       point=alt.OverlayMarkDef(filled=True, size=24, color=CHART.primary))
+            .encode(x=x.x("t"), y=y("v"),
+                    detail=alt.Detail(field="p", type="nominal")))  # no line across a gap
+        if shown and len(shown[i]):
+            here = shown[i]
+            here = here.assign(shape=[shapes.get(k, EVENT_SHAPES[-1]) for k in here["kind"]])
+            layers.append(
+                alt.Chart(alt.Data(values=records(here[["t", "kind", "shape"]])))
+                .mark_point(filled=True, size=90, color=CHART.accent, opacity=1)
+                .encode(x=x.x("t"), y=alt.value(8),
+                        shape=alt.Shape(field="shape", type="nominal", scale=None)))
+        plots.append(alt.layer(*layers).properties(width=width, height=HEIGHT))
+    plot = plots[0] if panels is None else side_by_side(panels, plots, HEIGHT)
     spec = alt.vconcat(key_spec(key, PLOT_WIDTH), plot, spacing=10)
     title = ctx.voice(_("Your mood over time"), _("Mood over time"))
-    description = _mood_description(ctx, series, daily, n_events)
+    description = _mood_description(ctx, series, daily, n_events, panels)
     table = _mood_table(ctx, daily, events)
     return Chart("mood", title, description, to_svg(spec, "mood", title, description,
                                                     ctx.language),
@@ -125,10 +144,13 @@ def _weekly_table(ctx: Inputs, daily: pd.DataFrame, events: pd.DataFrame | None
     })
 
 
-def _value_axis(ctx: Inputs, low: float, high: float) -> Callable[[str], alt.Y]:
-    """The y encoding of a field on the mood scale, titled with the variable and its worse end."""
+def _value_axis(ctx: Inputs, low: float, high: float, *, labels: bool = True
+                ) -> Callable[[str], alt.Y]:
+    """The y encoding of a field on the mood scale, titled with the variable and its worse end
+    (without `labels`: the bare axis line of a later period's panel)."""
     scale = alt.Scale(domain=[low, high], nice=False, zero=False)
-    axis = alt.Axis(title=ctx.value_axis_title(), tickMinStep=1)
+    axis = alt.Axis(title=ctx.value_axis_title(), tickMinStep=1) if labels else \
+        alt.Axis(title=None, labels=False, ticks=False)
 
     def encode(field: str) -> alt.Y:
         return alt.Y(field=field, type="quantitative", scale=scale, axis=axis)
@@ -147,8 +169,10 @@ def _band_layers(lo: float, hi: float, y: Callable[[str], alt.Y]) -> list[alt.Ch
     ]
 
 
-def _shift_layers(ctx: Inputs, x: TimeAxis, y: Callable[[str], alt.Y]) -> list[alt.Chart]:
-    """Detected shifts: dashed rules with a written direction, and the segment levels."""
+def _shift_layers(ctx: Inputs, x: TimeAxis, y: Callable[[str], alt.Y],
+                  pick: Callable[[pd.DataFrame], pd.DataFrame]) -> list[alt.Chart]:
+    """Detected shifts: dashed rules with a written direction, and the segment levels (those
+    `pick` keeps: a panel's own)."""
     _ = ctx.gettext
     points = _shown_shifts(ctx)
     if points is None:
@@ -158,12 +182,14 @@ def _shift_layers(ctx: Inputs, x: TimeAxis, y: Callable[[str], alt.Y]) -> list[a
         "t": ctx.ms(pd.to_datetime(points["study_day"])),
         "label": [words.get(str(d), str(d)) for d in points["direction"]],
     })
+    labelled = len(marks) <= MAX_SHIFT_LABELS  # more would overlap; the key names them
+    marks = pick(marks)
     layers = [
         alt.Chart(alt.Data(values=records(marks)))
         .mark_rule(color=CHART.highlight, strokeWidth=2, strokeDash=[2, 3])
         .encode(x=x.x("t")),
     ]
-    if len(marks) <= MAX_SHIFT_LABELS:  # more written labels would overlap; the key names them
+    if labelled:
         layers.append(
             alt.Chart(alt.Data(values=records(marks)))
             .mark_text(align="left", dx=4, color=CHART.ink)
@@ -178,7 +204,7 @@ def _shift_layers(ctx: Inputs, x: TimeAxis, y: Callable[[str], alt.Y]) -> list[a
                                              float(levels["level"].iloc[-1])),
                               "p": [*period, period[-1]]}).dropna()
         layers.append(
-            alt.Chart(alt.Data(values=records(steps)))
+            alt.Chart(alt.Data(values=records(pick(steps))))
             .mark_line(interpolate="step-after", color=CHART.highlight, strokeWidth=2,
                        strokeDash=[8, 4])
             .encode(x=x.x("t"), y=y("v"),
@@ -206,7 +232,7 @@ def _events(ctx: Inputs) -> pd.DataFrame | None:
 
 
 def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
-                      n_events: int) -> str:
+                      n_events: int, panels: list[Panel] | None) -> str:
     _ = ctx.gettext
     values = series["value"].to_numpy(dtype=float)
     parts = _composite_sentences(ctx)
@@ -218,6 +244,7 @@ def _mood_description(ctx: Inputs, series: pd.DataFrame, daily: pd.DataFrame,
         parts.append(ctx.voice(_("Half of them were between {low} and {high}: your typical range."),
                                _("Half of them were between {low} and {high}: the typical range.")
                                ).format(low=ctx.num(lo), high=ctx.num(hi)))
+    parts += [p.gap_sentence for p in panels or [] if p.gap_sentence]  # drawn side by side
     means = daily["mean"].to_numpy(dtype=float)
     if len(means) >= 14:
         first, last = float(np.mean(means[:7])), float(np.mean(means[-7:]))
