@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import ctypes
 import functools
+import gc
 import itertools
 import multiprocessing
 import os
@@ -80,6 +81,10 @@ def _worker_start(parent: int, initializer: Callable[[], None] | None) -> None:
                      name="springback-parent-watch").start()
     if initializer is not None:
         initializer()
+    # What is alive now (modules, the warmed engines) lives as long as the worker: out of the
+    # cyclic collector's reach, each full collection (one after every PDF) walks only the
+    # jobs' own objects (0.34 s a collection before, on a warmed worker).
+    gc.freeze()
 
 
 def _participant(job: Any) -> str:

@@ -5,17 +5,26 @@ vl-convert renders the spec (no JavaScript reaches the booklet); the result then
 figure's alternate text), role="img" with aria-labelledby, and every id renamed with a
 per-chart prefix: vl-convert numbers clip paths with a process-wide counter, so two inlined
 charts could share an id and the same chart could differ between runs without the renaming.
+
+A worker renders the same spec more than once (a chart both editions show alike), so the last
+RENDERED_KEPT specs' raw SVGs are kept by their JSON text: a repeat is neither validated nor
+rendered again, and the renaming makes its SVG the same text as a fresh render's.
 """
 
 from __future__ import annotations
 
+import functools
+import json
 import re
 import threading
 import xml.etree.ElementTree as ET
+from collections import OrderedDict
 from typing import Any, cast
 
 import altair as alt
+import jsonschema
 import vl_convert
+from altair.vegalite.v6.schema import core
 
 from springback.charts.palette import CHART, FONT_FAMILY
 
@@ -35,6 +44,10 @@ _VEGA_LOCALES = {"en": "en-GB", "nl": "nl-NL", "de": "de-DE"}
 _DATE_AXIS_FORMATS = {"de": "%-d. %b"}
 _fonts_lock = threading.Lock()
 _fonts_registered = False
+RENDERED_KEPT = 24
+"""Raw SVGs kept per process, by spec (a booklet pair's charts; a few MB at most)."""
+_rendered: OrderedDict[tuple[str, str, Any], str] = OrderedDict()
+_rendered_lock = threading.Lock()
 
 THEME: dict[str, Any] = {
     # Vega's own ARIA labels are English and generic; the SVG carries ours instead.
@@ -90,14 +103,60 @@ def _register_fonts() -> None:
         _fonts_registered = True
 
 
-def vega_lite(chart: alt.TopLevelMixin) -> dict[str, Any]:
-    """The Vega-Lite spec of an altair chart, validated against the Vega-Lite schema.
+@functools.cache
+def _schema_validator() -> Any:
+    """A jsonschema validator of the whole Vega-Lite schema altair bundles (made once)."""
+    root = core.Root._rootschema
+    cls = jsonschema.validators.validator_for(root)
+    return cls(root, format_checker=cls.FORMAT_CHECKER)
 
-    altair's own default theme is left out (its view size and colours are not ours); the
-    booklet theme is added by `to_svg`.
+
+def _all_objects(rows: Any) -> bool:
+    return isinstance(rows, list) and all(isinstance(r, dict) for r in rows)
+
+
+def _one_row_each(node: Any) -> Any:
+    """The spec with every inline data set whose rows are all objects cut to its first row."""
+    if isinstance(node, list):
+        return [_one_row_each(v) for v in node]
+    if not isinstance(node, dict):
+        return node
+    out: dict[str, Any] = {}
+    for key, value in node.items():
+        if key == "data" and isinstance(value, dict) and _all_objects(value.get("values")):
+            out[key] = {**value, "values": value["values"][:1]}
+        elif key == "datasets" and isinstance(value, dict):
+            out[key] = {name: rows[:1] if _all_objects(rows) else rows
+                        for name, rows in value.items()}
+        else:
+            out[key] = _one_row_each(value)
+    return out
+
+
+def validate_spec(spec: dict[str, Any]) -> None:
+    """Raise jsonschema's ValidationError unless the spec is valid Vega-Lite (the schema's
+    root: any top-level spec), as altair's `Root.validate` checks it.
+
+    The schema takes any array of objects as a data set's values (InlineDataset: an array of
+    numbers, of strings, of booleans or of objects, whatever the objects hold), so a data set
+    whose rows are all objects is checked as its first row alone: the same verdict, without
+    walking hundreds of rows through every branch of that anyOf (most of the check's time).
     """
+    _schema_validator().validate(_one_row_each(spec))
+
+
+def _spec(chart: alt.TopLevelMixin) -> dict[str, Any]:
+    """The Vega-Lite spec of an altair chart, without altair's own default theme (its view
+    size and colours are not ours; the booklet theme is added by `to_svg`)."""
     with alt.theme.enable("none"):
-        return chart.to_dict(validate=True)
+        return chart.to_dict(validate=False)
+
+
+def vega_lite(chart: alt.TopLevelMixin) -> dict[str, Any]:
+    """The Vega-Lite spec of an altair chart, validated against the Vega-Lite schema."""
+    spec = _spec(chart)
+    validate_spec(spec)
+    return spec
 
 
 def to_svg(spec: alt.TopLevelMixin | dict[str, Any], key: str, title: str, description: str,
@@ -105,14 +164,25 @@ def to_svg(spec: alt.TopLevelMixin | dict[str, Any], key: str, title: str, descr
     """Render a chart (altair, or a Vega-Lite dict) to an inline SVG with title, description
     and namespaced ids."""
     _register_fonts()
-    if isinstance(spec, alt.TopLevelMixin):
-        spec = vega_lite(spec)
-    full = {**spec, "config": THEME}
+    made = isinstance(spec, alt.TopLevelMixin)
+    spec = _spec(spec) if isinstance(spec, alt.TopLevelMixin) else spec
     locale = vega_locale(language)
-    raw = vl_convert.vegalite_to_svg(
-        full, allowed_base_urls=[], format_locale=cast(Any, locale),
-        time_format_locale=cast(Any, locale),
-    )
+    # The renderer is part of the key: a stand-in for vl-convert never shares its SVGs.
+    render = vl_convert.vegalite_to_svg
+    seen = (json.dumps(spec, sort_keys=True, default=repr), locale, render)
+    with _rendered_lock:
+        raw = _rendered.get(seen)
+    if raw is None:
+        if made:
+            validate_spec(spec)
+        raw = render(
+            {**spec, "config": THEME}, allowed_base_urls=[], format_locale=cast(Any, locale),
+            time_format_locale=cast(Any, locale),
+        )
+        with _rendered_lock:
+            _rendered[seen] = raw
+            while len(_rendered) > RENDERED_KEPT:
+                _rendered.popitem(last=False)
     return finish_svg(raw, key, title, description)
 
 
