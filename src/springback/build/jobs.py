@@ -138,6 +138,7 @@ def render_booklets(
     """Render the chosen editions of one participant to HTML and PDF bytes."""
     from springback import charts, render
     from springback.i18n.language import translations
+    from springback.render.context import chart_names
 
     settings, language = job.settings, job.data.language
     data = _named_events(job.data, settings, language)
@@ -147,9 +148,10 @@ def render_booklets(
     files: dict[str, bytes] = {}
     folder = f"{BOOKLETS}/{data.participant}"
     for edition in editions:
-        # Each edition's charts speak in its voice (to the participant, or about them).
+        # Each edition's charts speak in its voice (to the participant, or about them); only
+        # the charts the edition shows are drawn.
         chart_set = charts.make_charts(data, results, settings, language, gettext, found,
-                                       edition)
+                                       edition, chart_names(edition))
         context = render.build_context(
             settings=settings, data=data, results=results, findings=found, flags=flags,
             review_state=state,

@@ -6,7 +6,7 @@ or None when there is nothing to draw, and never fails a booklet over a missing 
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Collection
 
 from springback.charts.calendar import calendar_chart
 from springback.charts.change import grid_chart, recovery_chart, warnings_chart
@@ -30,19 +30,28 @@ def make_charts(
     gettext: Callable[[str], str],
     findings: Findings | None = None,
     edition: Edition = "participant",
+    wanted: Collection[str] | None = None,
 ) -> dict[str, Chart]:
     """Build every chart that has data, keyed 'mood', 'calendar', ..., 'questionnaire_<q>',
-    with its words in the edition's voice."""
+    with its words in the edition's voice; with `wanted`, only the charts it names (a name
+    ending in '_' stands for every key it starts, as 'questionnaire_')."""
     ctx = Inputs(data, results, settings, language, checked_gettext(gettext), findings, edition)
+
+    def drawn(key: str) -> bool:
+        return wanted is None or key in wanted
+
     charts: dict[str, Chart] = {}
-    for build in (mood_chart, calendar_chart, recovery_chart, warnings_chart):
-        chart = build(ctx)
+    for key, build in (("mood", mood_chart), ("calendar", calendar_chart),
+                       ("recovery", recovery_chart), ("warnings", warnings_chart)):
+        chart = build(ctx) if drawn(key) else None
         if chart is not None:
             charts[chart.key] = chart
-    for chart in questionnaire_charts(ctx):
-        charts[chart.key] = chart
-    for build in (grid_chart, landscape_chart, load_chart):
-        chart = build(ctx)
+    if drawn("questionnaire_"):
+        for chart in questionnaire_charts(ctx):
+            charts[chart.key] = chart
+    for key, build in (("grid", grid_chart), ("landscape", landscape_chart),
+                       ("load", load_chart)):
+        chart = build(ctx) if drawn(key) else None
         if chart is not None:
             charts[chart.key] = chart
     return charts

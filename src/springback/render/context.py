@@ -43,6 +43,11 @@ SECTION_CHARTS: dict[Edition, dict[str, tuple[str, ...]]] = {
 """Charts each section of each edition shows (a key ending in '_' stands for every key it
 starts); a participant is spared the answer calendar, the load loop and the landscape."""
 
+
+def chart_names(edition: Edition) -> frozenset[str]:
+    """The names of the charts any section of this edition shows (the ones worth drawing)."""
+    return frozenset(name for names in SECTION_CHARTS[edition].values() for name in names)
+
 APPENDIX_MAX_ROWS = 45
 """In print, the numbers behind each chart are in an appendix at the end (on screen they stay
 in a <details> beside the chart). A table longer than this (about one page) is printed in its
