@@ -25,6 +25,7 @@ from tests.intake.test_intake_bringmann import (
     BLOCK_STARTS,
     BRINGMANN,
     DAYS_PER_PERIOD,
+    ITEMS,
     PERIOD_STARTS,
     PROMPTS_PER_DAY,
     _independent_counts,
@@ -164,3 +165,32 @@ def test_the_gap_is_named_and_never_drawn(built: tuple[Path, str], edition: str)
     text = _text(html)
     assert "2 measurement periods" in text
     assert "the times the questions were scheduled" in text
+
+
+def _weekly_shares(who: str) -> str:
+    """The overview's words for a participant's weeks, counted here from the file: answered and
+    sent (rule 2) per calendar week from their first day, weeks between the periods left out."""
+    raw = pd.read_csv(BRINGMANN)
+    raw = raw[(raw["subjno"].astype(str) == who) & raw["beepno"].notna()]
+    answer = raw[list(ITEMS.values())].notna().any(axis=1)
+    first = pd.Timestamp(PERIOD_STARTS[0])
+    answered: dict[int, int] = {}
+    sent: dict[int, int] = {}
+    for period, rows in raw.groupby("st_period"):
+        start = pd.Timestamp(PERIOD_STARTS[int(period)])
+        last = max(DAYS_PER_PERIOD, int(rows.loc[answer[rows.index], "dayno"].max()))
+        for day in range(1, last + 1):
+            week = (start + pd.Timedelta(days=day - 1) - first).days // 7 + 1
+            sent[week] = sent.get(week, 0) + PROMPTS_PER_DAY
+            answered[week] = answered.get(week, 0) + int(
+                (answer[rows.index] & (rows["dayno"] == day)).sum())
+    return ", ".join(f"week {w}: {_percent(answered[w] / sent[w])}" for w in sorted(sent))
+
+
+@pytest.mark.parametrize("who", BUILT)
+def test_the_overview_weeks_leave_out_the_gap(built: tuple[Path, str], who: str) -> None:
+    project, _output = built
+    html = (project / "out" / "index.html").read_text(encoding="utf-8")
+    words = _weekly_shares(who)
+    assert words.startswith("week 1: ") and ", week 11: " in words  # 10 May is in week 11
+    assert f"Answered prompts per week: {words}</title>" in html

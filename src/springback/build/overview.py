@@ -37,9 +37,11 @@ def weekly_compliance(data: ParticipantData, settings: StudySettings,
                       end: pd.Timestamp | None) -> list[dict[str, Any]]:
     """Answered prompts per week of the participant's period (week 1 starts on their first
     day) and the share of prompts sent, from the prompts-sent table of intake (the rule and
-    the one compliance function of `springback.intake.schedule`). Days after the last
-    scheduled one up to the end of the data count as days the study kept sending
-    `prompts_per_day` prompts, so a silence shows as empty weeks."""
+    the one compliance function of `springback.intake.schedule`). Without a design length
+    (`[data] study_days`), days after the last scheduled one up to the end of the data count
+    as days the study kept sending `prompts_per_day` prompts, so a silence shows as empty
+    weeks; with one, the table already holds every day of the design. Weeks wholly between
+    two measurement periods are left out (the week numbers go on)."""
     from springback.intake.schedule import compliance
 
     sched = data.schedule
@@ -51,7 +53,7 @@ def weekly_compliance(data: ParticipantData, settings: StudySettings,
     answered = sched["answered"].groupby(weeks).sum()
     sent = sched["sent"].astype(float).groupby(weeks).sum(min_count=1)
     stop = last
-    if end is not None and pd.notna(end):
+    if end is not None and pd.notna(end) and settings.data.study_days is None:
         stop = max(last, pd.Timestamp(end).tz_localize(None).normalize())
     per_day = settings.study.prompts_per_day
     for day in pd.date_range(last + pd.Timedelta(days=1), stop, freq="D"):
@@ -63,10 +65,16 @@ def weekly_compliance(data: ParticipantData, settings: StudySettings,
     answered = answered.reindex(range(n_weeks), fill_value=0)
     sent = sent.reindex(range(n_weeks))
     shares = compliance(answered, sent)
+    between: set[int] = set()  # weeks wholly between two measurement periods
+    if "period" in sched.columns:
+        by = days.groupby(sched["period"].to_numpy())
+        for end_day, start_day in zip(by.max().iloc[:-1], by.min().iloc[1:], strict=True):
+            between |= set(range(int((end_day - first).days // 7) + 1,
+                                 int((start_day - first).days // 7)))
     return [{"week": w + 1, "start": (first + pd.Timedelta(days=7 * w)).date().isoformat(),
              "answered": int(answered[w]),
              "share": float(shares[w]) if pd.notna(shares[w]) else None}
-            for w in range(n_weeks)]
+            for w in range(n_weeks) if w not in between]
 
 
 def latest_scores(data: ParticipantData, settings: StudySettings) -> list[dict[str, Any]]:
