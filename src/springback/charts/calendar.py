@@ -11,6 +11,7 @@ import pandas as pd
 
 from springback.charts.common import Chart, Inputs, records
 from springback.charts.palette import CALENDAR_RAMP, CHART, readable_text_on
+from springback.charts.panels import gap_words
 from springback.charts.svg import to_svg
 
 CALENDAR_MAX_HEIGHT = 640
@@ -91,7 +92,6 @@ class Gap:
 
 def _gaps(ctx: Inputs, cells: pd.DataFrame) -> list[Gap]:
     """Each gap between consecutive measurement periods with at least one day in it."""
-    _ = ctx.gettext
     periods = ctx.table("descriptives", "periods")
     if periods is None or len(periods) < 2:
         return []
@@ -104,19 +104,11 @@ def _gaps(ctx: Inputs, cells: pd.DataFrame) -> list[Gap]:
         days = pd.date_range(last + pd.Timedelta(days=1), first - pd.Timedelta(days=1))
         if len(days) == 0 or any(d in shown for d in days):
             continue
-        n = len(days)
-        if n >= 14:
-            label = _("{n} weeks without prompts").format(n=round(n / 7))
-        elif n >= 2:
-            label = _("{n} days without prompts").format(n=n)
-        else:
-            label = _("a day without prompts")
+        label, sentence = gap_words(ctx, last, first)  # the time charts' words too
         gaps.append(Gap(
             after_week=ctx.date(last - pd.Timedelta(days=last.day_of_week)),
             before_week=ctx.date(first - pd.Timedelta(days=first.day_of_week)),
-            label=label,
-            sentence=_("From {start} to {end} there were no prompts ({gap}).").format(
-                start=ctx.date(days[0]), end=ctx.date(days[-1]), gap=label)))
+            label=label, sentence=sentence))
     return gaps
 
 
