@@ -18,22 +18,20 @@ from springback.build.records import BOOKLETS, Job, ParticipantOutcome
 from springback.model import Edition, ParticipantData
 from springback.settings import StudySettings
 
-WARM_CHART: dict[str, Any] = {
-    "data": {"values": [{"day": 0, "mood": 3.0}, {"day": 1, "mood": 4.0}]},
-    "mark": "line",
-    "encoding": {"x": {"field": "day", "type": "quantitative"},
-                 "y": {"field": "mood", "type": "quantitative"}},
-}
-
 
 def warm_engines() -> None:
     """Start the chart engine and the PDF engine once in a worker process (pool initializer)."""
     try:
+        import altair as alt
+
         import springback.metrics  # noqa: F401  (the statistics stack's import time)
         from springback.charts.svg import to_svg
         from springback.render import html_to_pdf
 
-        svg = to_svg(WARM_CHART, "warm", "Warm-up", "A two-point line.", "en")
+        line = (alt.Chart(alt.Data(values=[{"day": 0, "mood": 3.0}, {"day": 1, "mood": 4.0}]))
+                .mark_line().encode(x=alt.X(field="day", type="quantitative"),
+                                    y=alt.Y(field="mood", type="quantitative")))
+        svg = to_svg(line, "warm", "Warm-up", "A two-point line.", "en")
         html_to_pdf(
             "<!doctype html><html lang='en'><head><meta charset='utf-8'><title>Warm-up</title>"
             f"</head><body><p>Warm-up.</p>{svg}</body></html>",

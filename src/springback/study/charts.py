@@ -1,4 +1,5 @@
-"""Vega-Lite specs of the study page, drawn to inline SVG by springback.charts.svg.to_svg.
+"""The study page's charts: altair specs, drawn to inline SVG by springback.charts.svg.to_svg
+(which validates them against the Vega-Lite schema).
 
 Each function returns the chart's SVG (with <title> and <desc>) and the frame of its data, which
 the page prints as the chart's table.
@@ -9,6 +10,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
+import altair as alt
 import numpy as np
 import pandas as pd
 
@@ -30,10 +32,10 @@ def strip(key: str, label: str, unit: str, values: pd.DataFrame) -> tuple[str, p
     """One dot per participant on the indicator's axis (`values`: participant, value)."""
     data = values[np.isfinite(values["value"].to_numpy(float))].sort_values(
         ["value", "participant"], kind="stable")
-    spec = {"width": PLOT_WIDTH, "height": 40, "data": {"values": _records(data)},
-            "mark": {"type": "circle", "size": 90, "opacity": 0.75, "color": CHART.primary},
-            "encoding": {"x": {"field": "value", "type": "quantitative",
-                               "title": f"{label} ({unit})", "scale": {"zero": False}}}}
+    spec = (alt.Chart(alt.Data(values=_records(data)), width=PLOT_WIDTH, height=40)
+            .mark_circle(size=90, opacity=0.75, color=CHART.primary)
+            .encode(x=alt.X(field="value", type="quantitative", title=f"{label} ({unit})",
+                            scale=alt.Scale(zero=False))))
     lo, hi = (data["value"].min(), data["value"].max()) if len(data) else (math.nan, math.nan)
     desc = (f"{len(data)} participants; values from {lo:.3g} to {hi:.3g}." if len(data) else
             "No participant had a value.")
@@ -52,20 +54,20 @@ def forest(people: pd.DataFrame, group: pd.DataFrame) -> tuple[str, pd.DataFrame
                       "upper": g["upper"], "kind": "group"})
     data = pd.concat([rows, g], ignore_index=True)
     order = list(data["participant"])
-    y = {"field": "participant", "type": "nominal", "sort": order, "title": None}
-    colour = {"field": "kind", "type": "nominal", "title": None,
-              "scale": {"domain": ["participant", "group"],
-                        "range": [CHART.primary, CHART.accent]}}
-    spec = {"width": PLOT_WIDTH - 160, "height": 22 * len(data),
-            "data": {"values": _records(data)},
-            "layer": [
-                {"mark": {"type": "rule", "strokeWidth": 2},
-                 "encoding": {"y": y, "x": {"field": "lower", "type": "quantitative"},
-                              "x2": {"field": "upper"}, "color": colour}},
-                {"mark": {"type": "point", "filled": True, "size": 70},
-                 "encoding": {"y": y, "color": colour,
-                              "x": {"field": "value", "type": "quantitative",
-                                    "title": "Inertia (lag-1 autocorrelation)"}}}]}
+    y = alt.Y(field="participant", type="nominal", sort=order, title=None)
+    colour = alt.Color(field="kind", type="nominal", title=None,
+                       scale=alt.Scale(domain=["participant", "group"],
+                                       range=[CHART.primary, CHART.accent]))
+    spec = alt.LayerChart(
+        data=alt.Data(values=_records(data)), width=PLOT_WIDTH - 160, height=22 * len(data),
+        layer=[
+            alt.Chart().mark_rule(strokeWidth=2).encode(
+                y=y, x=alt.X(field="lower", type="quantitative"), x2=alt.X2(field="upper"),
+                color=colour),
+            alt.Chart().mark_point(filled=True, size=70).encode(
+                y=y, color=colour, x=alt.X(field="value", type="quantitative",
+                                           title="Inertia (lag-1 autocorrelation)")),
+        ])
     desc = (f"{len(rows)} participants' inertia with 95% intervals; the multilevel model's "
             f"mean is {_fmt(g['value'].iloc[0]) if len(g) else 'not available'}.")
     return to_svg(spec, "study-inertia", "Inertia by participant and for the group", desc,
@@ -75,18 +77,18 @@ def forest(people: pd.DataFrame, group: pd.DataFrame) -> tuple[str, pd.DataFrame
 def weeks(table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
     """Answered share of prompts sent by study week: pooled, with the participants' range."""
     data = table[["week", "participants", "pooled", "min", "max"]]
-    x = {"field": "week", "type": "quantitative", "title": "Study week",
-         "scale": {"zero": False}, "axis": {"tickMinStep": 1, "format": "d"}}
-    spec = {"width": PLOT_WIDTH, "height": 200, "data": {"values": _records(data)},
-            "layer": [
-                {"mark": {"type": "area", "color": CHART.band},
-                 "encoding": {"x": x, "y": {"field": "min", "type": "quantitative",
-                                            "scale": {"domain": [0, 1]},
-                                            "axis": {"format": "%"},
-                                            "title": "Prompts answered"},
-                              "y2": {"field": "max"}}},
-                {"mark": {"type": "line", "point": True, "color": CHART.primary},
-                 "encoding": {"x": x, "y": {"field": "pooled", "type": "quantitative"}}}]}
+    x = alt.X(field="week", type="quantitative", title="Study week",
+              scale=alt.Scale(zero=False), axis=alt.Axis(tickMinStep=1, format="d"))
+    spec = alt.LayerChart(
+        data=alt.Data(values=_records(data)), width=PLOT_WIDTH, height=200,
+        layer=[
+            alt.Chart().mark_area(color=CHART.band).encode(
+                x=x, y=alt.Y(field="min", type="quantitative", scale=alt.Scale(domain=[0, 1]),
+                             axis=alt.Axis(format="%"), title="Prompts answered"),
+                y2=alt.Y2(field="max")),
+            alt.Chart().mark_line(point=True, color=CHART.primary).encode(
+                x=x, y=alt.Y(field="pooled", type="quantitative")),
+        ])
     desc = (f"{len(data)} weeks; pooled share answered from {_pct(data['pooled'].min())} to "
             f"{_pct(data['pooled'].max())}; the band spans the participants' lowest and "
             "highest share." if len(data) else "No prompts were sent.")
@@ -96,13 +98,13 @@ def weeks(table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
 def bars(key: str, title: str, table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
     """Participants per reading of one topic (`table`: reading, participants)."""
     data = table[["reading", "participants"]]
-    spec = {"width": PLOT_WIDTH - 160, "height": 26 * max(len(data), 1),
-            "data": {"values": _records(data)},
-            "mark": {"type": "bar", "color": CHART.secondary},
-            "encoding": {"y": {"field": "reading", "type": "nominal", "title": None,
-                               "sort": list(data["reading"])},
-                         "x": {"field": "participants", "type": "quantitative",
-                               "title": "Participants", "axis": {"tickMinStep": 1}}}}
+    spec = (alt.Chart(alt.Data(values=_records(data)), width=PLOT_WIDTH - 160,
+                      height=26 * max(len(data), 1))
+            .mark_bar(color=CHART.secondary)
+            .encode(y=alt.Y(field="reading", type="nominal", title=None,
+                            sort=list(data["reading"])),
+                    x=alt.X(field="participants", type="quantitative", title="Participants",
+                            axis=alt.Axis(tickMinStep=1))))
     desc = "; ".join(f"{r.reading}: {r.participants}" for r in data.itertuples()) + "."
     return to_svg(spec, f"study-{key}", title, desc, LANGUAGE), data
 
