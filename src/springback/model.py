@@ -18,10 +18,8 @@ import pandas as pd
 from springback.errors import Problem
 from springback.frames import Frames, MemoryFrames
 from springback.settings import StudySettings
-
-Edition = Literal["participant", "therapist"]
-EDITIONS: tuple[Edition, ...] = ("participant", "therapist")
-"""The two booklets a participant can get: their own and their therapist's."""
+from springback.settings.sections import EDITIONS as EDITIONS  # defined with the settings
+from springback.settings.sections import Edition as Edition
 
 MOMENTARY_COLUMNS = ("participant", "time", "local_time", "study_day", "period", "scheduled",
                      "source_row")

@@ -132,6 +132,7 @@ def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[s
     """The study-wide CSV tables: metrics, findings, flags, shifts, quality, set-aside rows."""
     from springback.findings import FINDINGS_CSV_COLUMNS
     from springback.metrics.results import METRICS_CSV_COLUMNS
+    from springback.metrics.shifts import SHIFT_CSV_COLUMNS
     from springback.safety.rules import FLAG_CSV_COLUMNS, flags_rows
 
     outcomes = list(outcomes)
@@ -143,9 +144,7 @@ def study_tables(study: Study, outcomes: Iterable[ParticipantOutcome]) -> dict[s
         "metrics.csv": pd.DataFrame(metrics_rows, columns=list(METRICS_CSV_COLUMNS)),
         "findings.csv": pd.DataFrame(finding_rows, columns=list(FINDINGS_CSV_COLUMNS)),
         "flags.csv": pd.DataFrame(flag_rows, columns=list(FLAG_CSV_COLUMNS)),
-        "shifts.csv": pd.DataFrame(
-            shift_rows, columns=["participant", "date", "direction", "size", "method"]
-        ),
+        "shifts.csv": pd.DataFrame(shift_rows, columns=list(SHIFT_CSV_COLUMNS)),
         "quality.csv": study.quality,
         "set_aside.csv": study.set_aside,
     }

@@ -30,7 +30,7 @@ from springback.errors import warning
 from springback.intake.problems import Sink
 from springback.settings import StudySettings
 
-SCHEDULE_COLUMNS = ("participant", "period", "day", "study_day", "answered", "listed",
+PROMPT_DAY_COLUMNS = ("participant", "period", "day", "study_day", "answered", "listed",
                     "designed")
 """Per participant, period and day of the period (1 = day 1): study_day (naive midnight),
 answered prompts, distinct listed prompts with a time, and whether the day is one of the
@@ -80,7 +80,7 @@ def add_periods(frame: pd.DataFrame, settings: StudySettings) -> pd.DataFrame:
 
 
 def prompt_days(frame: pd.DataFrame, settings: StudySettings) -> pd.DataFrame:
-    """The `SCHEDULE_COLUMNS` table of whole participants' prompt rows (with a period).
+    """The `PROMPT_DAY_COLUMNS` table of whole participants' prompt rows (with a period).
 
     Rows without a time are left out (they are no prompt sent and no answer).
     """
@@ -132,7 +132,7 @@ def prompt_days(frame: pd.DataFrame, settings: StudySettings) -> pd.DataFrame:
     out["participant"] = out["participant"].astype(str)
     out["period"] = out["period"].astype(np.int64)
     out = out.sort_values([*keys, "day"], kind="stable").reset_index(drop=True)
-    return out[list(SCHEDULE_COLUMNS)]
+    return out[list(PROMPT_DAY_COLUMNS)]
 
 
 def sent_by_rule(days: pd.DataFrame, settings: StudySettings, *, has_scheduled: bool,

@@ -116,15 +116,18 @@ class Composite(Section):
     )
 
 
+Edition = Literal["participant", "therapist"]
+EDITIONS: tuple[Edition, ...] = ("participant", "therapist")
+"""The two booklets a participant can get: their own and their therapist's (`model` names them
+to the other stages)."""
+
+
 class Booklet(Section):
     about: str | None = Field(
         None, description="The composite or item the booklet is about (default: first composite)."
     )
-    editions: list[Literal["participant", "therapist"]] = Field(
-        default_factory=lambda: cast(
-            list[Literal["participant", "therapist"]], ["participant", "therapist"]
-        ),
-        description="Editions to make."
+    editions: list[Edition] = Field(
+        default_factory=lambda: list(EDITIONS), description="Editions to make."
     )
     formats: list[Literal["html", "pdf"]] = Field(
         default_factory=lambda: cast(list[Literal["html", "pdf"]], ["html", "pdf"]),
