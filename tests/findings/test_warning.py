@@ -22,15 +22,25 @@ def test_holm_matches_statsmodels(ps: list[float]) -> None:
     assert holm(ps) == pytest.approx(list(expected))
 
 
+def _grid(agreeing: int, cells: int = 25, p_agree: float = 0.004) -> pd.DataFrame:
+    """A sensitivity grid whose first `agreeing` cells have carry-over rising at p_agree and
+    the rest at p = 0.3; variance flat (p = 0.6) everywhere."""
+    rows = [{"window": 0.3 + 0.1 * (i % 5), "bandwidth_days": float(3 + i // 5),
+             "tau_inertia": 0.5, "p_inertia": p_agree if i < agreeing else 0.3,
+             "tau_variance": 0.05, "p_variance": 0.6} for i in range(cells)]
+    return pd.DataFrame(rows)
+
+
 def _family(taus: dict[str, float], ps: dict[str, float], robust: float = 0.8,
-            suffix: str = "") -> Family:
+            suffix: str = "", grid: pd.DataFrame | None = None) -> Family:
     est = {}
     for k in taus:
         est[f"warning_tau_{k}{suffix}"] = Estimate(taus[k])
         est[f"warning_p_{k}{suffix}"] = Estimate(ps[k])
     est[f"warning_robustness_inertia{suffix}"] = Estimate(robust)
     est[f"warning_robustness_variance{suffix}"] = Estimate(robust)
-    return Family(estimates=est, params={"leadup_days": 40})
+    tables = {"grid": grid if grid is not None else _grid(round(25 * robust))}
+    return Family(estimates=est, tables=tables, params={"leadup_days": 40})
 
 
 COURSE = Finding("S1", "course", "no_clear_change", "no_clear_sign")
@@ -48,12 +58,39 @@ def test_one_unadjusted_p_below_alpha_among_three_is_not_rising() -> None:
 
 
 def test_clear_rise_is_rising_and_its_grade_follows_the_grid() -> None:
-    """Check a rise significant after Holm is 'rising', 'clear' only when the grid agrees."""
+    """Check a rise significant after Holm is 'rising', 'clear' only when at least half of
+    the grid's cells agree (13 of 25 do, 12 of 25 do not)."""
     taus, ps = {"inertia": 0.6, "variance": 0.2}, {"inertia": 0.004, "variance": 0.4}
-    sure = warning("S1", {"warnings": _family(taus, ps, robust=0.8)}, COURSE, 0.05, None)
-    weak = warning("S1", {"warnings": _family(taus, ps, robust=0.2)}, COURSE, 0.05, None)
+    sure = warning("S1", {"warnings": _family(taus, ps, grid=_grid(13))}, COURSE, 0.05, None)
+    weak = warning("S1", {"warnings": _family(taus, ps, grid=_grid(12))}, COURSE, 0.05, None)
     assert (sure.reading, sure.certainty) == ("rising", "clear")
     assert (weak.reading, weak.certainty) == ("rising", "some_signs")
+    assert (sure.numbers["grid_rose_inertia"], sure.numbers["grid_cells"]) == (13, 25)
+
+
+def test_a_grid_cell_agrees_only_after_holm_over_its_own_tests() -> None:
+    """Check a cell's carry-over p of 0.03 next to a flat variance (Holm: 0.06) does not
+    agree, while 0.02 (Holm: 0.04) does; per cell as statsmodels adjusts it."""
+    # Source: statsmodels.stats.multitest.multipletests(method='holm') on each cell's
+    # two p-values (Holm 1979).
+    from springback.findings.warning import grid_agreement
+
+    for p_cell, agrees in ((0.03, 0), (0.02, 25)):
+        grid = _grid(25, p_agree=p_cell)
+        adjusted = multipletests([p_cell, 0.6], method="holm")[1][0]
+        assert (adjusted < 0.05) == bool(agrees)
+        out = grid_agreement(grid, 0.05)
+        assert (out["grid_rose_inertia"], out["grid_up_inertia"]) == (agrees, 25)
+        assert out["grid_rose_variance"] == 0
+
+
+def test_a_rise_of_the_item_correlation_alone_is_some_signs() -> None:
+    """Check the item correlation, which the grid does not test, can at most give
+    'some signs' (no cell can agree with it)."""
+    fam = _family({"inertia": 0.1, "variance": 0.0, "crosscorr": 0.7},
+                  {"inertia": 0.5, "variance": 0.7, "crosscorr": 0.001}, grid=_grid(25))
+    f = warning("S1", {"warnings": fam}, COURSE, 0.05, None)
+    assert (f.reading, f.certainty) == ("rising", "some_signs")
 
 
 def test_a_falling_indicator_is_never_rising() -> None:

@@ -15,13 +15,13 @@ from springback.charts.common import (
     Inputs,
     KeyItem,
     day_noon_ms,
-    direction_words,
     key_spec,
     records,
     time_axis,
 )
 from springback.charts.palette import CHART, DIVERGING, readable_text_on
 from springback.charts.svg import PLOT_WIDTH, to_svg
+from springback.findings.warning import agreeing_cells, grid_agreement, study_trends
 
 SOLID, DASHED = [1, 0], [5, 4]
 
@@ -197,16 +197,34 @@ def _indicator_panel(ctx: Inputs, daily: pd.DataFrame, name: str, measure: str,
     )
 
 
+def _warning_numbers(ctx: Inputs) -> dict[str, Any]:
+    """The warning finding's numbers (the findings stage's own functions when the chart is
+    drawn without findings): the pictures phrase what the findings decided."""
+    warn = ctx.findings.get("warning") if ctx.findings is not None else None
+    if warn is not None:
+        return dict(warn.numbers)
+    alpha = float(ctx.param("warnings", "alpha", ctx.settings.metrics.alpha))
+    return {"data": "all data", "alpha": alpha, **study_trends(ctx.family("warnings")),
+            **grid_agreement(ctx.table("warnings", "grid"), alpha)}
+
+
+def _trend_words(ctx: Inputs, code: str) -> str:
+    """The words of a trend code of springback.findings.warning.trend_code."""
+    _ = ctx.gettext
+    return {"rose": _("rose"), "rose_slightly": _("rose slightly"),
+            "about_same": _("stayed about the same"), "fell_slightly": _("fell slightly"),
+            "fell": _("fell")}.get(code, _("could not be judged"))
+
+
 def _warnings_description(ctx: Inputs) -> str:
     _ = ctx.gettext
-    tau_i = ctx.estimate("warnings", "warning_tau_inertia")
-    tau_v = ctx.estimate("warnings", "warning_tau_variance")
+    numbers = _warning_numbers(ctx)
     parts = [
         _("Carry-over from one moment to the next {change} over the study.").format(
-            change=direction_words(ctx, tau_i.value if tau_i.ok else None)),
+            change=_trend_words(ctx, str(numbers.get("study_trend_inertia")))),
         ctx.voice(_("The size of your ups and downs {change}."),
                   _("The size of the ups and downs {change}.")).format(
-            change=direction_words(ctx, tau_v.value if tau_v.ok else None)),
+            change=_trend_words(ctx, str(numbers.get("study_trend_variance")))),
         _("The dashed lines show the overall trend. Such changes often come and go without "
           "any shift in mood, so they are not a prediction."),
     ]
@@ -239,10 +257,12 @@ def _tau_fill(tau: float) -> str:
 def grid_chart(ctx: Inputs) -> Chart | None:
     """Kendall's tau of both indicators for every window and smoothing bandwidth tried."""
     _ = ctx.gettext
-    grid = ctx.table("warnings", "grid")
+    numbers = _warning_numbers(ctx)
+    # The grid of the answers the warning reading rests on (the lead-up before a shift).
+    family = "warnings_leadup" if numbers.get("data") == "lead-up" else "warnings"
+    grid = ctx.table(family, "grid")
     if grid is None:
         return None
-    alpha = float(ctx.param("warnings", "alpha", ctx.settings.metrics.alpha))
     windows = sorted(grid["window"].unique())
     bands = sorted(grid["bandwidth_days"].unique())
     window_names = {w: ctx.percent(float(w)) for w in windows}
@@ -252,14 +272,16 @@ def grid_chart(ctx: Inputs) -> Chart | None:
     # Two panels side by side while five windows fit; more windows stack them.
     side_by_side = len(windows) <= 5
     cell_w = 46 if side_by_side else min(46, (PLOT_WIDTH - 40) // len(windows))
+    # A star marks a cell the warning finding counts as agreeing with a rise.
+    starred = agreeing_cells(grid, float(numbers.get("alpha", ctx.settings.metrics.alpha)))
     for which in ("inertia", "variance"):
-        tau, p = grid[f"tau_{which}"].astype(float), grid[f"p_{which}"].astype(float)
+        tau = grid[f"tau_{which}"].astype(float)
         fills = [_tau_fill(v) for v in tau]
         cells = pd.DataFrame({
             "w": [window_names[w] for w in grid["window"]],
             "b": [band_names[b] for b in grid["bandwidth_days"]],
-            "label": [ctx.num(v, 2) + ("*" if pv < alpha else "") if math.isfinite(v) else "–"
-                      for v, pv in zip(tau, p, strict=True)],
+            "label": [ctx.num(v, 2) + ("*" if agrees else "") if math.isfinite(v) else "–"
+                      for v, agrees in zip(tau, starred[which], strict=True)],
             "fill": fills, "ink": [readable_text_on(f) for f in fills],
         })
         x = alt.X("w", type="ordinal", sort=list(window_names.values()),
@@ -278,26 +300,32 @@ def grid_chart(ctx: Inputs) -> Chart | None:
     spec = (alt.hconcat(*panels, spacing=24) if side_by_side
             else alt.vconcat(*panels, spacing=24))
     title = _("How much the trends depend on the analysis choices")
-    description = _grid_description(ctx, grid, alpha)
+    description = _grid_description(ctx, numbers)
     return Chart("grid", title, description,
                  to_svg(spec, "grid", title, description, ctx.language),
                  _grid_table(ctx, grid, window_names, band_names),
                  _("Kendall's tau and p-value for each window and smoothing"))
 
 
-def _grid_description(ctx: Inputs, grid: pd.DataFrame, alpha: float) -> str:
+def _grid_description(ctx: Inputs, numbers: dict[str, Any]) -> str:
+    """The grid's agreement as the warning finding counted it (springback.findings.warning)."""
     _ = ctx.gettext
-    n = len(grid)
+    alpha = ctx.num(float(numbers.get("alpha", ctx.settings.metrics.alpha)), 2)
     parts = [_("Numbers are Kendall's tau of each indicator over time; above 0 means rising. "
-               "A star marks p below {alpha}.").format(alpha=ctx.num(alpha, 2))]
-    for which, text in (
-        ("inertia", _("Carry-over rose in {up} of {n} analyses and significantly in {sig}.")),
-        ("variance", _("Variance rose in {up} of {n} analyses and significantly in {sig}.")),
-    ):
-        tau = grid[f"tau_{which}"].astype(float)
-        p = grid[f"p_{which}"].astype(float)
-        parts.append(text.format(up=int((tau > 0).sum()), n=n,
-                                 sig=int(((tau > 0) & (p < alpha)).sum())))
+               "A star marks a rise with a Holm-adjusted p below {alpha}.").format(alpha=alpha)]
+    if numbers.get("data") == "lead-up" and numbers.get("shift_date"):
+        parts.append(_("These analyses use the answers before {date} only, the lead-up to "
+                       "the shift.").format(date=ctx.date(numbers["shift_date"])))
+    n = numbers.get("grid_cells")
+    if n:
+        for which, text in (
+            ("inertia", _("Carry-over rose in {up} of {n} analyses, and in {sig} of them with "
+                          "a Holm-adjusted p below {alpha}.")),
+            ("variance", _("Variance rose in {up} of {n} analyses, and in {sig} of them with a "
+                           "Holm-adjusted p below {alpha}.")),
+        ):
+            parts.append(text.format(up=numbers.get(f"grid_up_{which}", 0), n=n,
+                                     sig=numbers.get(f"grid_rose_{which}", 0), alpha=alpha))
     return " ".join(parts)
 
 

@@ -334,19 +334,3 @@ def records(frame: pd.DataFrame) -> list[dict[str, Any]]:
         out.append(clean)
     return out
 
-
-def direction_words(ctx: Inputs, tau: float | None) -> str:
-    """Describe a Kendall's tau trend in words ('rose', 'stayed about the same', ...)."""
-    _ = ctx.gettext
-    if tau is None or not math.isfinite(tau):
-        return _("could not be judged")
-    # Cut-offs are a design choice for plain wording, not a test: the p-value does that.
-    if tau >= 0.3:
-        return _("rose")
-    if tau >= 0.1:
-        return _("rose slightly")
-    if tau > -0.1:
-        return _("stayed about the same")
-    if tau > -0.3:
-        return _("fell slightly")
-    return _("fell")

@@ -18,6 +18,8 @@ from springback.charts.common import (
 )
 from springback.charts.palette import CHART
 from springback.charts.svg import PLOT_WIDTH, to_svg
+from springback.findings import Finding
+from springback.findings import topics as finding_topics
 
 POTENTIAL_SPAN = 6.0
 """Height of the landscape shown above its deepest point: density ratios up to e^6 (~400)."""
@@ -80,14 +82,37 @@ def _valley_rows(ctx: Inputs, curve: pd.DataFrame, valleys: pd.DataFrame | None)
     xs = sorted(float(v) for v in valleys["x"] if math.isfinite(float(v)))
     grid = curve["x"].to_numpy()
     us = [float(np.interp(v, grid, curve["u"].to_numpy())) for v in xs]
-    labels = [_("resting place\nnear {x}").format(x=ctx.num(v)) for v in xs]
+    moved = _finding(ctx, "landscape").reading == "moved_away"
+    labels = [(_("where it rested\nbefore, near {x}") if moved else
+               _("resting place\nnear {x}")).format(x=ctx.num(v)) for v in xs]
     return pd.DataFrame({"x": xs, "u": us, "label": labels})
+
+
+def _finding(ctx: Inputs, topic: str) -> Finding:
+    """The participant's finding on `topic` (the findings stage's own function when the chart
+    is drawn without findings): the pictures phrase what the findings decided."""
+    found = ctx.findings.get(topic) if ctx.findings is not None else None
+    if found is not None:
+        return found
+    if topic == "load":
+        alpha = float(ctx.settings.metrics.alpha)
+        return finding_topics.load(ctx.results, ctx.higher_is_worse, alpha)
+    return finding_topics.landscape(ctx.results)
 
 
 def _landscape_description(ctx: Inputs, valley_rows: pd.DataFrame) -> str:
     _ = ctx.gettext
     xs = [ctx.num(v) for v in valley_rows["x"]]
-    if len(xs) == 1:
+    land = _finding(ctx, "landscape")
+    if land.reading == "moved_away" and land.number("last_mean") is not None:
+        text = ctx.voice(
+            _("Over the study your mood most often came back to about {x}, but in the last "
+              "{days} days it averaged {last}: it has moved away from that level."),
+            _("Over the study the mood most often came back to about {x}, but in the last "
+              "{days} days it averaged {last}: it has moved away from that level.")).format(
+            x=ctx.num(land.number("valley")), days=int(land.numbers["last_days"]),
+            last=ctx.num(land.number("last_mean")))
+    elif len(xs) == 1:
         text = ctx.voice(_("Your mood seemed to have one resting place, near {x}."),
                          _("The mood seemed to have one resting place, near {x}.")).format(
             x=xs[0])
@@ -196,7 +221,7 @@ def load_chart(ctx: Inputs) -> Chart | None:
     plot = alt.layer(*layers).properties(width=PLOT_WIDTH, height=300)
     spec = alt.vconcat(key_spec(key, PLOT_WIDTH), plot, spacing=10)
     title = ctx.voice(_("Your mood and your daily load"), _("Mood and daily load"))
-    description = _load_description(ctx, daily)
+    description = _load_description(ctx)
     table = pd.DataFrame({
         _("Date"): [ctx.date_short(d) for d in days],
         _("Load"): [ctx.num(v) for v in daily["load"]],
@@ -215,24 +240,27 @@ def _load_label(ctx: Inputs) -> str:
     return _("{label} (daily average)").format(label=ctx.settings.label_of(source, ctx.language))
 
 
-def _load_description(ctx: Inputs, frame: pd.DataFrame) -> str:
+def _load_description(ctx: Inputs) -> str:
     _ = ctx.gettext
-    # Spearman's rank correlation: robust to a few extreme days (Spearman 1904).
-    rho = frame["load"].corr(frame["mood"], method="spearman")
-    if not math.isfinite(rho) or abs(rho) < 0.1:
-        text = ctx.voice(
-            _("Your mood was about the same on days with more and with less load."),
-            _("The mood was about the same on days with more and with less load."))
-    elif (rho > 0) == ctx.higher_is_worse:
+    # The load finding: Spearman's rank correlation of daily load and mood (Spearman 1904).
+    found = _finding(ctx, "load")
+    rho = ctx.num(found.number("rho"), 2)
+    if found.reading == "worse_with_load":
         text = ctx.voice(_("On days with more load your mood tended to be worse (rank "
                            "correlation {rho})."),
                          _("On days with more load the mood tended to be worse (rank "
-                           "correlation {rho}).")).format(rho=ctx.num(rho, 2))
-    else:
+                           "correlation {rho}).")).format(rho=rho)
+    elif found.reading == "better_with_load":
         text = ctx.voice(_("On days with more load your mood tended to be better (rank "
                            "correlation {rho})."),
                          _("On days with more load the mood tended to be better (rank "
-                           "correlation {rho}).")).format(rho=ctx.num(rho, 2))
+                           "correlation {rho}).")).format(rho=rho)
+    else:
+        text = ctx.voice(
+            _("Your mood was about the same on days with more and with less load."),
+            _("The mood was about the same on days with more and with less load."))
+    if found.certainty == "some_signs":
+        text += " " + _("This could be chance.")
     return text + " " + ctx.voice(
         _("The line follows the study in time order, so a loop shows when your mood came back "
           "along a different path than it went."),

@@ -161,6 +161,12 @@ def _questionnaire_description(ctx: Inputs, q: str, name: str, scores: pd.DataFr
                                 "a reliable worsening."),
         "no reliable change": _("This change is within the usual measurement error."),
     }
-    if rci.ok and rci.note in verdicts:
-        parts.append(verdicts[rci.note])
+    # The questionnaire finding's reading when there are findings (the same rule, decided once).
+    found = ctx.findings.get(f"questionnaire_{q}") if ctx.findings is not None else None
+    readings = {"improved": "reliable improvement", "worsened": "reliable worsening",
+                "no_reliable_change": "no reliable change"}
+    verdict = (readings.get(found.reading, "") if found is not None and rci.ok
+               else rci.note if rci.ok else "")
+    if verdict in verdicts:
+        parts.append(verdicts[verdict])
     return " ".join(parts)

@@ -13,7 +13,9 @@ texts only phrase them. Topics and their readings:
   variability    small | moderate | large
   recovery       within_hours | within_a_day | days
   carry_over     none | weak | moderate | strong
-  landscape      one_level | several_levels (the valleys of the mood landscape)
+  landscape      one_level | several_levels (the valleys of the mood landscape) |
+                 moved_away (one level, but the last two weeks lay outside the typical range)
+  load           worse_with_load | better_with_load | about_the_same (mood and daily load)
   questionnaire_<key>  improved | worsened | no_reliable_change | one_score
   participation  high | medium | low
   help           refer | hold | none
@@ -66,6 +68,7 @@ def decide(results: ParticipantResults, flags: Sequence[Flag],
         shape, warn, overall(pid, shape, warn),
         topics.level(results, scale, worse, shape.reading), topics.variability(results, scale),
         topics.recovery(results), topics.carry_over(results), topics.landscape(results),
+        topics.load(results, worse, alpha),
         *topics.questionnaires(results, settings),
         topics.participation(results), topics.help_needed(pid, flags),
     ]

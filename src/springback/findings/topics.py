@@ -11,6 +11,7 @@ from collections.abc import Sequence
 from typing import Any
 
 import pandas as pd
+from scipy import stats
 
 from springback.findings.course import value
 from springback.findings.records import Certainty, Finding, missing
@@ -267,14 +268,82 @@ def _periods(results: ParticipantResults) -> dict[str, Any]:
 
 
 def landscape(results: ParticipantResults) -> Finding:
-    """How many levels the mood kept coming back to: `one_level` or `several_levels`."""
+    """How many levels the mood kept coming back to: `one_level` or `several_levels`;
+    `moved_away` when there is one level but the last LAST_DAYS days' average lies outside
+    the typical range (the middle half of all answers): the landscape then tells where the
+    mood rested before, not where it is now, and the finding says both."""
     pid = results.participant
     valleys = _est(results, "landscape_valleys")
     if valleys is None or not valleys.ok:
         return missing(pid, "landscape", valleys.note if valleys else "no landscape")
     n = int(valleys.value or 0)
-    return Finding(pid, "landscape", "one_level" if n <= 1 else "several_levels",
-                   "some_signs", {"valleys": n})
+    numbers: dict[str, Any] = {"valleys": n}
+    if n > 1:
+        return Finding(pid, "landscape", "several_levels", "some_signs", numbers)
+    table = results.families["landscape"].tables.get("valleys") \
+        if "landscape" in results.families else None
+    if table is not None and len(table):
+        numbers["valley"] = float(table["x"].iloc[0])
+    desc = results.families.get("descriptives")
+    low, high = ((desc.params.get("typical_low"), desc.params.get("typical_high"))
+                 if desc is not None else (None, None))
+    last = _last_days_mean(results.families.get("shifts"))
+    if last is None or low is None or high is None or "valley" not in numbers:
+        return Finding(pid, "landscape", "one_level", "some_signs", numbers)
+    numbers.update({"last_mean": last, "last_days": LAST_DAYS, "typical_low": low,
+                    "typical_high": high})
+    outside = not (float(low) <= last <= float(high))
+    return Finding(pid, "landscape", "moved_away" if outside else "one_level", "some_signs",
+                   numbers)
+
+
+LAST_DAYS = 14
+"""The 'last weeks' whose average is set against the landscape's one resting place (design
+choice: two weeks of daily averages, like the booklet's first and last weeks)."""
+
+
+def _last_days_mean(shifts: Family | None) -> float | None:
+    """Mean of the daily averages of the last LAST_DAYS calendar days with answers."""
+    daily = shifts.tables.get("daily") if shifts is not None else None
+    if daily is None or daily.empty:
+        return None
+    days = pd.to_datetime(daily["study_day"])
+    recent = daily[days > days.max() - pd.Timedelta(days=LAST_DAYS)]["mean"].astype(float)
+    recent = recent[recent.notna()]
+    return float(recent.mean()) if len(recent) else None
+
+
+LOAD_RHO = 0.1
+"""Spearman's rho between daily load and daily mood below which (in absolute value) mood reads
+`about_the_same` on days with more and less load (design choice, as the chart had it)."""
+MIN_LOAD_DAYS = 3
+"""Days with both a load and a mood needed for the load reading (the chart's own minimum)."""
+
+
+def load(results: ParticipantResults, higher_is_worse: bool, alpha: float) -> Finding:
+    """Mood on days with more load: `worse_with_load`, `better_with_load` or `about_the_same`,
+    from Spearman's rank correlation of the daily load with the daily mood (Spearman 1904;
+    robust to a few extreme days). Certainty: `clear` when its p-value (scipy's spearmanr) is
+    below alpha, else `some_signs`; `about_the_same` is `no_clear_sign`."""
+    pid = results.participant
+    fam = results.families.get("landscape")
+    table = fam.tables.get("load") if fam is not None else None
+    if table is None:
+        return missing(pid, "load", "no daily load was recorded")
+    days = table.dropna(subset=["load", "mood"])
+    if len(days) < MIN_LOAD_DAYS:
+        return missing(pid, "load", f"{len(days)} days had both a load and a mood; the "
+                       f"reading needs {MIN_LOAD_DAYS}", days=len(days))
+    x, y = days["load"].astype(float), days["mood"].astype(float)
+    rho = float(x.corr(y, method="spearman"))
+    numbers: dict[str, Any] = {"rho": rho, "days": len(days)}
+    if not math.isfinite(rho) or abs(rho) < LOAD_RHO:
+        return Finding(pid, "load", "about_the_same", "no_clear_sign", numbers)
+    p = float(stats.spearmanr(x, y).pvalue)
+    numbers["p"] = p
+    worse = (rho > 0) == higher_is_worse
+    return Finding(pid, "load", "worse_with_load" if worse else "better_with_load",
+                   "clear" if p < alpha else "some_signs", numbers)
 
 
 def help_needed(participant: str, flags: Sequence[Flag]) -> Finding:

@@ -47,6 +47,9 @@ NEARBY_DAYS = 7
 """Questionnaire sudden gains/losses this many days either side of a shift are cross-referenced;
 questionnaires are typically weekly, so a week is the closest they can bracket a shift."""
 
+NONE_FOUND = "none_found"
+"""Status of `shift_largest` when PELT found no change point: there is no shift to measure,
+which is not a lack of data (booklets say "none found")."""
 SHIFT_CSV_COLUMNS = ("participant", "date", "direction", "size", "method")
 
 
@@ -271,7 +274,8 @@ def shift_family(
                  f"({pooled:.2f})",
         )
     else:
-        shift_largest = Estimate.missing("no change point was found", n=n_days)
+        shift_largest = Estimate.missing("no change point was found", n=n_days,
+                                         status=NONE_FOUND)
     estimates = {"n_shifts": Estimate(float(len(rows)), n=n_days, note=note),
                  "shift_largest": shift_largest}
     tables = {"daily": daily[["study_day", "mean", "n", "level"]],
