@@ -173,3 +173,20 @@ def test_the_caption_phrases_the_course_finding(reading, direction, sentence):
     other = mood_chart(replace(ctx, findings=_with_course("no_clear_change")))
     assert other is not None and (sentence in other.description) == (reading == "no_clear_change")
 
+
+def test_the_indicator_lines_break_between_the_periods(two_periods):
+    warnings = _charts(two_periods)["warnings"]
+    texts = _texts(warnings.svg)
+    # Rolling windows are taken within each period, so each indicator has a line per period.
+    for colour in (CHART.primary, CHART.secondary):
+        lines = _placed(warnings.svg, colour, "2.5")
+        assert len(lines) == 2
+        first, second = sorted(lines)
+        assert max(first) < min(second)
+    assert {"1 Mar", "10 May"} <= set(texts)
+    assert not {"15 Mar", "29 Mar", "12 Apr", "26 Apr"} & set(texts)
+    lines_of = [[s.text for s in t.iter(f"{SVG}tspan")]
+                for t in ET.fromstring(warnings.svg).iter(f"{SVG}text")]
+    assert ["9 weeks", "without prompts"] in lines_of  # the gap, in two lines on a low panel
+    assert warnings.description.endswith(
+        "From 7 March to 9 May there were no prompts (9 weeks without prompts).")

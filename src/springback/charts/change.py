@@ -20,6 +20,7 @@ from springback.charts.common import (
     time_axis,
 )
 from springback.charts.palette import CHART, DIVERGING, readable_text_on
+from springback.charts.panels import panel_axes, panel_of, period_panels, side_by_side
 from springback.charts.svg import PLOT_WIDTH, to_svg
 from springback.findings.warning import agreeing_cells, grid_agreement, study_trends
 
@@ -172,29 +173,54 @@ def warnings_chart(ctx: Inputs) -> Chart | None:
 
 
 def _indicator_panel(ctx: Inputs, daily: pd.DataFrame, name: str, measure: str,
-                     colour: str, *, dated: bool) -> alt.LayerChart:
+                     colour: str, *, dated: bool) -> alt.LayerChart | alt.HConcatChart:
     _ = ctx.gettext
     t = day_noon_ms(ctx, daily["day"])
     frame = pd.DataFrame({"t": t, "v": daily["v"].to_numpy()})
     # Theil–Sen slope (Sen 1968): the rank-based line that goes with Kendall's tau.
     slope, intercept, _lo, _hi = stats.theilslopes(frame["v"], (t - t[0]) / 86_400_000)
-    ends = pd.DataFrame({"t": [t[0], t[-1]],
-                         "v": [intercept, intercept + slope * (t[-1] - t[0]) / 86_400_000]})
+
+    def trend(at: np.ndarray) -> pd.DataFrame:
+        return pd.DataFrame({"t": at, "v": intercept + slope * (at - t[0]) / 86_400_000})
+
     tau = ctx.estimate("warnings", measure)
     note = (_("dashed line: trend; Kendall's tau {tau}").format(
                 tau=ctx.num(float(cast(float, tau.value)), 2))
             if tau.ok else _("dashed line: trend; Kendall's tau not computed"))
-    x = time_axis(ctx, _("Date"), t).x("t", show_title=dated)
-    y = alt.Y("v", type="quantitative", scale=alt.Scale(zero=False), axis=alt.Axis(title=None))
+    title = alt.TitleParams(name, subtitle=note, subtitleColor=CHART.ink, subtitleFontSize=13)
+    periods = period_panels(ctx)
+    if periods is None:
+        x = time_axis(ctx, _("Date"), t).x("t", show_title=dated)
+        y = alt.Y("v", type="quantitative", scale=alt.Scale(zero=False),
+                  axis=alt.Axis(title=None))
+        return _indicator_layers(frame, trend(np.array([t[0], t[-1]])), x, y, colour
+                                 ).properties(title=title, width=PLOT_WIDTH, height=120)
+    # One panel per measurement period on one value scale; the one trend line in pieces.
+    where = panel_of(periods, t)
+    pieces = [trend(np.array([t[where == i][0], t[where == i][-1]])) if (where == i).any()
+              else trend(np.array([], dtype=np.int64)) for i in range(len(periods))]
+    values = np.concatenate([frame["v"].to_numpy(float), *(p["v"].to_numpy() for p in pieces)])
+    scale = alt.Scale(domain=[float(np.nanmin(values)), float(np.nanmax(values))], zero=False)
+    plots: list[alt.LayerChart | alt.FacetChart] = []
+    for i, (axis, width) in enumerate(panel_axes(ctx, _("Date"), periods, t, PLOT_WIDTH)):
+        y = alt.Y("v", type="quantitative", scale=scale,
+                  axis=alt.Axis(title=None) if i == 0 else
+                  alt.Axis(title=None, labels=False, ticks=False))
+        plots.append(_indicator_layers(frame[where == i], pieces[i],
+                                       axis.x("t", show_title=dated), y, colour
+                                       ).properties(width=width, height=120))
+    return side_by_side(periods, plots, 120).properties(title=title)
+
+
+def _indicator_layers(frame: pd.DataFrame, ends: pd.DataFrame, x: alt.X, y: alt.Y,
+                      colour: str) -> alt.LayerChart:
+    """An indicator's daily values and its dashed trend line on one date axis."""
     return alt.LayerChart(layer=[
         alt.Chart(alt.Data(values=records(frame)))
         .mark_line(color=colour, strokeWidth=2.5).encode(x=x, y=y),
         alt.Chart(alt.Data(values=records(ends)))
         .mark_line(color=CHART.axis, strokeWidth=2, strokeDash=[6, 4]).encode(x=x, y=y),
-    ]).properties(
-        title=alt.TitleParams(name, subtitle=note, subtitleColor=CHART.ink, subtitleFontSize=13),
-        width=PLOT_WIDTH, height=120,
-    )
+    ])
 
 
 def _warning_numbers(ctx: Inputs) -> dict[str, Any]:
@@ -228,6 +254,7 @@ def _warnings_description(ctx: Inputs) -> str:
         _("The dashed lines show the overall trend. Such changes often come and go without "
           "any shift in mood, so they are not a prediction."),
     ]
+    parts += [p.gap_sentence for p in period_panels(ctx) or [] if p.gap_sentence]
     return " ".join(parts)
 
 
