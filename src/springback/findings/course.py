@@ -36,7 +36,9 @@ Rules, in this order (thresholds are those of the family that computed the numbe
    it) is gradual, not abrupt;
 3. gradual change: the Theil-Sen slope of the daily means (Sen 1968, JASA 63:1379-1389) has a
    95% interval that excludes 0 and the drift over the study exceeds twice the day-to-day
-   noise;
+   noise; with several measurement periods the slope is taken within periods (pairs of days
+   in the same period, Hirsch, Slack & Smith 1982) and the line has a level per period, so a
+   difference between periods is never read as a drift through the weeks nobody answered;
 4. passing episode: a segment of the daily level of at least EPISODE_MIN_DAYS days lies more
    than twice the swing away from the segments on both sides (same direction), and the level
    came back (those two differ by less than twice the swing), with a large change point among
@@ -97,26 +99,80 @@ def value(family: Family | None, name: str) -> float | None:
     return float(cast(float, est.value)) if est.ok else None
 
 
-def trend(days: np.ndarray, y: np.ndarray, level: np.ndarray, n_cp: int, s: float
-          ) -> dict[str, float | bool]:
-    """Compare a gradual course (line or broken line) with the step model of PELT."""
-    _, _, lo, hi = stats.theilslopes(y, days, alpha=0.95)
+def within_slopes(days: np.ndarray, y: np.ndarray, groups: np.ndarray,
+                  alpha: float = 0.95) -> tuple[float, float, float]:
+    """Sen's slope over pairs of days in the same measurement period, with its confidence
+    interval: the seasonal Kendall slope estimator of Hirsch, Slack & Smith 1982 ("Techniques
+    of trend analysis for monthly water quality data", Water Resources Research 18:107-121),
+    periods in the place of seasons. The interval takes the ranks (N -+ z sqrt(Var S)) / 2 of
+    the N sorted pairwise slopes (as scipy counts them), Var S the sum of each period's
+    n(n - 1)(2n + 5)/18 (no ties in the days); with one period it is scipy's `theilslopes` on
+    untied data."""
+    slopes = []
+    var_s = 0.0
+    for g in np.unique(groups):
+        x, v = days[groups == g], y[groups == g]
+        i, j = np.triu_indices(len(x), 1)
+        slopes.append((v[j] - v[i]) / (x[j] - x[i]))
+        var_s += len(x) * (len(x) - 1) * (2 * len(x) + 5) / 18.0
+    pairs = np.sort(np.concatenate(slopes))
+    z = stats.norm.ppf(0.5 + alpha / 2.0)
+    c = z * math.sqrt(var_s)
+    lower = int(np.round((len(pairs) - c) / 2.0)) - 1
+    upper = int(np.round((len(pairs) + c) / 2.0))
+    lower, upper = max(lower, 0), min(upper, len(pairs) - 1)
+    return float(np.median(pairs)), float(pairs[lower]), float(pairs[upper])
+
+
+def trend(days: np.ndarray, y: np.ndarray, level: np.ndarray, n_cp: int, s: float,
+          groups: np.ndarray | None = None) -> dict[str, float | bool]:
+    """Compare a gradual course (line or broken line) with the step model of PELT.
+
+    With `groups` (the measurement period of each day, more than one) the slope is taken
+    within periods only and each period has its own intercept, as the step model has its own
+    levels per period: a difference between periods says nothing about how the mood changed
+    while nobody answered (it is `period_difference` of the shifts family)."""
     n = len(y)
     scale = s * s if s > 0 else float(np.var(y)) or 1.0
-    line = np.polyval(np.polyfit(days, y, 1), days)
-    cost_line = float(np.sum((y - line) ** 2)) / scale + math.log(n)
-    fit, cost_gradual = line, cost_line
+    if groups is not None and len(np.unique(groups)) > 1:
+        _, lo, hi = within_slopes(days, y, groups)
+        base = (groups[:, None] == np.unique(groups)[None, :]).astype(float)
+    else:
+        groups = None
+        _, _, lo, hi = stats.theilslopes(y, days, alpha=0.95)
+        base = np.ones((n, 1))
+    if groups is None:
+        fit = np.polyval(np.polyfit(days, y, 1), days)
+    else:
+        design = np.column_stack([base, days])
+        fit = design @ np.linalg.lstsq(design, y, rcond=None)[0]
+    cost_gradual = float(np.sum((y - fit) ** 2)) / scale + math.log(n)
     for knot in days[2:n - 2]:
-        design = np.column_stack([np.ones(n), days, np.maximum(days - knot, 0.0)])
+        design = np.column_stack([base, days, np.maximum(days - knot, 0.0)])
         coef, *_ = np.linalg.lstsq(design, y, rcond=None)
         cost = float(np.sum((y - design @ coef) ** 2)) / scale + 3 * math.log(n)
         if cost < cost_gradual:
             fit, cost_gradual = design @ coef, cost
     cost_step = float(np.sum((y - level) ** 2)) / scale + 2 * n_cp * math.log(n)
-    return {"drift": float(fit[-1] - fit[0]), "slope_low": float(lo), "slope_high": float(hi),
+    if groups is None:
+        drift = float(fit[-1] - fit[0])
+    else:
+        drift = float(sum(fit[groups == g][-1] - fit[groups == g][0] for g in np.unique(groups)))
+    return {"drift": drift, "slope_low": float(lo), "slope_high": float(hi),
             "slope_excludes_zero": bool(lo > 0 or hi < 0),
             "bic_gradual_minus_step": cost_gradual - cost_step,
             "line_better": cost_gradual <= cost_step}
+
+
+def day_groups(daily: pd.DataFrame, shifts: Family) -> np.ndarray | None:
+    """The measurement period of each daily row (from the shifts family's `period_levels`),
+    or None with one period."""
+    periods = shifts.tables.get("period_levels")
+    if periods is None or len(periods) < 2:
+        return None
+    starts = pd.to_datetime(periods["first_day"]).to_numpy()
+    return np.searchsorted(starts, pd.to_datetime(daily["study_day"]).to_numpy(),
+                           side="right") - 1
 
 
 def staircase(cps: pd.DataFrame) -> dict[str, Any] | None:
@@ -209,7 +265,7 @@ def course(participant: str, families: Mapping[str, Family], alpha: float,
     swing = float(shifts.params.get("within_segment_sd", s))
     days = ((daily["study_day"] - daily["study_day"].iloc[0]).dt.days).to_numpy(dtype=float)
     y, level = daily["mean"].to_numpy(float), daily["level"].to_numpy(float)
-    tr = trend(days, y, level, len(cps), s)
+    tr = trend(days, y, level, len(cps), s, day_groups(daily, shifts))
     stairs = staircase(cps)
     shift: dict[str, Any] | None = None
     if not big.empty:
