@@ -343,3 +343,23 @@ def test_editions_are_checked() -> None:
     env = render.make_environment(None, "en")
     with pytest.raises(ValueError, match="built for the participant edition"):
         render.render_edition(env, context, "therapist")
+
+
+@pytest.mark.parametrize("edition", ["participant", "therapist"])
+def test_too_few_episodes_show_no_recovery_chart_to_the_participant(edition: str) -> None:
+    """Check that 'not enough data' for bouncing back never stands beside a recovery chart
+    in the participant edition (the therapist still sees the episodes that were found)."""
+    import dataclasses
+
+    from springback.metrics.results import Estimate, Family
+
+    results = sample_results(sample_data())
+    few = Family(estimates={
+        "recovery_half_life_hours": Estimate.missing("only 2 episodes; at least 3 are needed"),
+        "n_episodes": Estimate(2.0, n=2)})
+    results = dataclasses.replace(results, families={**results.families, "recovery": few})
+    html = render_booklet(edition, results=results)
+    section = html[html.index('id="s-bouncing_back"'):]
+    section = section[:section.index("</section>")]
+    assert "Not enough data for this part." in section
+    assert ('id="chart-recovery"' in section) == (edition == "therapist")
