@@ -160,6 +160,7 @@ def build_context(
         raise ValueError(f"edition must be one of {', '.join(EDITIONS)}, got {edition!r}")
     own_flags = [f for f in flags if f.participant == data.participant]
     by_topic = findings.by_topic()
+    charts = _explained(charts, edition, by_topic)
     refer = by_topic["help"].reading == "refer" if "help" in by_topic else False
     series = results.series
     sections = _sections(settings, edition, refer)
@@ -260,6 +261,22 @@ def inline_svg(svg: str) -> str:
             element.set("href", element.attrib.pop(name))  # SVG 2 reads plain href
     root.set("xmlns", SVG_NS)
     return ET.tostring(root, encoding="unicode")
+
+
+EXPLAINED_BY = {"recovery": "recovery"}
+"""Charts the participant edition shows only beside a reading of this topic: 'not enough data'
+never stands next to a picture of the few episodes there were (the therapist edition still
+shows them)."""
+
+
+def _explained(charts: dict[str, Chart], edition: Edition,
+               by_topic: dict[str, Finding]) -> dict[str, Chart]:
+    """The charts this edition may show, given the findings they explain."""
+    if edition != "participant":
+        return charts
+    return {key: c for key, c in charts.items()
+            if key not in EXPLAINED_BY or (EXPLAINED_BY[key] in by_topic
+                                           and by_topic[EXPLAINED_BY[key]].known)}
 
 
 def _shown(wanted: tuple[str, ...], charts: dict[str, Chart]) -> list[str]:
