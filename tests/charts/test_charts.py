@@ -558,17 +558,21 @@ def test_clip_path_ids_from_vl_convert_become_stable_and_namespaced():
     Two conversions of the same clipped spec get different raw ids (clip1, clip2); after
     `to_svg` both are identical and the ids carry the chart key.
     """
+    import altair as alt
     import vl_convert
 
-    from springback.charts.svg import to_svg
+    from springback.charts.svg import _rendered as svg_cache
+    from springback.charts.svg import to_svg, vega_lite
 
-    spec = {"data": {"values": [{"x": 1, "y": 2}, {"x": 3, "y": 9}]},
-            "mark": {"type": "line", "clip": True}, "width": 100, "height": 50,
-            "encoding": {"x": {"field": "x", "type": "quantitative",
-                               "scale": {"domain": [0, 2]}},
-                         "y": {"field": "y", "type": "quantitative"}}}
-    raw = [vl_convert.vegalite_to_svg(spec) for _ in range(2)]
+    chart = (alt.Chart(alt.Data(values=[{"x": 1, "y": 2}, {"x": 3, "y": 9}]), width=100,
+                       height=50).mark_line(clip=True)
+             .encode(x=alt.X(field="x", type="quantitative", scale=alt.Scale(domain=[0, 2])),
+                     y=alt.Y(field="y", type="quantitative")))
+    raw = [vl_convert.vegalite_to_svg(vega_lite(chart)) for _ in range(2)]
     assert re.findall(r'id="([^"]+)"', raw[0]) != re.findall(r'id="([^"]+)"', raw[1])
-    first, second = (to_svg(spec, "trend", "T", "D", "en") for _ in range(2))
+    svg_cache.clear()  # each to_svg below renders anew, with a fresh clip id
+    first = to_svg(chart, "trend", "T", "D", "en")
+    svg_cache.clear()
+    second = to_svg(chart, "trend", "T", "D", "en")
     assert first == second
     assert 'clip-path="url(#sb-trend-1)"' in first and 'id="sb-trend-1"' in first

@@ -1,4 +1,4 @@
-"""Turn a Vega-Lite spec into an accessible, self-contained SVG string for inlining.
+"""Turn an altair chart into an accessible, self-contained SVG string for inlining.
 
 vl-convert renders the spec (no JavaScript reaches the booklet); the result then gets a
 <title> and <desc> as direct children of the root (WeasyPrint takes the <title> as the PDF
@@ -159,13 +159,12 @@ def vega_lite(chart: alt.TopLevelMixin) -> dict[str, Any]:
     return spec
 
 
-def to_svg(spec: alt.TopLevelMixin | dict[str, Any], key: str, title: str, description: str,
+def to_svg(chart: alt.TopLevelMixin, key: str, title: str, description: str,
            language: str) -> str:
-    """Render a chart (altair, or a Vega-Lite dict) to an inline SVG with title, description
-    and namespaced ids."""
+    """Render an altair chart, validated against the Vega-Lite schema, to an inline SVG with
+    title, description and namespaced ids."""
     _register_fonts()
-    made = isinstance(spec, alt.TopLevelMixin)
-    spec = _spec(spec) if isinstance(spec, alt.TopLevelMixin) else spec
+    spec = _spec(chart)
     locale = vega_locale(language)
     # The renderer is part of the key: a stand-in for vl-convert never shares its SVGs.
     render = vl_convert.vegalite_to_svg
@@ -173,8 +172,7 @@ def to_svg(spec: alt.TopLevelMixin | dict[str, Any], key: str, title: str, descr
     with _rendered_lock:
         raw = _rendered.get(seen)
     if raw is None:
-        if made:
-            validate_spec(spec)
+        validate_spec(spec)
         raw = render(
             {**spec, "config": THEME}, allowed_base_urls=[], format_locale=cast(Any, locale),
             time_format_locale=cast(Any, locale),
