@@ -165,7 +165,8 @@ def warnings_chart(ctx: Inputs) -> Chart | None:
               for i, (column, measure, colour) in enumerate(shown)]
     spec = alt.vconcat(*panels, spacing=18)
     title = _("How the indicators changed over the study")
-    description = _warnings_description(ctx)
+    first = min(pd.Timestamp(d["day"].min()) for d in found.values())
+    description = _warnings_description(ctx, first)
     table = _warnings_table(ctx, found)
     return Chart("warnings", title, description,
                  to_svg(spec, "warnings", title, description, ctx.language), table,
@@ -242,10 +243,15 @@ def _trend_words(ctx: Inputs, code: str) -> str:
             "fell": _("fell")}.get(code, _("could not be judged"))
 
 
-def _warnings_description(ctx: Inputs) -> str:
+def _warnings_description(ctx: Inputs, first: pd.Timestamp) -> str:
     _ = ctx.gettext
     numbers = _warning_numbers(ctx)
     parts = [
+        # Why the lines start after the study does: each point needs a full window first.
+        _("Each point sums up the last {share} of the answers of its measurement period, so "
+          "the lines begin on {day}, once the first such stretch is complete.").format(
+            share=ctx.percent(float(ctx.settings.metrics.window)),
+            day=ctx.date(first)),
         _("Carry-over from one moment to the next {change} over the study.").format(
             change=_trend_words(ctx, str(numbers.get("study_trend_inertia")))),
         ctx.voice(_("The size of your ups and downs {change}."),
