@@ -340,6 +340,11 @@ def test_descriptions_state_the_pattern(charts):
     assert "reliable worsening" in charts["questionnaire_phq9"].description
     assert "Carry-over from one moment to the next rose" in charts["warnings"].description
     assert "ups and downs stayed about the same" in charts["warnings"].description
+    # The rolling windows here end from the 31st answer on (make_data's series from row 30):
+    # the caption names that day as where the lines begin and the settings' window share.
+    start = pd.Timestamp(make_data()[1]["local_time"].iloc[30]).tz_localize(None)
+    assert (f"the lines begin on {start.day} {start.strftime('%B')}, once the first such "
+            "stretch is complete") in charts["warnings"].description
     assert "3 times" in charts["recovery"].description
     assert "In 2 of them" in charts["recovery"].description
     assert "worse" in charts["load"].description or "better" in charts["load"].description
