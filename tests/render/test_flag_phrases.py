@@ -102,16 +102,16 @@ RULE_WORDS = {
            "hopeless recently": "score van 6 of meer op ‘hopeloos’",
            "hardly sad": "score van 2 of minder op ‘verdrietig’",
            "stopped answering": "7 dagen geen antwoorden",
-           "worse mood": "plotselinge verslechtering van de stemming",
-           "worse mood recently": "plotselinge verslechtering van de stemming"},
+           "worse mood": "een stap naar slechtere stemming",
+           "worse mood recently": "een stap naar slechtere stemming"},
     "de": {"phq high": "Wert von 20 oder mehr im PHQ-9",
            "phq high recently": "Wert von 20 oder mehr im PHQ-9",
            "hopeless": "Bewertung von „hoffnungslos“ mit 6 oder mehr",
            "hopeless recently": "Bewertung von „hoffnungslos“ mit 6 oder mehr",
            "hardly sad": "Bewertung von „traurig“ mit 2 oder weniger",
            "stopped answering": "7 Tage ohne Antwort",
-           "worse mood": "plötzliche Verschlechterung der Stimmung",
-           "worse mood recently": "plötzliche Verschlechterung der Stimmung"},
+           "worse mood": "ein Schritt zu schlechterer Stimmung",
+           "worse mood recently": "ein Schritt zu schlechterer Stimmung"},
 }
 """What each rule looks at; an English booklet shows the rule's own name from the settings."""
 
@@ -126,11 +126,11 @@ DETAILS = {
         "hardly sad": "The latest rating of 'sad' of 2 or less was 1.5, on 20 April 2026.",
         "stopped answering": "No answers for 9 days before the end of the data period (the "
                              "rule: 7 days); the last answer was on 20 April 2026.",
-        "worse mood": "An abrupt worsening of the daily average low mood by 2.7 scale points "
+        "worse mood": "A step towards worse in the daily average low mood of 2.7 scale points "
                       "from 20 April 2026, larger than the usual day-to-day swing.",
-        "worse mood recently": "An abrupt worsening of the daily average low mood by 2.7 scale "
-                               "points from 20 April 2026, larger than the usual day-to-day "
-                               "swing (only shifts of the last 21 days count).",
+        "worse mood recently": "A step towards worse in the daily average low mood of 2.7 "
+                               "scale points from 20 April 2026, larger than the usual "
+                               "day-to-day swing (only steps of the last 21 days count).",
     },
     "nl": {
         "phq high": "De laatste score van 20 of meer op de PHQ-9 was 22, op 20 april 2026.",
@@ -143,13 +143,13 @@ DETAILS = {
                       "2026.",
         "stopped answering": "9 dagen geen antwoorden vóór het einde van de gegevensperiode (de "
                              "regel: 7 dagen); het laatste antwoord kwam op 20 april 2026.",
-        "worse mood": "Een plotselinge verslechtering van het daggemiddelde van ‘sombere "
-                      "stemming’ met 2,7 schaalpunten vanaf 20 april 2026, groter dan de "
-                      "gebruikelijke schommeling van dag tot dag.",
-        "worse mood recently": "Een plotselinge verslechtering van het daggemiddelde van "
-                               "‘sombere stemming’ met 2,7 schaalpunten vanaf 20 april 2026, "
-                               "groter dan de gebruikelijke schommeling van dag tot dag (alleen "
-                               "verschuivingen in de laatste 21 dagen tellen).",
+        "worse mood": "Een stap naar slechter in het daggemiddelde van ‘sombere stemming’ "
+                      "van 2,7 schaalpunten vanaf 20 april 2026, groter dan de gebruikelijke "
+                      "schommeling van dag tot dag.",
+        "worse mood recently": "Een stap naar slechter in het daggemiddelde van ‘sombere "
+                               "stemming’ van 2,7 schaalpunten vanaf 20 april 2026, groter dan "
+                               "de gebruikelijke schommeling van dag tot dag (alleen stappen in "
+                               "de laatste 21 dagen tellen).",
     },
     "de": {
         "phq high": "Der letzte Wert von 20 oder mehr im PHQ-9 war 22, am 20. April 2026.",
@@ -163,13 +163,13 @@ DETAILS = {
                       "April 2026.",
         "stopped answering": "Vor dem Ende des Datenzeitraums 9 Tage ohne Antwort (die Regel: "
                              "7 Tage); die letzte Antwort kam am 20. April 2026.",
-        "worse mood": "Eine plötzliche Verschlechterung des Tagesmittels von „gedrückte "
-                      "Stimmung“ um 2,7 Skalenpunkte ab dem 20. April 2026, größer als die "
-                      "übliche Schwankung von Tag zu Tag.",
-        "worse mood recently": "Eine plötzliche Verschlechterung des Tagesmittels von "
-                               "„gedrückte Stimmung“ um 2,7 Skalenpunkte ab dem 20. April "
-                               "2026, größer als die übliche Schwankung von Tag zu Tag (es "
-                               "zählen nur Verschiebungen der letzten 21 Tage).",
+        "worse mood": "Ein Schritt zum Schlechteren im Tagesmittel von „gedrückte Stimmung“ "
+                      "um 2,7 Skalenpunkte ab dem 20. April 2026, größer als die übliche "
+                      "Schwankung von Tag zu Tag.",
+        "worse mood recently": "Ein Schritt zum Schlechteren im Tagesmittel von „gedrückte "
+                               "Stimmung“ um 2,7 Skalenpunkte ab dem 20. April 2026, größer "
+                               "als die übliche Schwankung von Tag zu Tag (es zählen nur "
+                               "Schritte der letzten 21 Tage).",
     },
 }
 

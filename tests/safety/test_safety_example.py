@@ -37,11 +37,11 @@ def test_planted_flags_are_found(flags: dict[str, list[Flag]]) -> None:
     truth = pd.read_csv(EXAMPLE / "truth.csv", dtype=str).set_index("participant")
     rules = {pid: {(f.rule, f.action) for f in fl} for pid, fl in flags.items()}
     assert ("severe depression score", "hold") in rules["P08"]
-    assert ("abrupt worsening", "refer") in rules["P05"]
+    assert ("step to worse mood", "refer") in rules["P05"]
     assert ("stopped answering", "refer") in rules["P09"]
     assert ("stopped answering", "refer") in rules["P12"]
     # The shift is dated near the planted shift day (days counted from the first study day).
-    [shift] = [f for f in flags["P05"] if f.rule == "abrupt worsening"]
+    [shift] = [f for f in flags["P05"] if f.rule == "step to worse mood"]
     planted = pd.Timestamp("2026-02-02") + pd.Timedelta(days=int(truth.loc["P05", "shift_day"]))
     assert abs((pd.Timestamp(shift.when) - planted).days) <= 3
     assert shift.value is not None and shift.value > 0

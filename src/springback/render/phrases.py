@@ -219,7 +219,7 @@ def rule_words(flag: Any, settings: Any, language: str, tr: Translator,
         return tr.ngettext("no answers for %(n)d day", "no answers for %(n)d days",
                            rule.silence_days) % {"n": rule.silence_days}
     if rule.shift:
-        return tr.gettext("abrupt worsening of the mood")
+        return tr.gettext("a step towards worse mood")
     kind, name = _source(rule, settings, language)
     if kind == "questionnaire":
         return tr.gettext("%(questionnaire)s score of %(bound)s") % {
@@ -233,7 +233,7 @@ def flag_detail(flag: Any, settings: Any, language: str, tr: Translator,
     """What triggered a flag, in the booklet's language, from its rule, value and date.
 
     'The latest PHQ-9 score of 20 or more in the last 28 days was 22, on 20 April 2026.'
-    'An abrupt worsening of the daily average low mood by 2.7 scale points from 20 April
+    'A step towards worse in the daily average low mood of 2.7 scale points from 20 April
     2026, larger than the usual day-to-day swing.'
     """
     rule = _rule_of(flag, settings)
@@ -260,11 +260,11 @@ def flag_detail(flag: Any, settings: Any, language: str, tr: Translator,
                 "size": number(abs(float(value or 0.0))), "day": day}
         if window:
             return tr.gettext(
-                "An abrupt worsening of the daily average %(variable)s by %(size)s scale "
-                "points from %(day)s, larger than the usual day-to-day swing (only shifts of "
+                "A step towards worse in the daily average %(variable)s of %(size)s scale "
+                "points from %(day)s, larger than the usual day-to-day swing (only steps of "
                 "the last %(n)s days count).") % {**size, "n": number(window)}
         return tr.gettext(
-            "An abrupt worsening of the daily average %(variable)s by %(size)s scale points "
+            "A step towards worse in the daily average %(variable)s of %(size)s scale points "
             "from %(day)s, larger than the usual day-to-day swing.") % size
     kind, name = _source(rule, settings, language)
     words = {"name": name, "bound": _bound(rule, tr, number),

@@ -15,7 +15,7 @@ Rule sources and what "hit" means (one flag per rule and participant, for the la
 
 - questionnaire: a total score at or above `at_least`, or at or below `at_most`;
 - item: a momentary rating of that item at or above `at_least` (or at or below `at_most`);
-- shift: an abrupt worsening found by the shifts family (direction 'worse') that is larger than
+- shift: a step towards worse found by the shifts family (direction 'worse') that is larger than
   the person's usual day-to-day swing (`exceeds_swings`);
 - silence_days = N: no answered prompt in the last N days of the data period, that is
   last answer <= period end - N days. The period end is `period_end` when given (the study's
@@ -151,7 +151,7 @@ def _shift_flag(pid: str, rule: SafetyRule, results: ParticipantResults,
         return None
     last = days[hit].sort_values(kind="stable").index[-1]
     size, day = float(cp.loc[last, "size"]), days[last].date().isoformat()
-    detail = (f"an abrupt worsening of the daily average {variable} by {abs(size):.2g} "
+    detail = (f"a step towards worse in the daily average {variable} of {abs(size):.2g} "
               f"scale points from {day}, larger than the usual day-to-day swing"
               f"{_window_words(rule)}")
     return Flag(pid, rule.name, rule.action, size, day, detail)
