@@ -158,7 +158,29 @@ def test_page_one_holds_the_summary_the_help_strip_and_the_mood_chart(built_exam
         assert caption is not None, f"{path}: the summary has no chart"
         page = " ".join(pypdf.PdfReader(path).pages[0].extract_text()
                         .replace("\u00a0", " ").split())
-        assert " ".join(caption.group(1).split()) in page, f"{path}: the mood chart is not on page 1"
+        title = " ".join(caption.group(1).split())
+        assert title in page, f"{path}: the mood chart is not on page 1"
         assert "+99 999" in page, f"{path}: the help strip is not on page 1"
         checked += 1
     assert checked >= 8
+
+
+def test_every_marked_element_is_a_real_tag(built_example: Path) -> None:
+    """Check that a finding's mark never runs into its tag's name (a '<tabledata-finding'
+    element is no table: its rows would print as run-together text)."""
+    class Tags(HTMLParser):
+        def __init__(self) -> None:
+            super().__init__(convert_charrefs=True)
+            self.names: set[str] = set()
+
+        def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+            self.names.add(tag)
+
+    marked_tables = 0
+    for path in sorted((built_example / "out" / "booklets").glob("*/*.html")):
+        html = path.read_text(encoding="utf-8")
+        tags = Tags()
+        tags.feed(html)
+        assert not {t for t in tags.names if "data-" in t or '"' in t}, path
+        marked_tables += html.count('<table data-finding="warning"')
+    assert marked_tables >= 5  # the therapist editions' trend-test tables
