@@ -14,23 +14,10 @@ from springback.findings.course import course, day_groups, trend, within_slopes
 from springback.metrics._series import prepare
 from springback.metrics.shifts import shift_family
 from springback.model import ParticipantData
-from tests.support.shifts_sim import participant, prompt_hours, settings
+from tests.support.shifts_sim import settings, two_periods
 
-PER_DAY = 6
 DAYS = 14
 
-
-def _two_periods(rng: np.random.Generator, level_1: np.ndarray, level_2: np.ndarray,
-                 gap_days: int, noise: float) -> ParticipantData:
-    """Daily levels of two periods, `gap_days` apart, each day's answers around its level."""
-    n1, n2 = len(level_1), len(level_2)
-    hours = np.concatenate([prompt_hours(n1, PER_DAY, rng),
-                            prompt_hours(n2, PER_DAY, rng) + (n1 + gap_days) * 24.0])
-    levels = np.repeat(np.concatenate([level_1, level_2]), PER_DAY)
-    values = np.clip(levels + rng.normal(0.0, noise, len(levels)), 0, 100)
-    data = participant(hours, values)
-    period = np.repeat([1, 2], [n1 * PER_DAY, n2 * PER_DAY])
-    return dataclasses.replace(data, momentary=data.momentary.assign(period=period))
 
 
 def _read(data: ParticipantData) -> tuple[str, dict[str, float | bool], dict[str, float | bool]]:
@@ -78,7 +65,7 @@ def test_a_difference_between_periods_is_not_a_gradual_change() -> None:
     readings, across_sure, within_sure = [], 0, 0
     for seed in range(10):
         rng = np.random.default_rng(seed)
-        data = _two_periods(rng, np.full(DAYS, 40.0), np.full(DAYS, 65.0), 60, 10.0)
+        data = two_periods(rng, np.full(DAYS, 40.0), np.full(DAYS, 65.0), 60, 10.0)
         reading, within, across = _read(data)
         readings.append(reading)
         across_sure += bool(across["slope_excludes_zero"])
@@ -99,7 +86,7 @@ def test_a_drift_within_the_periods_is_still_gradual() -> None:
         rng = np.random.default_rng(100 + seed)
         days_1 = np.arange(DAYS, dtype=float)
         days_2 = days_1 + DAYS + 30
-        data = _two_periods(rng, 30 + 1.0 * days_1, 30 + 1.0 * days_2, 30, 6.0)
+        data = two_periods(rng, 30 + 1.0 * days_1, 30 + 1.0 * days_2, 30, 6.0)
         s = settings()
         fam = shift_family(prepare(data, s), s)
         daily = fam.tables["daily"]
@@ -114,7 +101,7 @@ def test_a_drift_within_the_periods_is_still_gradual() -> None:
 def test_day_groups_follow_the_period_levels() -> None:
     """Each daily row takes the period whose first day it follows (from period_levels)."""
     rng = np.random.default_rng(7)
-    data = _two_periods(rng, np.full(DAYS, 40.0), np.full(DAYS, 45.0), 20, 5.0)
+    data = two_periods(rng, np.full(DAYS, 40.0), np.full(DAYS, 45.0), 20, 5.0)
     s = settings()
     fam = shift_family(prepare(data, s), s)
     groups = day_groups(fam.tables["daily"], fam)

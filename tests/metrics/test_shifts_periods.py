@@ -11,23 +11,7 @@ import pytest
 from springback.intake import load_study
 from springback.metrics._series import prepare
 from springback.metrics.shifts import shift_family
-from springback.model import ParticipantData
-from tests.support.shifts_sim import brute_force_partition, participant, prompt_hours, settings
-
-PER_DAY = 6
-
-
-def _two_periods(rng: np.random.Generator, level_1: np.ndarray, level_2: np.ndarray,
-                 gap_days: int, noise: float) -> ParticipantData:
-    """Daily levels of two periods, `gap_days` apart, each day's answers around its level."""
-    days_1, days_2 = len(level_1), len(level_2)
-    hours = np.concatenate([prompt_hours(days_1, PER_DAY, rng),
-                            prompt_hours(days_2, PER_DAY, rng) + (days_1 + gap_days) * 24.0])
-    levels = np.repeat(np.concatenate([level_1, level_2]), PER_DAY)
-    values = np.clip(levels + rng.normal(0.0, noise, len(levels)), 0, 100)
-    data = participant(hours, values)
-    period = np.repeat([1, 2], [days_1 * PER_DAY, days_2 * PER_DAY])
-    return dataclasses.replace(data, momentary=data.momentary.assign(period=period))
+from tests.support.shifts_sim import brute_force_partition, settings, two_periods
 
 
 def test_a_level_difference_between_periods_is_not_a_shift() -> None:
@@ -35,7 +19,7 @@ def test_a_level_difference_between_periods_is_not_a_shift() -> None:
     found_in_gap = 0
     for seed in range(5):
         rng = np.random.default_rng(seed)
-        data = _two_periods(rng, np.full(14, 40.0), np.full(14, 65.0), 40, 10.0)
+        data = two_periods(rng, np.full(14, 40.0), np.full(14, 65.0), 40, 10.0)
         s = settings()
         fam = shift_family(prepare(data, s), s)
         cps = fam.tables["change_points"]
@@ -62,7 +46,7 @@ def test_change_points_within_periods_are_the_optimal_partition_of_each_period()
     rng = np.random.default_rng(7)
     level_1 = np.concatenate([np.full(8, 30.0), np.full(8, 60.0)])    # shift on day 8
     level_2 = np.concatenate([np.full(10, 45.0), np.full(9, 20.0)])   # shift on day 10
-    data = _two_periods(rng, level_1, level_2, 21, 8.0)
+    data = two_periods(rng, level_1, level_2, 21, 8.0)
     penalty = 400.0
     s = settings(metrics={"pelt_penalty": penalty})
     fam = shift_family(prepare(data, s), s)
@@ -83,7 +67,7 @@ def test_change_points_within_periods_are_the_optimal_partition_of_each_period()
 def test_too_short_periods_say_so() -> None:
     """Two periods of 5 days each: no period holds two segments of 3 days."""
     rng = np.random.default_rng(2)
-    data = _two_periods(rng, np.full(5, 40.0), np.full(5, 60.0), 30, 5.0)
+    data = two_periods(rng, np.full(5, 40.0), np.full(5, 60.0), 30, 5.0)
     fam = shift_family(prepare(data, settings()), settings())
     assert not fam.estimates["n_shifts"].ok
     assert "in one measurement period" in fam.estimates["n_shifts"].note

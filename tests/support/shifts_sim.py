@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from typing import Any
 
@@ -144,3 +145,17 @@ def brute_force_partition(y: np.ndarray, penalty: float, min_size: int) -> list[
         ends.append(t)
         t = prev[t]
     return sorted(ends)
+
+
+def two_periods(rng: np.random.Generator, level_1: np.ndarray, level_2: np.ndarray,
+                gap_days: int, noise: float, per_day: int = 6) -> ParticipantData:
+    """Daily levels of two measurement periods, `gap_days` apart, each day's `per_day`
+    answers around its level (the momentary rows carry their period, 1 or 2)."""
+    days_1, days_2 = len(level_1), len(level_2)
+    hours = np.concatenate([prompt_hours(days_1, per_day, rng),
+                            prompt_hours(days_2, per_day, rng) + (days_1 + gap_days) * 24.0])
+    levels = np.repeat(np.concatenate([level_1, level_2]), per_day)
+    values = np.clip(levels + rng.normal(0.0, noise, len(levels)), 0, 100)
+    data = participant(hours, values)
+    period = np.repeat([1, 2], [days_1 * per_day, days_2 * per_day])
+    return dataclasses.replace(data, momentary=data.momentary.assign(period=period))
