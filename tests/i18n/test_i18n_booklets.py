@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import re
-from html.parser import HTMLParser
 from pathlib import Path
 
 import pandas as pd
@@ -20,6 +19,7 @@ from springback.i18n.language import (
     translations,
 )
 from springback.i18n.readability import FORMULAS, PLAIN_LEVEL, measure, text_of_html
+from tests.support.html_text import AllText
 
 pytestmark = pytest.mark.xdist_group("example")
 
@@ -31,53 +31,9 @@ def _foreign_months(language: str) -> set[str]:
     return english - set(get_month_names("wide", locale=LOCALES[language]).values())
 
 
-_VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source",
-         "track", "wbr"}
-
-
-class _AllText(HTMLParser):
-    """Every text a reader or screen reader meets: content, chart titles, alt and labels.
-
-    Text inside an element whose `lang` differs from the page's (say, a reference list marked
-    lang="en" in a German booklet) is declared as another language, so screen readers read it
-    right; with `marked_foreign=False` it is left out.
-    """
-
-    def __init__(self, marked_foreign: bool = True) -> None:
-        super().__init__(convert_charrefs=True)
-        self.parts: list[str] = []
-        self.lang = ""
-        self.marked_foreign = marked_foreign
-        self._open: list[tuple[str, bool]] = []  # (tag, text inside is skipped)
-
-    def _skipping(self) -> bool:
-        return bool(self._open) and self._open[-1][1]
-
-    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
-        found = dict(attrs)
-        if tag == "html":
-            self.lang = found.get("lang") or ""
-        foreign = bool(found.get("lang")) and found.get("lang") != self.lang
-        skip = self._skipping() or tag in ("script", "style") or (
-            foreign and not self.marked_foreign)
-        if not skip:
-            self.parts += [v for k, v in attrs if k in ("alt", "title", "aria-label") and v]
-        if tag not in _VOID:
-            self._open.append((tag, skip))
-
-    def handle_endtag(self, tag: str) -> None:
-        if any(t == tag for t, _ in self._open):
-            while self._open and self._open.pop()[0] != tag:
-                pass
-
-    def handle_data(self, data: str) -> None:
-        if not self._skipping():
-            self.parts.append(data)
-
-
-def _read(path: Path, marked_foreign: bool = True) -> _AllText:
+def _read(path: Path, marked_foreign: bool = True) -> AllText:
     """Parse a booklet, with or without the parts marked as written in another language."""
-    parser = _AllText(marked_foreign)
+    parser = AllText(marked_foreign)
     parser.feed(path.read_text(encoding="utf-8"))
     return parser
 

@@ -9,10 +9,11 @@ quotes as such (inside <q> or <blockquote>) are left out.
 from __future__ import annotations
 
 import re
-from html.parser import HTMLParser
 from pathlib import Path
 
 import pytest
+
+from tests.support.html_text import AllText
 
 pytestmark = pytest.mark.xdist_group("example")
 
@@ -26,44 +27,13 @@ Dutch 'je', 'jouw', 'jij' and German 'du', 'dein...', 'dich', 'dir' the particip
 use."""
 
 QUOTED = {"q", "blockquote"}
-_VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source",
-         "track", "wbr"}
-
-
-class _Texts(HTMLParser):
-    """The page's language and its texts, one per text node or text attribute."""
-
-    def __init__(self) -> None:
-        super().__init__(convert_charrefs=True)
-        self.lang = ""
-        self.texts: list[str] = []
-        self._open: list[tuple[str, bool]] = []  # (tag, text inside is skipped)
-
-    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
-        if tag == "html":
-            self.lang = dict(attrs).get("lang") or ""
-        skip = bool(self._open and self._open[-1][1]) or tag in QUOTED | {"script", "style"}
-        if not skip:
-            self.texts += [v for k, v in attrs if k in ("alt", "title", "aria-label") and v]
-        if tag not in _VOID:
-            self._open.append((tag, skip))
-
-    def handle_endtag(self, tag: str) -> None:
-        if any(t == tag for t, _ in self._open):
-            while self._open and self._open.pop()[0] != tag:
-                pass
-
-    def handle_data(self, data: str) -> None:
-        if not (self._open and self._open[-1][1]) and data.strip():
-            self.texts.append(" ".join(data.split()))
-
-
 def addressed_to_participant(html: str) -> list[str]:
     """The texts of a booklet that address the reader in the second person."""
-    parser = _Texts()
+    parser = AllText(skipped=QUOTED)
     parser.feed(html)
     pattern = SECOND_PERSON[parser.lang]
-    return [text for text in parser.texts if pattern.search(text)]
+    texts = (" ".join(part.split()) for part in parser.parts)
+    return [text for text in texts if pattern.search(text)]
 
 
 @pytest.fixture(scope="module")
@@ -118,6 +88,6 @@ def test_search_for_second_person(html: str, found: list[str]) -> None:
 
 
 def _lang(path: Path) -> str:
-    parser = _Texts()
+    parser = AllText()
     parser.feed(path.read_text(encoding="utf-8"))
     return parser.lang
