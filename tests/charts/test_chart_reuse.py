@@ -81,3 +81,34 @@ def test_checking_a_data_set_by_its_first_row_gives_the_schema_s_verdict(inline:
     for spec, valid in ((good, True), (number_row, False), (odd_object, True)):
         assert _verdict(alt.vegalite.v6.schema.core.Root.validate, spec) is valid
         assert _verdict(svg.validate_spec, spec) is valid
+
+
+def test_a_builder_without_altair_s_part_checks_still_refuses_an_invalid_chart() -> None:
+    """`checked_whole` turns off altair's check of each part as it is made; the whole spec is
+    still checked by `to_svg`, so a wrong part fails there with the schema's reason."""
+    @svg.checked_whole
+    def build() -> str:
+        line = alt.Chart(alt.Data(values=[{"d": 0, "m": 1.0}])).mark_line(
+            strokeWidth="thick")  # a number in the schema
+        return svg.to_svg(line.encode(x="d:Q", y="m:Q"), "bad", "Bad", "A wrong width.", "en")
+
+    with pytest.raises(jsonschema.ValidationError, match="thick"):
+        build()
+    # Outside a builder altair itself refuses the same part at once, as before.
+    with pytest.raises(Exception, match="thick"):
+        alt.Chart(alt.Data(values=[{"d": 0, "m": 1.0}])).mark_line(strokeWidth="thick")
+    assert alt.utils.schemapi.DEBUG_MODE  # the builder left altair's setting as it was
+
+
+def test_rows_held_as_a_tuple_write_the_same_spec_as_a_list() -> None:
+    from springback.charts.common import inline, records
+
+    frame = pd.DataFrame({"t": [0, 1, 2], "v": [3.0, float("nan"), 4.5]})
+
+    def spec(data: alt.Data) -> dict:  # type: ignore[type-arg]
+        line = alt.Chart(data).mark_line().encode(x="t:Q", y="v:Q")
+        return alt.layer(line, line.mark_point()).properties(width=100).to_dict(validate=False)
+
+    held = inline(frame)
+    assert isinstance(held.values, tuple)
+    assert spec(held) == spec(alt.Data(values=records(frame)))

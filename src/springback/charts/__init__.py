@@ -14,6 +14,7 @@ from springback.charts.common import Chart, Inputs, checked_gettext
 from springback.charts.landscape import landscape_chart, load_chart
 from springback.charts.mood import mood_chart
 from springback.charts.questionnaires import questionnaire_charts
+from springback.charts.svg import checked_whole
 from springback.findings import Findings
 from springback.metrics.results import ParticipantResults
 from springback.model import Edition, ParticipantData
@@ -22,6 +23,7 @@ from springback.settings import StudySettings
 __all__ = ["Chart", "make_charts"]
 
 
+@checked_whole
 def make_charts(
     data: ParticipantData,
     results: ParticipantResults,

@@ -9,7 +9,7 @@ import babel.dates
 import numpy as np
 import pandas as pd
 
-from springback.charts.common import Chart, Inputs, records
+from springback.charts.common import Chart, Inputs, inline
 from springback.charts.palette import CALENDAR_RAMP, CHART, readable_text_on
 from springback.charts.panels import gap_words
 from springback.charts.svg import to_svg
@@ -64,7 +64,7 @@ def calendar_chart(ctx: Inputs) -> Chart | None:
             alt.Chart(alt.Data(values=named))
             .mark_text(fontSize=13, fontStyle="italic", color=CHART.ink)
             .encode(x=x, y=y, text=alt.Text(field="gap")))
-    data = alt.Data(values=records(cells.assign(weekday=[day_names[i] for i in cells["wd"]])))
+    data = inline(cells.assign(weekday=[day_names[i] for i in cells["wd"]]))
     spec = alt.layer(*layers, data=data).properties(width=7 * cell_w,
                                                     height=cell_h * len(rows))
     title = ctx.voice(_("Which prompts you answered"), _("Which prompts were answered"))

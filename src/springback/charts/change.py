@@ -15,8 +15,8 @@ from springback.charts.common import (
     Inputs,
     KeyItem,
     day_noon_ms,
+    inline,
     key_spec,
-    records,
     time_axis,
 )
 from springback.charts.palette import CHART, DIVERGING, readable_text_on
@@ -62,8 +62,8 @@ def recovery_chart(ctx: Inputs) -> Chart | None:
     layers: list[alt.Chart] = [
         alt.Chart(usual).mark_rule(color=CHART.axis, strokeWidth=1.5).encode(y=y("y")),
         alt.Chart(usual).mark_text(align="right", baseline="top", dy=4, color=CHART.ink)
-        .encode(x=alt.value(PLOT_WIDTH), y=y("y"), text=alt.Text(field="label")),
-        alt.Chart(alt.Data(values=records(lines[["episode", "hours", "deviation", "status"]])))
+        .encode(x=alt.XValue(PLOT_WIDTH), y=y("y"), text=alt.Text(field="label")),
+        alt.Chart(inline(lines[["episode", "hours", "deviation", "status"]]))
         .mark_line(color=CHART.neutral, strokeWidth=1.4)
         .encode(x=x("hours"), y=y("deviation"), detail=alt.Detail("episode", type="nominal"),
                 strokeDash=alt.StrokeDash("status", type="nominal",
@@ -76,7 +76,7 @@ def recovery_chart(ctx: Inputs) -> Chart | None:
                    dash=tuple(DASHED), width=1.5)]
     fit = ctx.table("recovery", "fit")
     if fit is not None:
-        layers.append(alt.Chart(alt.Data(values=records(fit[["hours", "deviation"]].dropna())))
+        layers.append(alt.Chart(inline(fit[["hours", "deviation"]].dropna()))
                       .mark_line(color=CHART.accent, strokeWidth=3.5)
                       .encode(x=x("hours"), y=y("deviation")))
         key.insert(0, KeyItem(_("typical way back (fitted curve)"), CHART.accent, width=3.5))
@@ -217,9 +217,9 @@ def _indicator_layers(frame: pd.DataFrame, ends: pd.DataFrame, x: alt.X, y: alt.
                       colour: str) -> alt.LayerChart:
     """An indicator's daily values and its dashed trend line on one date axis."""
     return alt.LayerChart(layer=[
-        alt.Chart(alt.Data(values=records(frame)))
+        alt.Chart(inline(frame))
         .mark_line(color=colour, strokeWidth=2.5).encode(x=x, y=y),
-        alt.Chart(alt.Data(values=records(ends)))
+        alt.Chart(inline(ends))
         .mark_line(color=CHART.axis, strokeWidth=2, strokeDash=[6, 4]).encode(x=x, y=y),
     ])
 
@@ -322,7 +322,7 @@ def grid_chart(ctx: Inputs) -> Chart | None:
         y = alt.Y("b", type="ordinal", sort=list(band_names.values()),
                   axis=alt.Axis(title=_("Smoothing (days)") if not (panels and side_by_side)
                                 else None))
-        base = alt.Chart(alt.Data(values=records(cells)))
+        base = alt.Chart(inline(cells))
         panels.append(alt.LayerChart(layer=[
             base.mark_rect(stroke=CHART.neutral, strokeWidth=1)
             .encode(x=x, y=y, fill=alt.Fill("fill", type="nominal", scale=None)),

@@ -13,8 +13,8 @@ from springback.charts.common import (
     Chart,
     Inputs,
     KeyItem,
+    inline,
     key_spec,
-    records,
 )
 from springback.charts.palette import CHART
 from springback.charts.svg import PLOT_WIDTH, to_svg
@@ -52,13 +52,13 @@ def landscape_chart(ctx: Inputs) -> Chart | None:
     y = alt.Y("u", type="quantitative",
               scale=alt.Scale(domain=[bottom, ceiling], nice=False, zero=False),
               axis=alt.Axis(title=_("Lower = more often"), labels=False, ticks=False))
-    ground = alt.Chart(alt.Data(values=records(curve[["x", "u"]])))
+    ground = alt.Chart(inline(curve[["x", "u"]]))
     layers: list[alt.Chart] = [
-        ground.mark_area(color=CHART.terrain).encode(x=x, y=y, y2=alt.datum(bottom)),
+        ground.mark_area(color=CHART.terrain).encode(x=x, y=y, y2=alt.Y2Datum(bottom)),
         ground.mark_line(color=CHART.primary, strokeWidth=3).encode(x=x, y=y),
     ]
     if len(valley_rows):
-        marked = alt.Chart(alt.Data(values=records(valley_rows)))
+        marked = alt.Chart(inline(valley_rows))
         layers += [
             marked.mark_point(shape="circle", filled=True, size=260, color=CHART.accent,
                               yOffset=-10, opacity=1).encode(x=x, y=y),
@@ -193,7 +193,7 @@ def load_chart(ctx: Inputs) -> Chart | None:
     layers: list[alt.Chart] = []
     key: list[KeyItem] = []
     if weekly:
-        layers.append(alt.Chart(alt.Data(values=records(daily)))
+        layers.append(alt.Chart(inline(daily))
                       .mark_point(shape="circle", filled=False, size=24, color=CHART.neutral,
                                   strokeWidth=1)
                       .encode(x=x, y=y))
@@ -201,7 +201,7 @@ def load_chart(ctx: Inputs) -> Chart | None:
     key.append(KeyItem(_("weekly averages, joined in time order") if weekly
                        else _("days, joined in time order"), CHART.primary))
     key += [KeyItem(name, CHART.primary, kind="point", shape=shapes[name]) for name in names]
-    steps = alt.Chart(alt.Data(values=records(path)))
+    steps = alt.Chart(inline(path))
     label = alt.Text(field="label")
     layers += [
         steps.mark_line(color=CHART.primary, strokeWidth=2)
@@ -209,11 +209,11 @@ def load_chart(ctx: Inputs) -> Chart | None:
         steps.mark_point(filled=True, size=80, color=CHART.primary, opacity=1)
         .encode(x=x, y=y, shape=alt.Shape("shape", type="nominal", scale=None)),
         # The start label sits below its point and the end label above, so they do not meet.
-        alt.Chart(alt.Data(values=records(ends.iloc[[0]])))
+        alt.Chart(inline(ends.iloc[[0]]))
         .mark_text(dy=10, baseline="top", align="left", dx=6, color=CHART.ink,
                    fontWeight="bold")
         .encode(x=x, y=y, text=label),
-        alt.Chart(alt.Data(values=records(ends.iloc[[1]])))
+        alt.Chart(inline(ends.iloc[[1]]))
         .mark_text(dy=-10, baseline="bottom", align="left", dx=6, color=CHART.ink,
                    fontWeight="bold")
         .encode(x=x, y=y, text=label),

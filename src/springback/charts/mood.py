@@ -18,8 +18,8 @@ from springback.charts.common import (
     KeyItem,
     TimeAxis,
     day_noon_ms,
+    inline,
     key_spec,
-    records,
     time_axis,
 )
 from springback.charts.palette import CHART
@@ -86,13 +86,13 @@ def mood_chart(ctx: Inputs) -> Chart | None:
         if band:
             layers += _band_layers(float(typical[0]), float(typical[1]), y)
         layers.append(
-            alt.Chart(alt.Data(values=records(pick(answers, i))))
+            alt.Chart(inline(pick(answers, i)))
             .mark_point(shape="circle", filled=False, size=22, color=CHART.neutral,
                         strokeWidth=1)
             .encode(x=x.x("t"), y=y("v")))
         layers += _shift_layers(ctx, x, y, partial(pick, i=i))
         layers.append(
-            alt.Chart(alt.Data(values=records(pick(means, i))))
+            alt.Chart(inline(pick(means, i)))
             .mark_line(color=CHART.primary, strokeWidth=3,
                        point=alt.OverlayMarkDef(filled=True, size=24, color=CHART.primary))
             .encode(x=x.x("t"), y=y("v"),
@@ -101,9 +101,9 @@ def mood_chart(ctx: Inputs) -> Chart | None:
             here = shown[i]
             here = here.assign(shape=[shapes.get(k, EVENT_SHAPES[-1]) for k in here["kind"]])
             layers.append(
-                alt.Chart(alt.Data(values=records(here[["t", "kind", "shape"]])))
+                alt.Chart(inline(here[["t", "kind", "shape"]]))
                 .mark_point(filled=True, size=90, color=CHART.accent, opacity=1)
-                .encode(x=x.x("t"), y=alt.value(8),
+                .encode(x=x.x("t"), y=alt.YValue(8),
                         shape=alt.Shape(field="shape", type="nominal", scale=None)))
         plots.append(alt.layer(*layers).properties(width=width, height=HEIGHT))
     plot = plots[0] if panels is None else side_by_side(panels, plots, HEIGHT)
@@ -185,15 +185,15 @@ def _shift_layers(ctx: Inputs, x: TimeAxis, y: Callable[[str], alt.Y],
     labelled = len(marks) <= MAX_SHIFT_LABELS  # more would overlap; the key names them
     marks = pick(marks)
     layers = [
-        alt.Chart(alt.Data(values=records(marks)))
+        alt.Chart(inline(marks))
         .mark_rule(color=CHART.highlight, strokeWidth=2, strokeDash=[2, 3])
         .encode(x=x.x("t")),
     ]
     if labelled:
         layers.append(
-            alt.Chart(alt.Data(values=records(marks)))
+            alt.Chart(inline(marks))
             .mark_text(align="left", dx=4, color=CHART.ink)
-            .encode(x=x.x("t"), y=alt.value(26), text=alt.Text(field="label")))
+            .encode(x=x.x("t"), y=alt.YValue(26), text=alt.Text(field="label")))
     levels = ctx.table("shifts", "daily")
     if levels is not None and "level" in levels.columns:
         # Each level holds from the start of its day; the last one to the end of its day.
@@ -204,7 +204,7 @@ def _shift_layers(ctx: Inputs, x: TimeAxis, y: Callable[[str], alt.Y],
                                              float(levels["level"].iloc[-1])),
                               "p": [*period, period[-1]]}).dropna()
         layers.append(
-            alt.Chart(alt.Data(values=records(pick(steps))))
+            alt.Chart(inline(pick(steps)))
             .mark_line(interpolate="step-after", color=CHART.highlight, strokeWidth=2,
                        strokeDash=[8, 4])
             .encode(x=x.x("t"), y=y("v"),

@@ -121,11 +121,11 @@ def side_by_side(panels: list[Panel], plots: list[alt.LayerChart | alt.FacetChar
             strip = alt.Chart(alt.Data(values=[{"label": label}]))
             row.append(alt.layer(
                 strip.mark_text(angle=270, baseline="middle", align="center", color=CHART.ink)
-                .encode(x=alt.value(GAP_WIDTH / 2), y=alt.value(height / 2),
+                .encode(x=alt.XValue(GAP_WIDTH / 2), y=alt.YValue(height / 2),
                         text=alt.Text(field="label")),
                 # the time axis goes on dashed: days are left out here
                 strip.mark_rule(color=CHART.axis, strokeDash=[3, 3])
-                .encode(x=alt.value(0), x2=alt.value(GAP_WIDTH), y=alt.value(height + 0.5)),
+                .encode(x=alt.XValue(0), x2=alt.X2Value(GAP_WIDTH), y=alt.YValue(height + 0.5)),
             ).properties(width=GAP_WIDTH, height=height))
     return alt.hconcat(*row, spacing=0)
 

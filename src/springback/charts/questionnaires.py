@@ -10,7 +10,7 @@ from springback.charts.common import (
     CHAR_WIDTH,
     Chart,
     Inputs,
-    records,
+    inline,
     time_axis,
 )
 from springback.charts.palette import BAND_FILLS, CHART
@@ -76,20 +76,20 @@ def _questionnaire_chart(ctx: Inputs, q: str) -> Chart | None:
     layers: list[alt.Chart] = []
     if len(band_rows):
         layers += [
-            alt.Chart(alt.Data(values=records(band_rows))).mark_rect()
+            alt.Chart(inline(band_rows)).mark_rect()
             .encode(y=y("lo"), y2=alt.Y2("hi"),
                     fill=alt.Fill("fill", type="nominal", scale=None)),
-            alt.Chart(alt.Data(values=records(band_rows.iloc[1:])))
+            alt.Chart(inline(band_rows.iloc[1:]))
             .mark_rule(color=CHART.neutral, strokeDash=[3, 3]).encode(y=y("lo")),
             # Band names sit in the right margin, clear of the scores.
-            alt.Chart(alt.Data(values=records(band_rows.assign(
-                mid=(band_rows["lo"] + band_rows["hi"]) / 2))))
+            alt.Chart(inline(band_rows.assign(
+                mid=(band_rows["lo"] + band_rows["hi"]) / 2)))
             .mark_text(align="left", baseline="middle", dx=8, color=CHART.ink, limit=margin)
-            .encode(x=alt.value(PLOT_WIDTH - margin), y=y("mid"),
+            .encode(x=alt.XValue(PLOT_WIDTH - margin), y=y("mid"),
                     text=alt.Text(field="label")),
         ]
     layers.append(
-        alt.Chart(alt.Data(values=records(points)))
+        alt.Chart(inline(points))
         .mark_line(color=CHART.primary, strokeWidth=2.5,
                    point=alt.OverlayMarkDef(filled=True, size=70, color=CHART.primary))
         .encode(x=axis.x("t"), y=y("v")))
@@ -122,7 +122,7 @@ def _sudden_layers(ctx: Inputs, q: str, scores: pd.DataFrame, x: alt.X,
                          "label": [words.get(str(k), str(k)) for k in sudden["kind"]]}).dropna()
     if rows.empty:
         return []
-    marked = alt.Chart(alt.Data(values=records(rows)))
+    marked = alt.Chart(inline(rows))
     return [
         marked.mark_point(shape="diamond", filled=False, size=260, strokeWidth=2.5,
                           color=CHART.highlight).encode(x=x, y=y),

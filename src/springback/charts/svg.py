@@ -19,11 +19,13 @@ import re
 import threading
 import xml.etree.ElementTree as ET
 from collections import OrderedDict
-from typing import Any, cast
+from collections.abc import Callable
+from typing import Any, ParamSpec, TypeVar, cast
 
 import altair as alt
 import jsonschema
 import vl_convert
+from altair.utils.schemapi import debug_mode
 from altair.vegalite.v6.schema import core
 
 from springback.charts.palette import CHART, FONT_FAMILY
@@ -143,6 +145,27 @@ def validate_spec(spec: dict[str, Any]) -> None:
     walking hundreds of rows through every branch of that anyOf (most of the check's time).
     """
     _schema_validator().validate(_one_row_each(spec))
+
+
+P = ParamSpec("P")
+T = TypeVar("T")
+
+
+def checked_whole(build: Callable[P, T]) -> Callable[P, T]:
+    """Run a chart builder without altair checking each part as it is made.
+
+    By default (its debug mode) altair validates every schema object against the Vega-Lite
+    schema when it is made, an inline data set row by row, and then copies it into each chart
+    built on it. `to_svg` checks the finished spec against the same schema, once and whole
+    (`validate_spec`), so an invalid chart still fails, only later; the parts' checks were
+    about a sixth of a chart's build time.
+    """
+    @functools.wraps(build)
+    def run(*args: P.args, **kwargs: P.kwargs) -> T:
+        with debug_mode(False):
+            return build(*args, **kwargs)
+
+    return run
 
 
 def _spec(chart: alt.TopLevelMixin) -> dict[str, Any]:

@@ -15,19 +15,19 @@ import numpy as np
 import pandas as pd
 
 from springback.charts.palette import CHART
-from springback.charts.svg import PLOT_WIDTH, to_svg
+from springback.charts.svg import PLOT_WIDTH, checked_whole, to_svg
 
 LANGUAGE = "en"
 
 
-def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
-    out = []
-    for row in frame.to_dict("records"):
-        out.append({str(k): (None if isinstance(v, float) and not math.isfinite(v) else v)
-                    for k, v in row.items()})
-    return out
+def _records(frame: pd.DataFrame) -> tuple[dict[str, Any], ...]:
+    """Rows for inline data, NaN as None, as a tuple (altair's copies share it; see
+    `springback.charts.common.inline`)."""
+    return tuple({str(k): (None if isinstance(v, float) and not math.isfinite(v) else v)
+                  for k, v in row.items()} for row in frame.to_dict("records"))
 
 
+@checked_whole
 def strip(key: str, label: str, unit: str, values: pd.DataFrame) -> tuple[str, pd.DataFrame]:
     """One dot per participant on the indicator's axis (`values`: participant, value)."""
     data = values[np.isfinite(values["value"].to_numpy(float))].sort_values(
@@ -42,6 +42,7 @@ def strip(key: str, label: str, unit: str, values: pd.DataFrame) -> tuple[str, p
     return to_svg(spec, f"study-{key}", f"{label} across participants", desc, LANGUAGE), data
 
 
+@checked_whole
 def forest(people: pd.DataFrame, group: pd.DataFrame) -> tuple[str, pd.DataFrame]:
     """Each participant's inertia with its 95% interval, then the two group estimates."""
     rows = people.rename(columns={"inertia": "value", "inertia_lower": "lower",
@@ -74,6 +75,7 @@ def forest(people: pd.DataFrame, group: pd.DataFrame) -> tuple[str, pd.DataFrame
                   LANGUAGE), data
 
 
+@checked_whole
 def weeks(table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
     """Answered share of prompts sent by study week: pooled, with the participants' range."""
     data = table[["week", "participants", "pooled", "min", "max"]]
@@ -95,6 +97,7 @@ def weeks(table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
     return to_svg(spec, "study-weeks", "Prompts answered by study week", desc, LANGUAGE), data
 
 
+@checked_whole
 def bars(key: str, title: str, table: pd.DataFrame) -> tuple[str, pd.DataFrame]:
     """Participants per reading of one topic (`table`: reading, participants)."""
     data = table[["reading", "participants"]]
