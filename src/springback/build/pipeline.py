@@ -33,6 +33,7 @@ from springback.build.output import (
 )
 from springback.build.overview import overview
 from springback.build.records import BuildReport, Job, ParticipantOutcome
+from springback.build.runner import Workers
 from springback.model import Study
 from springback.settings import StudySettings
 from springback.study import study_files
@@ -51,8 +52,11 @@ def build(
     backend: str = "local",
     scheduler: str | None = None,
     progress: Progress | None = None,
+    workers: Workers | None = None,
 ) -> BuildReport:
-    """Build every selected participant's booklets, the study tables and the overview."""
+    """Build every selected participant's booklets, the study tables and the overview.
+
+    `workers`: a local pool started earlier (`springback.build.ahead`); the jobs run there."""
     from springback import intake
     from springback.archive import manifest as archive
     from springback.build.preflight import require_buildable
@@ -103,7 +107,7 @@ def build(
                 progress=report, initializer=warm_engines,
                 on_result=lambda o: stage_files(o, staging),
                 finished=lambda o: "failed" if o.status == "failed" else "done",
-                total=len(selected),
+                total=len(selected), workers=workers,
             )
             by_id = {**reused, **{o.participant: o for o in fresh}}
             if participants:

@@ -5,7 +5,9 @@ A `fork` pool hangs once the chart engine has run in the parent, so local pools 
 there), after tying its life to the parent's: on Linux the kernel sends it SIGTERM when the
 parent dies (PR_SET_PDEATHSIG), and everywhere a watchdog thread ends it once its parent
 process is gone, so a killed build leaves no workers (nor, with them, the resource tracker).
-Jobs are taken from an iterable and submitted a few at a time, and every result passes
+A pool can also be started before its jobs are known (`Workers`): its workers start and warm
+up while the parent still imports its modules and loads the study. Jobs are taken from an
+iterable and submitted a few at a time, and every result passes
 through `on_result` as soon as it arrives (the build writes its files to disk there), so memory
 stays flat as the study grows. Results are returned in the order of the jobs, so the output does
 not depend on scheduling.
@@ -87,6 +89,51 @@ def _worker_start(parent: int, initializer: Callable[[], None] | None) -> None:
     gc.freeze()
 
 
+def _named(where: str) -> Callable[[], None]:
+    """The function at 'package.module:name', imported in the process that calls this."""
+    import importlib
+
+    module, _, name = where.partition(":")
+    fn: Callable[[], None] = getattr(importlib.import_module(module), name)
+    return fn
+
+
+def _start_named(parent: int, where: str) -> None:
+    _worker_start(parent, _named(where))
+
+
+def _ready() -> None:
+    """A job that does nothing: submitted once per worker, it makes the pool start them all."""
+
+
+class Workers:
+    """A local `spawn` pool of n workers, started now, before the jobs are known.
+
+    Starting a worker (the interpreter, the imports, the warm-up named by `initializer` as
+    'package.module:function', imported only in the workers) takes about 2 s of its own core;
+    started here it overlaps the parent's own imports and the loading of the study, where a
+    pool made by `run_jobs` starts only once the first job exists. Use as a context manager
+    and pass to `run_jobs(workers=...)`; on leaving, the pool is shut down (waiting for any
+    worker still warming up).
+    """
+
+    def __init__(self, n: int, initializer: str | None = None) -> None:
+        ctx = multiprocessing.get_context("spawn")
+        start: Callable[[], None] = (functools.partial(_start_named, os.getpid(), initializer)
+                                     if initializer else
+                                     functools.partial(_worker_start, os.getpid(), None))
+        self.n = n
+        self.pool = ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=start)
+        for _ in range(n):  # one submit per worker: the pool starts each one now
+            self.pool.submit(_ready)
+
+    def __enter__(self) -> Workers:
+        return self
+
+    def __exit__(self, *_exc: object) -> None:
+        self.pool.shutdown(wait=True, cancel_futures=True)
+
+
 def _participant(job: Any) -> str:
     return str(getattr(getattr(job, "data", job), "participant", job))
 
@@ -104,8 +151,12 @@ def run_jobs(
     on_result: Callable[[R], R] | None = None,
     finished: Callable[[R], str] = lambda _r: "done",
     total: int | None = None,
+    workers: Workers | None = None,
 ) -> list[R]:
     """Apply `fn` to every job and return the (on_result-passed) results in job order.
+
+    With `workers` (a pool started earlier) the local backend runs the jobs there; the pool
+    stays open for its owner to close.
 
     `progress(name, stage)` hears 'queued' or 'computing'/'rendering' (in-process only) and
     then `finished(result)` ('done' unless told otherwise) for each job. `total` sizes the
@@ -123,12 +174,17 @@ def run_jobs(
     if first is _NO_JOB:  # nothing to do (every participant reused): start no workers
         return []
     jobs = itertools.chain([first], queue)
+    if workers is not None:
+        return _run_pool(jobs, fn, workers.n, report, name, keep, finished, workers.pool)
     n = jobs_n or default_jobs()
     if size is not None:
         n = min(n, max(1, size))
     if n <= 1:
         return _run_here(jobs, fn, report, name, keep, finished)
-    return _run_pool(jobs, fn, n, report, name, initializer, keep, finished)
+    ctx = multiprocessing.get_context("spawn")
+    start = functools.partial(_worker_start, os.getpid(), initializer)
+    with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=start) as pool:
+        return _run_pool(jobs, fn, n, report, name, keep, finished, pool)
 
 
 def _run_here(jobs: Iterable[J], fn: Callable[[J], R], report: Report,
@@ -149,34 +205,31 @@ def _run_here(jobs: Iterable[J], fn: Callable[[J], R], report: Report,
 
 
 def _run_pool(jobs: Iterable[J], fn: Callable[[J], R], n: int, report: Report,
-              name: Callable[[J], str], initializer: Callable[[], None] | None,
-              keep: Callable[[R], R], finished: Callable[[R], str]) -> list[R]:
+              name: Callable[[J], str], keep: Callable[[R], R], finished: Callable[[R], str],
+              pool: ProcessPoolExecutor) -> list[R]:
     results: dict[int, R] = {}
     names: dict[int, str] = {}
     queue: Iterator[tuple[int, J]] = enumerate(jobs)
-    ctx = multiprocessing.get_context("spawn")
-    start = functools.partial(_worker_start, os.getpid(), initializer)
-    with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=start) as pool:
-        pending: dict[Future[R], int] = {}
-        more = True
-        # A bounded number in flight: jobs (and their results) do not pile up in memory.
-        while more or pending:
-            while more and len(pending) < 2 * n:
-                nxt = next(queue, None)
-                if nxt is None:
-                    more = False
-                    break
-                i, job = nxt
-                names[i] = name(job)
-                report(names[i], "queued")
-                pending[pool.submit(fn, job)] = i
-            if not pending:
+    pending: dict[Future[R], int] = {}
+    more = True
+    # A bounded number in flight: jobs (and their results) do not pile up in memory.
+    while more or pending:
+        while more and len(pending) < 2 * n:
+            nxt = next(queue, None)
+            if nxt is None:
+                more = False
                 break
-            done, _ = wait(pending, return_when=FIRST_COMPLETED)
-            for fut in done:
-                i = pending.pop(fut)
-                results[i] = keep(fut.result())
-                report(names.pop(i), finished(results[i]))
+            i, job = nxt
+            names[i] = name(job)
+            report(names[i], "queued")
+            pending[pool.submit(fn, job)] = i
+        if not pending:
+            break
+        done, _ = wait(pending, return_when=FIRST_COMPLETED)
+        for fut in done:
+            i = pending.pop(fut)
+            results[i] = keep(fut.result())
+            report(names.pop(i), finished(results[i]))
     return [results[i] for i in range(len(results))]
 
 

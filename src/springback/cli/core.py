@@ -148,12 +148,19 @@ def _progress_printer(quiet: bool) -> Any:
 def build(project: Path, out_dir: Path | None, participants: tuple[str, ...], jobs: int | None,
           force: bool, backend: str, scheduler: str | None, quiet: bool) -> None:
     """Build every participant's booklets, the study tables and the overview."""
-    from springback.build.pipeline import build as run_build
+    from contextlib import nullcontext
 
-    with _progress_printer(quiet) as progress:
+    from springback.build.ahead import workers_ahead
+
+    # Started before the pipeline's imports, so the workers warm up meanwhile.
+    workers = workers_ahead(project, jobs=jobs, backend=backend, force=force,
+                            participants=list(participants) or None)
+    with workers or nullcontext(), _progress_printer(quiet) as progress:
+        from springback.build.pipeline import build as run_build
+
         report = run_build(project, out=out_dir, participants=list(participants) or None,
                            jobs=jobs, force=force, backend=backend, scheduler=scheduler,
-                           progress=progress.update)
+                           progress=progress.update, workers=workers)
     if report.warnings:
         print_problems(list(report.warnings), err)
     show_table(out, summary_table(report))
