@@ -98,8 +98,15 @@ def _named(where: str) -> Callable[[], None]:
     return fn
 
 
-def _start_named(parent: int, where: str) -> None:
-    _worker_start(parent, _named(where))
+def _run_named(where: str) -> None:
+    _named(where)()
+
+
+def _spawn_pool(n: int, initializer: Callable[[], None] | None) -> ProcessPoolExecutor:
+    """A `spawn` pool of n workers, each tied to this process, then warmed by `initializer`."""
+    start = functools.partial(_worker_start, os.getpid(), initializer)
+    return ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
+                               initializer=start)
 
 
 def _ready() -> None:
@@ -118,12 +125,9 @@ class Workers:
     """
 
     def __init__(self, n: int, initializer: str | None = None) -> None:
-        ctx = multiprocessing.get_context("spawn")
-        start: Callable[[], None] = (functools.partial(_start_named, os.getpid(), initializer)
-                                     if initializer else
-                                     functools.partial(_worker_start, os.getpid(), None))
         self.n = n
-        self.pool = ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=start)
+        self.pool = _spawn_pool(n, functools.partial(_run_named, initializer)
+                                if initializer else None)
         for _ in range(n):  # one submit per worker: the pool starts each one now
             self.pool.submit(_ready)
 
@@ -181,9 +185,7 @@ def run_jobs(
         n = min(n, max(1, size))
     if n <= 1:
         return _run_here(jobs, fn, report, name, keep, finished)
-    ctx = multiprocessing.get_context("spawn")
-    start = functools.partial(_worker_start, os.getpid(), initializer)
-    with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=start) as pool:
+    with _spawn_pool(n, initializer) as pool:
         return _run_pool(jobs, fn, n, report, name, keep, finished, pool)
 
 
